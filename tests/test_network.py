@@ -1,0 +1,102 @@
+"""The perceptual networks: the embedded EfficientNet-Lite0 is really ImageNet-trained, and
+VGG19 never reaches for the network."""
+
+import numpy as np
+import pytest
+import torch
+import torch.nn.functional as F
+from skimage import data
+
+from framestyle.errors import FramestyleError
+from framestyle.network import EfficientNetLite0, _lite0_file, _remap_lite0, load_network
+
+
+@pytest.fixture(scope="module")
+def plain_net():
+    return EfficientNetLite0(blur=False)
+
+
+def _imagenet_input(image: np.ndarray) -> torch.Tensor:
+    x = torch.from_numpy(image).permute(2, 0, 1)[None].float() / 255.0
+    return F.interpolate(x, size=(224, 224), mode="bilinear", antialias=True)
+
+
+def test_embedded_weights_fill_every_parameter_of_the_architecture(plain_net):
+    shipped = _remap_lite0(torch.load(_lite0_file(), map_location="cpu", weights_only=True))
+    # load_state_dict is strict by default; check the key sets too, so nothing is left random.
+    assert set(shipped) == set(plain_net.state_dict())
+
+
+def test_classifies_scikit_image_cat_as_a_cat(plain_net):
+    # Source: scikit-image sample data `chelsea` (a tabby cat); ImageNet class indices
+    # 281-285 are the domestic cat classes (tabby, tiger cat, Persian, Siamese, Egyptian cat).
+    with torch.no_grad():
+        top = int(plain_net.classify(_imagenet_input(data.chelsea())).argmax())
+    assert 281 <= top <= 285
+
+
+def test_classifies_scikit_image_coffee_as_espresso(plain_net):
+    # Source: scikit-image sample data `coffee`; ImageNet class 967 is "espresso".
+    with torch.no_grad():
+        top = int(plain_net.classify(_imagenet_input(data.coffee())).argmax())
+    assert top == 967
+
+
+def test_feature_layers_have_the_documented_shapes():
+    net = load_network("efficientnet-lite0")
+    feats = net(torch.rand(1, 3, 96, 128), list(net.style_layers))
+    shapes = {k: tuple(v.shape) for k, v in feats.items()}
+    assert shapes == {
+        "stem": (1, 32, 48, 64),
+        "blocks.1.expand": (1, 96, 48, 64),
+        "blocks.3.expand": (1, 144, 24, 32),
+        "blocks.5.expand": (1, 240, 12, 16),
+        "blocks.8.expand": (1, 480, 6, 8),
+    }
+
+
+def test_blurpool_features_move_less_under_a_one_pixel_shift(plain_net):
+    # Zhang 2019: low-pass filtering before subsampling makes features more shift-invariant.
+    blur_net = load_network("efficientnet-lite0")
+    img = _imagenet_input(data.astronaut())[..., :160, :160]
+    shifted = torch.roll(img, shifts=1, dims=-1)
+
+    def change(net):
+        a, b = (net(x, ["blocks.5.expand"])["blocks.5.expand"][..., 2:-2, 2:-2] for x in (img, shifted))
+        return float((a - b).norm() / a.norm())
+
+    with torch.no_grad():
+        assert change(blur_net) < change(plain_net)
+
+
+def test_unknown_layer_and_network_are_user_errors():
+    net = load_network("efficientnet-lite0")
+    with pytest.raises(FramestyleError, match="unknown layer"):
+        net(torch.rand(1, 3, 64, 64), ["conv9_9"])
+    with pytest.raises(FramestyleError, match="unknown network 'resnet'"):
+        load_network("resnet")
+
+
+def test_vgg19_without_cached_weights_fails_with_a_clear_message(tmp_path, monkeypatch):
+    monkeypatch.setattr(torch.hub, "get_dir", lambda: str(tmp_path))
+    with pytest.raises(FramestyleError, match="VGG19 ImageNet weights not found"):
+        load_network("vgg19")
+
+
+def test_vgg19_loads_a_weights_file_and_gives_gatys_layers(tmp_path):
+    from torchvision.models import vgg19
+
+    path = tmp_path / "vgg19.pth"
+    features = vgg19().features  # random weights: this checks the loading code, not ImageNet
+    torch.save({f"features.{k}": v for k, v in features.state_dict().items()}, path)
+    net = load_network("vgg19", path)
+    feats = net(torch.rand(1, 3, 64, 64), [*net.style_layers, net.content_layer])
+    assert tuple(feats["conv4_2"].shape) == (1, 512, 8, 8)  # Gatys et al. 2016: 1/8 resolution
+    assert tuple(feats["conv1_1"].shape) == (1, 64, 64, 64)
+
+
+def test_a_file_that_is_not_weights_is_a_user_error(tmp_path):
+    bad = tmp_path / "weights.pth"
+    bad.write_bytes(b"not a checkpoint")
+    with pytest.raises(FramestyleError, match="weights.pth"):
+        load_network("efficientnet-lite0", bad)
