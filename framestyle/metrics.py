@@ -1,0 +1,134 @@
+"""Temporal stability of a stylised shot: the flow warping error of Lai et al. (2018).
+
+The flow and the occlusion mask come from the *source* frames, so the measure asks how much the
+stylised frames change where the source scene itself only moved.
+
+References
+----------
+Lai, Huang, Wang, Shechtman, Yumer & Yang (2018), "Learning Blind Video Temporal Consistency",
+ECCV (the warping error of its evaluation section; section number not checked).
+"""
+
+from __future__ import annotations
+
+from collections.abc import Iterable
+
+import cv2
+import numpy as np
+
+from framestyle.flow import _check_rgb, compute_flow, reliability_mask, warp
+
+_END = object()  # end-of-sequence marker for next()
+
+
+def _resize_to(image: np.ndarray, height: int, width: int) -> np.ndarray:
+    if image.shape[:2] == (height, width):
+        return image
+    return cv2.resize(image, (width, height), interpolation=cv2.INTER_AREA)
+
+
+def pair_warping_error(
+    out_t: np.ndarray,
+    out_next: np.ndarray,
+    src_t: np.ndarray,
+    src_next: np.ndarray,
+    preset: str = "medium",
+) -> float:
+    """Warping error between two consecutive stylised frames (Lai et al., 2018).
+
+        E_pair = Σ_p M(p) ‖V_t(p) − warp(V_{t+1}, F)(p)‖² / Σ_p M(p)
+
+    with F = ``compute_flow(src_t, src_next)`` (flow t → t+1 on the source frames),
+    M = ``reliability_mask(F, compute_flow(src_next, src_t))`` (the non-occlusion mask of the
+    forward-backward check, Ruder et al. 2016) and ‖·‖² summed over the three RGB channels.
+
+    Source frames of another size than the stylised frames are first resized to the stylised
+    size (area interpolation). If no pixel is reliable (Σ M = 0) there is nothing to compare and
+    the error is 0.0.
+
+    Parameters
+    ----------
+    out_t, out_next : np.ndarray
+        Stylised frames V_t, V_{t+1}, float RGB ``(H, W, 3)`` in [0, 1], same shape.
+    src_t, src_next : np.ndarray
+        Source frames, float RGB ``(h, w, 3)`` in [0, 1], same shape.
+    preset : str
+        DIS preset for the flow, one of ``framestyle.flow.FLOW_PRESETS``.
+
+    Returns
+    -------
+    float
+        The masked mean squared difference (per pixel, summed over channels).
+
+    References
+    ----------
+    Lai et al. (2018), "Learning Blind Video Temporal Consistency", ECCV.
+    Ruder, Dosovitskiy & Brox (2016), "Artistic style transfer for videos", GCPR, Sec. 3.
+    """
+    for name, image in (("out_t", out_t), ("out_next", out_next), ("src_t", src_t), ("src_next", src_next)):
+        _check_rgb(name, image)
+    if out_t.shape != out_next.shape:
+        raise ValueError(f"out_t and out_next differ in shape: {out_t.shape} vs {out_next.shape}")
+    if src_t.shape != src_next.shape:
+        raise ValueError(f"src_t and src_next differ in shape: {src_t.shape} vs {src_next.shape}")
+    height, width = out_t.shape[:2]
+    src_t = _resize_to(src_t.astype(np.float32, copy=False), height, width)
+    src_next = _resize_to(src_next.astype(np.float32, copy=False), height, width)
+
+    flow = compute_flow(src_t, src_next, preset)
+    mask = reliability_mask(flow, compute_flow(src_next, src_t, preset)).astype(np.float64)
+    total = mask.sum()
+    if total == 0.0:
+        return 0.0
+    diff = out_t.astype(np.float64) - warp(out_next, flow)
+    return float(np.sum(mask * np.sum(diff * diff, axis=-1)) / total)
+
+
+def sequence_warping_error(
+    outputs: Iterable[np.ndarray],
+    sources: Iterable[np.ndarray],
+    preset: str = "medium",
+) -> float:
+    """Mean ``pair_warping_error`` over the consecutive frame pairs of one shot (Lai et al., 2018).
+
+    Streams: only the current and the previous frame of each sequence are held. The caller splits
+    a clip at shot boundaries, since flow across a cut is meaningless.
+
+    Parameters
+    ----------
+    outputs : Iterable[np.ndarray]
+        Stylised frames of the shot, float RGB ``(H, W, 3)`` in [0, 1].
+    sources : Iterable[np.ndarray]
+        The matching source frames, float RGB ``(h, w, 3)`` in [0, 1], as many as ``outputs``.
+    preset : str
+        DIS preset for the flow, one of ``framestyle.flow.FLOW_PRESETS``.
+
+    Returns
+    -------
+    float
+        Mean pair error; ``nan`` for a shot of fewer than two frames, which has no pair and so no
+        defined error (test with ``math.isnan`` before averaging over shots).
+
+    Raises
+    ------
+    ValueError
+        If ``outputs`` and ``sources`` differ in length, or on invalid frames.
+
+    References
+    ----------
+    Lai et al. (2018), "Learning Blind Video Temporal Consistency", ECCV.
+    """
+    out_iter, src_iter = iter(outputs), iter(sources)
+    total, pairs = 0.0, 0
+    previous = None
+    while True:
+        out, src = next(out_iter, _END), next(src_iter, _END)
+        if out is _END or src is _END:
+            if out is not src:
+                raise ValueError("outputs and sources differ in number of frames")
+            break
+        if previous is not None:
+            total += pair_warping_error(previous[0], out, previous[1], src, preset)
+            pairs += 1
+        previous = (out, src)
+    return total / pairs if pairs else float("nan")
