@@ -1,0 +1,600 @@
+"""Tests for framestyle.frames: reading folders and video, writing frames and video.
+
+Reference libraries: OpenCV (cv2.imread/imwrite) for image files, imageio-ffmpeg's own
+readers (read_frames, count_frames_and_secs) and ffmpeg's stream report for video. All
+fixtures are generated here, in temporary folders.
+"""
+
+from __future__ import annotations
+
+import os
+import shutil
+import struct
+import subprocess
+from pathlib import Path
+
+import cv2
+import imageio_ffmpeg
+import numpy as np
+import pytest
+
+from framestyle.errors import FramestyleError
+from framestyle.frames import (
+    fingerprint,
+    frame_name,
+    iter_frames,
+    open_source,
+    read_alpha,
+    read_frame,
+    read_image,
+    write_frame,
+    write_video,
+)
+
+FFMPEG = imageio_ffmpeg.get_ffmpeg_exe()
+
+
+def ffmpeg(*args: str) -> None:
+    subprocess.run([FFMPEG, "-hide_banner", "-loglevel", "error", "-y", *args], check=True, stdin=subprocess.DEVNULL)
+
+
+def probe(path: Path) -> str:
+    """ffmpeg's stream report for ``path`` (ffmpeg exits 1 as no output is given)."""
+    result = subprocess.run([FFMPEG, "-hide_banner", "-i", str(path)], capture_output=True, stdin=subprocess.DEVNULL)
+    return result.stderr.decode()
+
+
+def levels(seed: int, shape: tuple[int, ...], top: int, dtype) -> np.ndarray:
+    return np.random.default_rng(seed).integers(0, top + 1, size=shape).astype(dtype)
+
+
+def write_uint(path: Path, rgb: np.ndarray) -> None:
+    """Write integer RGB(A) (or gray) samples with OpenCV, which wants BGR(A)."""
+    if rgb.ndim == 3:
+        rgb = rgb[..., [2, 1, 0, 3][: rgb.shape[2]]]
+    assert cv2.imwrite(str(path), np.ascontiguousarray(rgb))
+
+
+def cv2_rgb(path: Path) -> np.ndarray:
+    """Reference decode: cv2.imread(IMREAD_UNCHANGED), BGR -> RGB."""
+    return cv2.imread(str(path), cv2.IMREAD_UNCHANGED)[..., ::-1]
+
+
+@pytest.fixture(scope="module")
+def clip(tmp_path_factory) -> Path:
+    """1 s of ffmpeg's testsrc2 pattern at 24 fps, 64x48, H.264 + a 440 Hz AAC tone.
+
+    At this size consecutive testsrc2 frames can be identical, so the hue turns with the
+    frame number to make every frame different.
+    """
+    path = tmp_path_factory.mktemp("clip") / "clip.mp4"
+    ffmpeg("-f", "lavfi", "-i", "testsrc2=size=64x48:rate=24,hue=H=0.25*n", "-f", "lavfi", "-i", "sine=frequency=440",
+           "-t", "1", "-c:v", "libx264", "-pix_fmt", "yuv420p", "-c:a", "aac", str(path))
+    return path
+
+
+# ----- folders --------------------------------------------------------------------------
+
+
+def test_folder_frames_sort_numerically_without_zero_padding_and_gaps_are_reported(tmp_path):
+    for number in (12, 9, 10, 8):  # 11 missing; lexical order would put 10 and 12 before 8
+        write_uint(tmp_path / f"frame_{number}.png", np.full((6, 5, 3), number, np.uint8))
+    source = open_source(tmp_path)
+    assert source.kind == "folder" and source.count == 4 and source.fps is None
+    assert (source.width, source.height, source.bit_depth) == (5, 6, 8)
+    assert source.names == ("frame_8", "frame_9", "frame_10", "frame_12")
+    assert source.numbers == (8, 9, 10, 12)
+    assert source.gaps == ((11, 11),)
+    assert not source.has_alpha and not source.has_audio
+    assert [float(frame[0, 0, 0]) * 255 for _, frame in iter_frames(source)] == pytest.approx([8, 9, 10, 12])
+
+
+def test_folder_frame_is_rgb_float_in_unit_range_matching_opencv(tmp_path):
+    rgb = levels(1, (6, 5, 3), 255, np.uint8)
+    rgb[0, 0] = (255, 0, 0)  # pure red must come out in channel 0
+    write_uint(tmp_path / "shot_0001.png", rgb)
+    image = read_frame(open_source(tmp_path), 0)
+    assert image.dtype == np.float32 and image.shape == (6, 5, 3)
+    assert image[0, 0].tolist() == [1.0, 0.0, 0.0]
+    np.testing.assert_array_equal(image, cv2_rgb(tmp_path / "shot_0001.png") / np.float32(255))
+
+
+def test_largest_numbered_sequence_is_used_and_other_images_are_listed_as_ignored(tmp_path):
+    for n in range(1, 4):
+        write_uint(tmp_path / f"main_{n:04d}.png", np.zeros((4, 4, 3), np.uint8))
+    write_uint(tmp_path / "other_1.png", np.zeros((8, 8, 3), np.uint8))
+    write_uint(tmp_path / "thumbnail.png", np.zeros((8, 8, 3), np.uint8))
+    (tmp_path / "notes.txt").write_text("not an image")
+    (tmp_path / "._main_0001.png").write_bytes(b"macOS resource fork, not a frame")
+    source = open_source(tmp_path)
+    assert source.files == ("main_0001.png", "main_0002.png", "main_0003.png")
+    assert source.ignored == ("other_1.png", "thumbnail.png")
+
+
+def test_two_sequences_of_equal_length_are_refused_as_ambiguous(tmp_path):
+    for prefix in ("a_", "b_"):
+        for n in (1, 2):
+            write_uint(tmp_path / f"{prefix}{n}.png", np.zeros((4, 4, 3), np.uint8))
+    with pytest.raises(FramestyleError, match="a_#.png, b_#.png"):
+        open_source(tmp_path)
+
+
+def test_two_files_with_the_same_frame_number_are_refused(tmp_path):
+    write_uint(tmp_path / "f_1.png", np.zeros((4, 4, 3), np.uint8))
+    write_uint(tmp_path / "f_01.png", np.zeros((4, 4, 3), np.uint8))
+    with pytest.raises(FramestyleError, match="f_1.png"):
+        open_source(tmp_path)
+
+
+def test_gray_frames_are_replicated_to_rgb(tmp_path):
+    gray = levels(2, (6, 5), 255, np.uint8)
+    write_uint(tmp_path / "g_1.png", gray)
+    image = read_frame(open_source(tmp_path), 0)
+    for channel in range(3):
+        np.testing.assert_array_equal(image[..., channel], gray / np.float32(255))
+
+
+def test_rgba_frames_give_rgb_and_alpha_separately(tmp_path):
+    rgba = levels(3, (6, 5, 4), 255, np.uint8)
+    write_uint(tmp_path / "a_1.png", rgba)
+    source = open_source(tmp_path)
+    assert source.has_alpha
+    np.testing.assert_array_equal(read_frame(source, 0), rgba[..., :3] / np.float32(255))
+    np.testing.assert_array_equal(read_alpha(source, 0), rgba[..., 3] / np.float32(255))
+
+
+def test_alpha_is_none_for_frames_without_alpha(tmp_path):
+    write_uint(tmp_path / "a_1.png", np.zeros((4, 4, 3), np.uint8))
+    assert read_alpha(open_source(tmp_path), 0) is None
+
+
+def test_16_bit_frames_keep_more_than_256_levels(tmp_path):
+    rgb = levels(4, (32, 32, 3), 65535, np.uint16)
+    write_uint(tmp_path / "deep_1.png", rgb)
+    write_uint(tmp_path / "deep_2.png", rgb[..., 0])  # 16-bit gray
+    source = open_source(tmp_path)
+    assert source.bit_depth == 16
+    image = read_frame(source, 0)
+    assert len(np.unique(image)) > 256
+    # Reference: OpenCV's 16-bit decode divided by 65535.
+    np.testing.assert_array_equal(image, cv2_rgb(tmp_path / "deep_1.png") / np.float32(65535))
+    np.testing.assert_array_equal(read_frame(source, 1)[..., 2], rgb[..., 0] / np.float32(65535))
+
+
+@pytest.mark.parametrize("ext", [".jpg", ".jpeg", ".tif", ".tiff"])
+def test_jpeg_and_tiff_frames_read_as_opencv_decodes_them(tmp_path, ext):
+    write_uint(tmp_path / f"f_1{ext}", levels(5, (8, 10, 3), 255, np.uint8))
+    image = read_frame(open_source(tmp_path), 0)
+    np.testing.assert_array_equal(image, cv2_rgb(tmp_path / f"f_1{ext}") / np.float32(255))
+
+
+def test_float_rgb_tiff_sequence_opens_although_pillow_cannot_parse_it(tmp_path):
+    values = np.random.default_rng(6).normal(0.5, 1.0, (6, 5, 3)).astype(np.float32)  # also < 0 and > 1
+    for n in (1, 2):
+        write_frame(tmp_path / f"f_{n}.tif", values, bit_depth=32)
+    source = open_source(tmp_path)
+    assert source.bit_depth == 32 and source.count == 2
+    np.testing.assert_array_equal(read_frame(source, 1), values)
+
+
+def test_read_image_reads_a_single_file_as_rgb_float(tmp_path):
+    rgb = levels(15, (7, 9, 3), 65535, np.uint16)
+    write_uint(tmp_path / "style.png", rgb)
+    np.testing.assert_array_equal(read_image(tmp_path / "style.png"), rgb / np.float32(65535))
+
+
+@pytest.mark.parametrize("content", [None, b"", b"garbage bytes, not an image"])
+def test_read_image_names_a_missing_empty_or_damaged_file(tmp_path, content):
+    path = tmp_path / "style_ink.png"
+    if content is not None:
+        path.write_bytes(content)
+    with pytest.raises(FramestyleError, match="style_ink.png"):
+        read_image(path)
+
+
+# ----- OpenEXR --------------------------------------------------------------------------
+
+
+def write_exr_by_hand(path: Path, channels: dict[str, np.ndarray], pixel_type: int = 2) -> None:
+    """An uncompressed scanline OpenEXR file laid out byte by byte.
+
+    Layout per the OpenEXR "File Layout" document (from memory): magic 76 2f 31 01,
+    version 2, attributes (name NUL type NUL int32 size value) ended by NUL, a uint64
+    offset per scanline chunk, each chunk = int32 y, int32 size, then the line's samples
+    channel by channel in alphabetical order. Pixel type 1 = HALF, 2 = FLOAT.
+    """
+    names = sorted(channels)
+    height, width = channels[names[0]].shape
+    sample = "<f2" if pixel_type == 1 else "<f4"
+
+    def attribute(name: str, kind: str, value: bytes) -> bytes:
+        return name.encode() + b"\0" + kind.encode() + b"\0" + struct.pack("<i", len(value)) + value
+
+    chlist = b"".join(n.encode() + b"\0" + struct.pack("<iB3xii", pixel_type, 0, 1, 1) for n in names) + b"\0"
+    window = struct.pack("<4i", 0, 0, width - 1, height - 1)
+    header = b"v/1\x01" + struct.pack("<i", 2)
+    header += attribute("channels", "chlist", chlist)
+    header += attribute("compression", "compression", b"\0")
+    header += attribute("dataWindow", "box2i", window)
+    header += attribute("displayWindow", "box2i", window)
+    header += attribute("lineOrder", "lineOrder", b"\0")
+    header += attribute("pixelAspectRatio", "float", struct.pack("<f", 1.0))
+    header += attribute("screenWindowCenter", "v2f", struct.pack("<2f", 0.0, 0.0))
+    header += attribute("screenWindowWidth", "float", struct.pack("<f", 1.0))
+    header += b"\0"
+    chunks = []
+    for y in range(height):
+        line = b"".join(channels[n][y].astype(sample).tobytes() for n in names)
+        chunks.append(struct.pack("<ii", y, len(line)) + line)
+    offsets, position = [], len(header) + 8 * height
+    for chunk in chunks:
+        offsets.append(position)
+        position += len(chunk)
+    path.write_bytes(header + struct.pack(f"<{height}Q", *offsets) + b"".join(chunks))
+
+
+def test_exr_rgba_file_laid_out_per_the_spec_reads_as_stored(tmp_path):
+    rng = np.random.default_rng(7)
+    rgba = {c: rng.normal(0.5, 2.0, (5, 7)).astype(np.float32) for c in "RGBA"}  # HDR and negative values
+    write_exr_by_hand(tmp_path / "hdr_0001.exr", rgba)
+    source = open_source(tmp_path)
+    assert (source.width, source.height, source.bit_depth, source.has_alpha) == (7, 5, 32, True)
+    np.testing.assert_array_equal(read_frame(source, 0), np.dstack([rgba["R"], rgba["G"], rgba["B"]]))
+    np.testing.assert_array_equal(read_alpha(source, 0), rgba["A"])
+
+
+def test_exr_half_float_luminance_file_reads_as_gray_rgb(tmp_path):
+    luminance = np.random.default_rng(8).uniform(-1, 8, (4, 6)).astype(np.float16)
+    write_exr_by_hand(tmp_path / "y_1.exr", {"Y": luminance}, pixel_type=1)
+    image = read_frame(open_source(tmp_path), 0)
+    for channel in range(3):
+        np.testing.assert_array_equal(image[..., channel], luminance.astype(np.float32))
+
+
+def test_exr_float_round_trip_is_exact_and_not_clipped(tmp_path):
+    # The OpenCV wheel has no OpenEXR codec; frames.py uses ffmpeg's instead.
+    values = np.random.default_rng(9).normal(0.5, 3.0, (6, 5, 3)).astype(np.float32)
+    write_frame(tmp_path / "out_1.exr", values, bit_depth=32)
+    np.testing.assert_array_equal(read_frame(open_source(tmp_path), 0), values)
+
+
+def test_exr_half_round_trip_is_within_half_precision(tmp_path):
+    values = np.random.default_rng(10).uniform(-2, 6, (6, 5, 3)).astype(np.float32)
+    write_frame(tmp_path / "out_1.exr", values, bit_depth=16)
+    source = open_source(tmp_path)
+    assert source.bit_depth == 32  # half samples are widened to float on reading
+    # IEEE 754 binary16: 10-bit fraction, so relative spacing 2**-10 (one ulp bound allows
+    # for the encoder's own rounding direction).
+    np.testing.assert_allclose(read_frame(source, 0), values, rtol=2**-10, atol=2**-24)
+
+
+# ----- video ----------------------------------------------------------------------------
+
+
+def test_video_count_fps_size_and_audio_are_reported(clip):
+    source = open_source(clip)
+    assert source.kind == "video"
+    assert source.count == 24 and source.fps == 24.0
+    assert (source.width, source.height, source.bit_depth) == (64, 48, 8)
+    assert source.has_audio and not source.has_alpha
+    assert source.names[0] == "frame_000000" and source.names[23] == "frame_000023"
+    assert source.numbers == tuple(range(24)) and source.gaps == ()
+    # Reference: imageio-ffmpeg's own frame counter.
+    assert imageio_ffmpeg.count_frames_and_secs(str(clip))[0] == source.count
+
+
+def test_video_frames_match_a_sequential_read_from_any_start(clip):
+    source = open_source(clip)
+    sequential = [frame for _, frame in iter_frames(source)]
+    assert len(sequential) == 24
+    # Reference: imageio-ffmpeg's reader (constant frame rate clip, so no resampling).
+    reader = imageio_ffmpeg.read_frames(str(clip))
+    next(reader)
+    reference = [np.frombuffer(b, np.uint8).reshape(48, 64, 3) / np.float32(255) for b in reader]
+    for ours, theirs in zip(sequential, reference, strict=True):
+        np.testing.assert_array_equal(ours, theirs)
+    from_ten = list(iter_frames(source, start=10))
+    assert [i for i, _ in from_ten] == list(range(10, 24))
+    for index, frame in from_ten:
+        np.testing.assert_array_equal(frame, sequential[index])
+    assert [i for i, _ in iter_frames(source, 10, 12)] == [10, 11]
+    np.testing.assert_array_equal(read_frame(source, 23), sequential[23])
+    # Every frame differs from every other, so matching the right index means something.
+    assert all(not np.array_equal(a, b) for i, a in enumerate(sequential) for b in sequential[:i])
+
+
+def test_variable_frame_rate_video_is_read_one_frame_per_decoded_frame(tmp_path):
+    path = tmp_path / "vfr.mp4"
+    # A 0.3 s jump in timestamps after frame 10: a constant-rate reader would add copies.
+    ffmpeg("-f", "lavfi", "-i", "testsrc2=size=32x24:rate=24", "-frames:v", "20",
+           "-vf", r"setpts=N/24/TB+if(gte(N\,10)\,0.3/TB\,0)", "-fps_mode", "vfr",
+           "-c:v", "libx264", "-pix_fmt", "yuv420p", str(path))
+    source = open_source(path)
+    assert source.count == 20 == imageio_ffmpeg.count_frames_and_secs(str(path))[0]
+    sequential = [frame for _, frame in iter_frames(source)]
+    assert len(sequential) == 20
+    for index, frame in iter_frames(source, start=12):
+        np.testing.assert_array_equal(frame, sequential[index])
+
+
+def test_10_bit_video_is_read_with_16_bit_precision(tmp_path):
+    path = tmp_path / "deep.mkv"
+    ffmpeg("-f", "lavfi", "-i", "gradients=size=64x48:rate=10", "-frames:v", "2",
+           "-c:v", "libx264", "-pix_fmt", "yuv420p10le", str(path))
+    source = open_source(path)
+    assert source.bit_depth == 16
+    image = read_frame(source, 0)
+    assert len(np.unique(image)) > 256
+    reader = imageio_ffmpeg.read_frames(str(path), pix_fmt="rgb48le", bits_per_pixel=48)
+    next(reader)
+    reference = np.frombuffer(next(reader), "<u2").reshape(48, 64, 3) / np.float32(65535)
+    reader.close()
+    np.testing.assert_array_equal(image, reference)
+
+
+def test_video_with_alpha_gives_alpha(tmp_path):
+    path = tmp_path / "alpha.mov"
+    ffmpeg("-f", "lavfi", "-i", "color=c=red@0.5:size=16x8:rate=10,format=rgba", "-frames:v", "3",
+           "-c:v", "png", str(path))
+    source = open_source(path)
+    assert source.has_alpha
+    assert read_frame(source, 2)[0, 0].tolist() == [1.0, 0.0, 0.0]
+    np.testing.assert_allclose(read_alpha(source, 2), 128 / 255, atol=1 / 255)
+
+
+def test_write_video_keeps_every_frame_and_the_audio(clip, tmp_path):
+    source = open_source(clip)
+    paths = []
+    for index, frame in iter_frames(source):
+        paths.append(tmp_path / frame_name(source, index))
+        write_frame(paths[-1], frame)
+    out = tmp_path / "out.mp4"
+    write_video(paths, source.fps, out, audio_from=clip)
+    assert imageio_ffmpeg.count_frames_and_secs(str(out))[0] == 24
+    report = probe(out)
+    assert "Audio: aac" in report and "h264" in report and "yuv420p" in report
+    result = open_source(out)
+    assert (result.count, result.fps, result.has_audio) == (24, 24.0, True)
+    difference = np.abs(read_frame(result, 5) - read_frame(source, 5))
+    assert difference.mean() < 0.03  # CRF 18 on a busy 64x48 pattern
+    assert [p.name for p in tmp_path.iterdir() if p.name.startswith(".")] == []
+
+
+def test_write_video_keeps_saturated_colours_and_tags_them_bt709(tmp_path):
+    quadrants = np.zeros((48, 64, 3), np.float32)
+    quadrants[:24, :32] = (1, 0, 0)
+    quadrants[:24, 32:] = (0, 1, 0)
+    quadrants[24:, :32] = (0, 0, 1)
+    quadrants[24:, 32:] = (1, 1, 0)
+    paths = [tmp_path / f"f_{n}.png" for n in range(3)]
+    for path in paths:
+        write_frame(path, quadrants)
+    out = tmp_path / "out.mp4"
+    write_video(paths, 24, out)
+    assert "bt709" in probe(out)
+    decoded = read_frame(open_source(out), 1)
+    # Flat fields survive 4:2:0 and CRF 18 nearly exactly; a BT.601/BT.709 matrix mix-up
+    # would shift these primaries by several percent (ITU-R BT.601 vs BT.709 luma weights).
+    for y, x in [(12, 16), (12, 48), (36, 16), (36, 48)]:
+        np.testing.assert_allclose(decoded[y, x], quadrants[y, x], atol=4 / 255)
+
+
+def test_write_video_keeps_every_frame_when_the_audio_is_shorter(tmp_path):
+    clip = tmp_path / "short_audio.mkv"
+    ffmpeg("-f", "lavfi", "-i", "testsrc2=size=32x24:rate=24", "-f", "lavfi", "-i", "sine=duration=0.4",
+           "-frames:v", "24", "-c:v", "libx264", "-c:a", "flac", str(clip))
+    source = open_source(clip)
+    paths = []
+    for index, frame in iter_frames(source):
+        paths.append(tmp_path / frame_name(source, index))
+        write_frame(paths[-1], frame)
+    out = tmp_path / "out.mp4"
+    write_video(paths, source.fps, out, audio_from=clip)  # FLAC is re-encoded to AAC
+    assert "Audio: aac" in probe(out)
+    assert imageio_ffmpeg.count_frames_and_secs(str(out))[0] == 24
+
+
+def test_write_video_handles_odd_sizes_and_ntsc_rates_without_audio(tmp_path):
+    paths = []
+    for n in range(5):
+        paths.append(tmp_path / f"f_{n}.png")
+        write_uint(paths[-1], np.full((47, 63, 3), 40 * n, np.uint8))
+    out = tmp_path / "out.mp4"
+    write_video(paths, 23.98, out)  # ffmpeg reports 24000/1001 as "23.98"
+    result = open_source(out)
+    assert (result.count, result.width, result.height) == (5, 62, 46)
+    assert result.fps == 24000 / 1001
+    assert not result.has_audio
+
+
+def test_write_video_failure_names_the_output_and_leaves_nothing(tmp_path):
+    bad = tmp_path / "f_1.png"
+    bad.write_text("not an image")
+    out = tmp_path / "out.mp4"
+    with pytest.raises(FramestyleError, match="out.mp4"):
+        write_video([bad], 24, out)
+    assert sorted(p.name for p in tmp_path.iterdir()) == ["f_1.png"]
+
+
+def test_write_video_names_a_missing_frame(tmp_path):
+    with pytest.raises(FramestyleError, match="gone_7.png"):
+        write_video([tmp_path / "gone_7.png"], 24, tmp_path / "out.mp4")
+
+
+# ----- bad inputs -----------------------------------------------------------------------
+
+
+def test_missing_path_is_named(tmp_path):
+    with pytest.raises(FramestyleError, match="no_such_clip"):
+        open_source(tmp_path / "no_such_clip")
+
+
+def test_folder_without_frames_is_named(tmp_path):
+    empty = tmp_path / "empty_shot"
+    empty.mkdir()
+    (empty / "readme.txt").write_text("no frames here")
+    with pytest.raises(FramestyleError, match="empty_shot"):
+        open_source(empty)
+
+
+def test_frame_of_another_size_is_named_at_open(tmp_path):
+    write_uint(tmp_path / "f_1.png", np.zeros((4, 4, 3), np.uint8))
+    write_uint(tmp_path / "f_2.png", np.zeros((4, 5, 3), np.uint8))
+    with pytest.raises(FramestyleError, match="f_2.png.*5x4"):
+        open_source(tmp_path)
+
+
+def test_frame_resized_after_open_is_named_when_read(tmp_path):
+    for n in (1, 2):
+        write_uint(tmp_path / f"f_{n}.png", np.zeros((4, 4, 3), np.uint8))
+    source = open_source(tmp_path)
+    write_uint(tmp_path / "f_2.png", np.zeros((6, 4, 3), np.uint8))
+    with pytest.raises(FramestyleError, match="f_2.png"):
+        read_frame(source, 1)
+
+
+def test_zero_byte_frame_is_named(tmp_path):
+    write_uint(tmp_path / "f_1.png", np.zeros((4, 4, 3), np.uint8))
+    (tmp_path / "f_2.png").write_bytes(b"")
+    with pytest.raises(FramestyleError, match="f_2.png.*empty"):
+        open_source(tmp_path)
+
+
+def test_frame_of_random_bytes_is_named(tmp_path):
+    write_uint(tmp_path / "f_1.png", np.zeros((4, 4, 3), np.uint8))
+    (tmp_path / "f_2.png").write_bytes(np.random.default_rng(11).bytes(500))
+    with pytest.raises(FramestyleError, match="f_2.png"):
+        open_source(tmp_path)
+
+
+def test_truncated_frame_is_named_when_read(tmp_path):
+    write_uint(tmp_path / "f_1.png", levels(12, (64, 64, 3), 255, np.uint8))
+    data = (tmp_path / "f_1.png").read_bytes()
+    (tmp_path / "f_2.png").write_bytes(data[: len(data) // 2])  # header intact, pixels cut off
+    source = open_source(tmp_path)
+    with pytest.raises(FramestyleError, match="f_2.png"):
+        read_frame(source, 1)
+
+
+def test_text_file_given_as_video_is_named(tmp_path):
+    path = tmp_path / "holiday.mp4"
+    path.write_text("this is not a video\n" * 20)
+    with pytest.raises(FramestyleError, match="holiday.mp4"):
+        open_source(path)
+
+
+def test_single_image_given_as_input_is_refused(tmp_path):
+    write_uint(tmp_path / "still.png", np.zeros((4, 4, 3), np.uint8))
+    with pytest.raises(FramestyleError, match="still.png"):
+        open_source(tmp_path / "still.png")
+
+
+def test_out_of_range_index_is_refused(clip):
+    source = open_source(clip)
+    with pytest.raises(IndexError):
+        read_frame(source, 24)
+    with pytest.raises(IndexError):
+        iter_frames(source, 5, 30)
+
+
+# ----- writing frames -------------------------------------------------------------------
+
+
+def test_write_frame_16_bit_png_round_trip_is_exact(tmp_path):
+    expected = levels(13, (8, 9, 3), 65535, np.uint16)
+    write_frame(tmp_path / "f_1.png", expected / 65535.0, bit_depth=16)
+    np.testing.assert_array_equal(cv2_rgb(tmp_path / "f_1.png"), expected)  # reference: OpenCV's decode
+    np.testing.assert_array_equal(read_frame(open_source(tmp_path), 0), expected / np.float32(65535))
+
+
+def test_write_frame_8_bit_clips_and_rounds_to_nearest_level(tmp_path):
+    image = np.array([[[-0.2, 0.0, 0.25], [0.5, 1.0, 1.3]]], np.float32)
+    write_frame(tmp_path / "f.png", image)
+    # 0.25 * 255 = 63.75 -> 64; 0.5 * 255 = 127.5 -> 128 (round half to even)
+    assert cv2_rgb(tmp_path / "f.png").tolist() == [[[0, 0, 64], [128, 255, 255]]]
+
+
+def test_write_frame_16_bit_tiff_round_trip_is_exact(tmp_path):
+    expected = levels(14, (8, 9, 3), 65535, np.uint16)
+    write_frame(tmp_path / "f_1.tiff", expected / 65535.0, bit_depth=16)
+    np.testing.assert_array_equal(cv2_rgb(tmp_path / "f_1.tiff"), expected)
+
+
+def test_write_frame_failure_leaves_the_old_file_and_no_temp_files(tmp_path, monkeypatch):
+    target = tmp_path / "f_0001.png"
+    write_frame(target, np.zeros((4, 4, 3), np.float32))
+    before = target.read_bytes()
+
+    def crash_mid_write(path, image):
+        Path(path).write_bytes(b"\x89PNG half written")
+        raise RuntimeError("disk full")
+
+    monkeypatch.setattr(cv2, "imwrite", crash_mid_write)
+    with pytest.raises(RuntimeError, match="disk full"):
+        write_frame(target, np.ones((4, 4, 3), np.float32))
+    assert target.read_bytes() == before
+    assert os.listdir(tmp_path) == ["f_0001.png"]
+
+    monkeypatch.setattr(cv2, "imwrite", lambda path, image: False)
+    with pytest.raises(FramestyleError, match="f_0001.png"):
+        write_frame(target, np.ones((4, 4, 3), np.float32))
+    assert target.read_bytes() == before
+    assert os.listdir(tmp_path) == ["f_0001.png"]
+
+
+@pytest.mark.parametrize(
+    ("name", "bit_depth"), [("f.jpg", 8), ("f.png", 32), ("f.exr", 8), ("f", 8)]
+)
+def test_write_frame_refuses_unsupported_format_and_depth(tmp_path, name, bit_depth):
+    with pytest.raises(FramestyleError, match="bit depth|cannot write"):
+        write_frame(tmp_path / name, np.zeros((4, 4, 3), np.float32), bit_depth=bit_depth)
+    assert os.listdir(tmp_path) == []
+
+
+def test_write_frame_refuses_images_of_the_wrong_shape_or_with_nan(tmp_path):
+    with pytest.raises(ValueError):
+        write_frame(tmp_path / "f.png", np.zeros((4, 4), np.float32))
+    with pytest.raises(ValueError):
+        write_frame(tmp_path / "f.png", np.full((4, 4, 3), np.nan, np.float32))
+
+
+# ----- naming and fingerprints ----------------------------------------------------------
+
+
+def test_frame_name_uses_the_input_stem_or_the_video_index(tmp_path, clip):
+    write_uint(tmp_path / "drift_0007.png", np.zeros((4, 4, 3), np.uint8))
+    assert frame_name(open_source(tmp_path), 0) == "drift_0007.png"
+    assert frame_name(open_source(clip), 10, ".exr") == "frame_000010.exr"
+
+
+def test_fingerprint_survives_a_copy_but_not_a_content_change(tmp_path):
+    shot = tmp_path / "shot"
+    shot.mkdir()
+    for n in (1, 2, 3):
+        write_uint(shot / f"f_{n}.png", levels(n, (8, 8, 3), 255, np.uint8))
+    original = fingerprint(open_source(shot))
+    assert fingerprint(open_source(shot)) == original
+    copy = tmp_path / "copy"
+    shutil.copytree(shot, copy)  # new path and modification times, same content
+    os.utime(copy / "f_2.png", (0, 0))
+    assert fingerprint(open_source(copy)) == original
+
+    data = bytearray((copy / "f_2.png").read_bytes())
+    data[-20] ^= 0xFF  # same size, different content
+    (copy / "f_2.png").write_bytes(bytes(data))
+    assert fingerprint(open_source(copy)) != original
+
+    write_uint(shot / "f_4.png", levels(4, (8, 8, 3), 255, np.uint8))
+    assert fingerprint(open_source(shot)) != original
+
+
+def test_fingerprint_of_a_video_depends_on_its_content_only(clip, tmp_path):
+    renamed = tmp_path / "renamed.mp4"
+    shutil.copy(clip, renamed)
+    source = open_source(renamed)
+    before = fingerprint(source)
+    assert before == fingerprint(open_source(clip))
+    data = bytearray(renamed.read_bytes())
+    data[len(data) // 2] ^= 0xFF
+    renamed.write_bytes(bytes(data))
+    assert fingerprint(source) != before
