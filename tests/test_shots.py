@@ -1,0 +1,311 @@
+import json
+
+import cv2
+import numpy as np
+import pytest
+
+from framestyle.errors import FramestyleError
+from framestyle.shots import (
+    HISTOGRAM_BINS,
+    SIGNATURE_WIDTH,
+    Shot,
+    apply_overrides,
+    detect_shots,
+    format_shot_table,
+    frame_signature,
+    parse_shot_file,
+    shots_from_boundaries,
+)
+
+# --- synthetic footage: smooth procedural textures, one palette per shot -----------------
+
+H, W = 64, 96
+PALETTES = {
+    "sea": [(0.05, 0.15, 0.35), (0.20, 0.55, 0.75), (0.85, 0.95, 1.00)],
+    "desert": [(0.35, 0.15, 0.05), (0.80, 0.45, 0.10), (1.00, 0.85, 0.40)],
+    "forest": [(0.05, 0.25, 0.05), (0.30, 0.60, 0.20), (0.75, 0.90, 0.45)],
+    "dusk": [(0.30, 0.05, 0.30), (0.65, 0.25, 0.60), (0.95, 0.70, 0.90)],
+}
+GRAIN = 0.02  # per-pixel noise std, like sensor grain, so frames are never identical
+
+
+def texture(palette: str, seed: int, dx: float = 0.0, dy: float = 0.0, phase: float = 0.0):
+    """A smooth pattern (four plane waves) mapped through a three-colour palette."""
+    rng = np.random.default_rng(seed)
+    yy, xx = np.mgrid[0:H, 0:W].astype(np.float32)
+    field = np.zeros((H, W), np.float32)
+    for _ in range(4):
+        angle, wavelength = rng.uniform(0, np.pi), rng.uniform(18, 50)
+        offset = rng.uniform(0, 2 * np.pi)
+        along = np.cos(angle) * (xx + dx) + np.sin(angle) * (yy + dy)
+        field += np.sin(2 * np.pi * along / wavelength + offset + phase)
+    position = np.clip(0.5 + field / 5.0, 0.0, 1.0) * 2  # 0..2 across the three colours
+    colours = np.asarray(PALETTES[palette], np.float32)
+    low = np.minimum(position.astype(int), 1)
+    weight = (position - low)[..., None]
+    return colours[low] * (1 - weight) + colours[low + 1] * weight
+
+
+def with_grain(frame: np.ndarray, rng: np.random.Generator) -> np.ndarray:
+    return np.clip(frame + rng.normal(0, GRAIN, frame.shape), 0, 1).astype(np.float32)
+
+
+def shot_frames(palette: str, seed: int, first: int, count: int) -> list[np.ndarray]:
+    """Frames ``first .. first + count - 1`` of a shot drifting slowly (0.5 px/frame)."""
+    return [texture(palette, seed, 0.4 * t, 0.3 * t, 0.05 * t) for t in range(first, first + count)]
+
+
+def starts_of(frames: list[np.ndarray], seed: int = 0, **settings) -> list[int]:
+    rng = np.random.default_rng(seed)
+    shots = detect_shots([frame_signature(with_grain(f, rng)) for f in frames], **settings)
+    return [shot.start for shot in shots]
+
+
+# --- frame_signature ------------------------------------------------------------------------
+
+
+def test_signature_is_the_joint_rgb_histogram_of_the_area_downscaled_frame():
+    rng = np.random.default_rng(3)
+    coarse = rng.random((9, 16, 3), dtype=np.float32)
+    frame = cv2.resize(coarse, (640, 360), interpolation=cv2.INTER_CUBIC)
+    frame = np.clip(frame, 0, 1)
+    frame[0, :8] = 1.0  # the top edge value must land in the last bin
+    small = cv2.resize(frame, (SIGNATURE_WIDTH, 90), interpolation=cv2.INTER_AREA)
+    # Reference library: numpy's histogramdd (closed last bin, like ours).
+    expected, _ = np.histogramdd(small.reshape(-1, 3), bins=HISTOGRAM_BINS, range=[(0, 1)] * 3)
+    signature = frame_signature(frame)
+    assert signature.shape == (HISTOGRAM_BINS**3,) and signature.dtype == np.float32
+    np.testing.assert_allclose(signature, expected.ravel() / small.shape[0] / small.shape[1], atol=1e-6)
+    # Reference library: OpenCV's calcHist. Its upper range end is open, so compare on a
+    # frame without the value 1.0.
+    below_one = np.minimum(frame, 0.99)
+    small = cv2.resize(below_one, (SIGNATURE_WIDTH, 90), interpolation=cv2.INTER_AREA)
+    calc = cv2.calcHist([small], [0, 1, 2], None, [HISTOGRAM_BINS] * 3, [0, 1, 0, 1, 0, 1])
+    np.testing.assert_allclose(frame_signature(below_one), calc.ravel() / calc.sum(), atol=1e-6)
+
+
+def test_small_frames_are_counted_without_resizing():
+    frame = np.zeros((2, 3, 3), np.float32)
+    frame[0, 0] = (1.0, 0.0, 0.3)
+    signature = frame_signature(frame)
+    assert signature[0] == pytest.approx(5 / 6)  # black pixels
+    assert signature[(3 * HISTOGRAM_BINS + 0) * HISTOGRAM_BINS + 1] == pytest.approx(1 / 6)
+
+
+@pytest.mark.parametrize(
+    "bad", [np.zeros((4, 4), np.float32), np.zeros((4, 4, 4), np.float32), np.zeros((4, 4, 3), np.uint8)]
+)
+def test_signature_rejects_frames_that_are_not_float_rgb(bad):
+    with pytest.raises(ValueError):
+        frame_signature(bad)
+
+
+# --- detect_shots ---------------------------------------------------------------------------
+
+
+def test_hard_cuts_are_found_within_one_frame():
+    frames = (
+        shot_frames("sea", 1, 0, 30)
+        + shot_frames("desert", 2, 30, 25)
+        + shot_frames("forest", 3, 55, 25)
+        + shot_frames("dusk", 4, 80, 20)
+    )
+    starts = starts_of(frames)
+    assert len(starts) == 4
+    for found, true_cut in zip(starts[1:], (30, 55, 80)):
+        assert abs(found - true_cut) <= 1
+
+
+def test_fade_through_black_gives_one_boundary_inside_the_fade():
+    a, b = shot_frames("sea", 1, 0, 40), shot_frames("desert", 2, 40, 50)
+    fade_out = [a[30 + k] * (1 - (k + 1) / 10) for k in range(10)]  # frames 30..39, 39 black
+    fade_in = [b[k] * ((k + 1) / 10) for k in range(10)]  # frames 40..49
+    starts = starts_of(a[:30] + fade_out + fade_in + b[10:])
+    assert len(starts) == 2
+    assert 30 <= starts[1] <= 49
+    assert abs(starts[1] - 39.5) <= 3  # near the black point, where the shots meet
+
+
+def test_fade_out_hold_on_black_and_fade_in_is_one_transition():
+    a, b = shot_frames("forest", 5, 0, 40), shot_frames("dusk", 6, 0, 40)
+    black = [np.zeros((H, W, 3), np.float32)] * 8
+    fade_out = [a[30 + k] * (1 - (k + 1) / 8) for k in range(8)]  # frames 30..37
+    fade_in = [b[k] * ((k + 1) / 8) for k in range(8)]  # frames 46..53
+    starts = starts_of(a[:30] + fade_out + black + fade_in + b[8:])
+    assert len(starts) == 2
+    assert 37 <= starts[1] <= 46  # on the held black
+
+
+def test_cross_dissolve_gives_one_boundary_inside_the_dissolve():
+    a, b = shot_frames("sea", 1, 0, 100), shot_frames("forest", 3, 0, 100)
+    mix = [(k + 1) / 13 for k in range(12)]  # frames 40..51 blend a into b
+    frames = a[:40] + [a[40 + k] * (1 - m) + b[40 + k] * m for k, m in enumerate(mix)] + b[52:]
+    starts = starts_of(frames)
+    assert len(starts) == 2
+    assert 40 <= starts[1] <= 51
+
+
+def test_fast_pan_over_a_wide_panorama_is_not_a_cut():
+    # 8 px/frame across a 96 px frame: the view moves a whole frame width in 12 frames.
+    frames = [texture("forest", 7, dx=8.0 * t) for t in range(100)]
+    assert np.abs(frames[1] - frames[0]).mean() > 0.03  # large motion in pixel terms
+    assert starts_of(frames) == [0]
+
+
+def test_cut_in_the_middle_of_a_fast_pan_is_found():
+    frames = [texture("forest", 7, dx=8.0 * t) for t in range(40)]
+    frames += [texture("desert", 8, dx=8.0 * t) for t in range(40, 80)]
+    starts = starts_of(frames)
+    assert len(starts) == 2 and abs(starts[1] - 40) <= 1
+
+
+def test_slow_colour_change_during_a_long_fast_pan_is_not_a_transition():
+    # A 200-frame pan at 16 px/frame over a panorama that turns from sea to forest: the
+    # first and last views differ a lot, but no 48-frame stretch changes enough.
+    blend = np.arange(W)[None, :, None].astype(np.float32)
+    frames = []
+    for t in range(200):
+        weight = np.clip((blend + 16.0 * t) / 8000.0, 0, 1)
+        sea, forest = texture("sea", 7, dx=16.0 * t), texture("forest", 7, dx=16.0 * t)
+        frames.append(sea * (1 - weight) + forest * weight)
+    assert starts_of(frames) == [0]
+    # Judged end to end (twin comparison without the length bound) it would split.
+    assert len(starts_of(frames, max_transition_length=len(frames))) == 2
+
+
+def test_flickering_light_is_not_a_transition():
+    gains = np.random.default_rng(5).uniform(0.75, 1.0, 100)  # brightness jumps up to 25 %
+    frames = [frame * gain for frame, gain in zip(shot_frames("desert", 2, 0, 100), gains)]
+    assert starts_of(frames) == [0]
+
+
+def test_large_object_sweeping_across_the_frame_is_not_a_cut():
+    radius, speed = 26, 6.0  # a red disc as tall as 80 % of the frame, 6 px/frame
+    yy, xx = np.mgrid[0:H, 0:W]
+    frames, coverage = [], []
+    for t, frame in enumerate(shot_frames("sea", 1, 0, int((W + 2 * radius) / speed) + 10)):
+        blob = (xx - (t * speed - radius)) ** 2 + (yy - H / 2) ** 2 < radius**2
+        frame = frame.copy()
+        frame[blob] = (0.9, 0.1, 0.1)
+        frames.append(frame)
+        coverage.append(blob.mean())
+    assert max(coverage) > 0.3 and coverage[0] == coverage[-1] == 0  # enters and leaves
+    assert starts_of(frames) == [0]
+
+
+def test_one_frame_flash_is_not_a_cut():
+    # A photographic flash is a classic false cut (common practice): big steps into and
+    # out of the flash, but the frames around it match.
+    frames = shot_frames("dusk", 4, 0, 60)
+    frames[30] = np.ones((H, W, 3), np.float32)
+    assert starts_of(frames) == [0]
+
+
+def test_static_footage_is_one_shot():
+    assert starts_of([texture("desert", 2)] * 50) == [0]
+
+
+def test_single_frame_is_one_shot():
+    assert detect_shots([frame_signature(texture("sea", 1))]) == [Shot(1, 0, 0)]
+
+
+def test_cuts_closer_than_min_shot_length_keep_only_one():
+    frames = shot_frames("sea", 1, 0, 30) + shot_frames("desert", 2, 30, 5)
+    frames += shot_frames("dusk", 4, 35, 30)
+    assert len(starts_of(frames, min_shot_length=8)) == 2
+    assert starts_of(frames, min_shot_length=3) == [0, 30, 35]
+
+
+def test_detect_shots_rejects_empty_or_mixed_signatures():
+    with pytest.raises(ValueError):
+        detect_shots([])
+    with pytest.raises(ValueError):
+        detect_shots([np.zeros(64, np.float32), np.zeros(8, np.float32)])
+
+
+# --- shot lists and overrides -----------------------------------------------------------
+
+
+def test_shots_from_boundaries_adds_frame_zero_and_ends_at_the_last_frame():
+    assert shots_from_boundaries([10, 25], 40) == [Shot(1, 0, 9), Shot(2, 10, 24), Shot(3, 25, 39)]
+    assert shots_from_boundaries([0], 1) == [Shot(1, 0, 0)]
+    for bad in ([5, 5], [40], [-1]):
+        with pytest.raises(ValueError):
+            shots_from_boundaries(bad, 40)
+
+
+def test_text_shot_file_with_comments_and_blank_lines(tmp_path):
+    path = tmp_path / "cuts.txt"
+    path.write_text("# harbour clip\n\n12   # close-up\n  30\n", encoding="utf-8")
+    assert parse_shot_file(path, 50) == [Shot(1, 0, 11), Shot(2, 12, 29), Shot(3, 30, 49)]
+
+
+def test_json_shot_file_as_printed_by_the_shots_command_round_trips(tmp_path):
+    shots = [Shot(1, 0, 11), Shot(2, 12, 29), Shot(3, 30, 49)]
+    path = tmp_path / "shots.json"
+    path.write_text(json.dumps([s.to_dict() for s in shots], indent=2), encoding="utf-8")
+    assert parse_shot_file(path, 50) == shots
+    assert shots[1].to_dict() == {"shot": 2, "start": 12, "end": 29}
+
+
+@pytest.mark.parametrize(
+    "content, line, words",
+    [
+        ("0\n12\nabc\n", 3, "frame number"),
+        ("0\n-4\n", 2, "frame number"),
+        ("0\n60\n", 2, "outside the clip"),
+        ("0\n20\n# x\n10\n", 4, "does not come after"),
+        ("0\n20\n20\n", 3, "does not come after"),
+        ('[\n {"shot": 1, "start": 10, "end": 19},\n {"shot": 2, "start": 5, "end": 49}\n]', 3, "does not come after"),
+        ('[\n {"shot": 1, "start": 0, "end": 9},\n {"shot": 2, "start": 5, "end": 49}\n]', 3, "inside the previous shot"),
+        ('[{"shot": 1, "start": 0, "end": 9},\n{"shot": 2, "start": 10}]', 2, '"start": FRAME'),
+        ('[{"shot": 1, "start": 0, "end": 60}]', 1, "end 60"),
+        ('[{"shot": 1, "start": 0, "end": 9},\n{"shot": 2 "start": 10}]', 2, "not valid JSON"),
+    ],
+)
+def test_bad_shot_files_name_the_file_and_line(tmp_path, content, line, words):
+    path = tmp_path / "list.txt"
+    path.write_text(content, encoding="utf-8")
+    with pytest.raises(FramestyleError) as error:
+        parse_shot_file(path, 50)
+    assert f"{path}:{line}:" in str(error.value)
+    assert words in str(error.value)
+
+
+@pytest.mark.parametrize("content", ["# only a comment\n", "[]"])
+def test_shot_file_without_any_shot_is_rejected(tmp_path, content):
+    path = tmp_path / "empty.txt"
+    path.write_text(content, encoding="utf-8")
+    with pytest.raises(FramestyleError, match="empty"):
+        parse_shot_file(path, 50)
+
+
+def test_missing_shot_file_is_a_user_error(tmp_path):
+    with pytest.raises(FramestyleError, match="missing.txt"):
+        parse_shot_file(tmp_path / "missing.txt", 50)
+
+
+def test_overrides_add_and_remove_cuts_and_renumber():
+    shots = shots_from_boundaries([20, 40], 60)
+    changed = apply_overrides(shots, add_cuts=[10], remove_cuts=[40])
+    assert changed == [Shot(1, 0, 9), Shot(2, 10, 19), Shot(3, 20, 59)]
+    assert apply_overrides(shots, add_cuts=[20]) == shots
+
+
+@pytest.mark.parametrize(
+    "add, remove, words",
+    [((), (30,), "no shot starts there"), ((), (0,), "frame 0"), ((60,), (), "0..59"), ((20,), (20,), "both")],
+)
+def test_bad_overrides_are_user_errors(add, remove, words):
+    with pytest.raises(FramestyleError, match=words):
+        apply_overrides(shots_from_boundaries([20, 40], 60), add_cuts=add, remove_cuts=remove)
+
+
+def test_shot_table_lists_frames_and_smpte_timecodes_of_first_and_last_frame():
+    table = format_shot_table(shots_from_boundaries([48], 100), fps=25)
+    lines = table.splitlines()
+    assert lines[0].split() == ["shot", "first", "last", "frames", "start", "end"]
+    # Non-drop 25 fps timecodes (SMPTE ST 12-1): frame 47 is 00:00:01:22, 99 is 00:00:03:24.
+    assert lines[1].split() == ["1", "0", "47", "48", "00:00:00:00", "00:00:01:22"]
+    assert lines[2].split() == ["2", "48", "99", "52", "00:00:01:23", "00:00:03:24"]
+    assert "00:01:00;02" in format_shot_table(shots_from_boundaries([1800], 1900), fps=29.97)
