@@ -29,6 +29,7 @@ def atomic_path(path: str | os.PathLike, suffix: str | None = None) -> Iterator[
         prefix=f".{path.name}.", suffix=path.suffix if suffix is None else suffix, dir=path.parent
     )
     os.close(fd)
+    os.chmod(tmp, 0o644)  # mkstemp makes 0600; finished frames should be readable like any file
     tmp_path = Path(tmp)
     try:
         yield tmp_path
