@@ -102,6 +102,8 @@ def _same_pad(x: torch.Tensor, kernel: int, stride: int) -> torch.Tensor:
     h, w = x.shape[-2:]
     pad_h = max((math.ceil(h / stride) - 1) * stride + kernel - h, 0)
     pad_w = max((math.ceil(w / stride) - 1) * stride + kernel - w, 0)
+    if pad_h == pad_w == 0:
+        return x  # 1×1 convolutions: skip a needless copy
     return F.pad(x, (pad_w // 2, pad_w - pad_w // 2, pad_h // 2, pad_h - pad_h // 2))
 
 

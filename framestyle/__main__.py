@@ -1,0 +1,5 @@
+"""``python -m framestyle`` runs the command line."""
+
+from .cli import main
+
+main()

@@ -1,0 +1,218 @@
+"""Command line: thin typer commands that build settings and call one library function each."""
+
+from __future__ import annotations
+
+import json
+import sys
+from pathlib import Path
+from typing import Annotated, Optional
+
+import typer
+
+from .errors import FramestyleError
+from .settings import Settings
+
+app = typer.Typer(
+    add_completion=False, no_args_is_help=True,
+    help="Repaint a shot or clip in the look of a style image, without flicker, on a CPU.",
+)
+
+_CAUTION = (
+    "Caution: stylised footage can flash or strobe. Check renders against WCAG 2.3.1 / "
+    "ITU-R BT.1702 before showing them to viewers who may have photosensitive epilepsy."
+)
+
+
+def _fail(message: str) -> None:
+    typer.echo(f"framestyle: error: {message}", err=True)
+    raise typer.Exit(2)
+
+
+def _run(fn, *args, **kwargs):
+    """Call library code, turning user-facing problems into one line on stderr and exit 2."""
+    try:
+        return fn(*args, **kwargs)
+    except FramestyleError as exc:
+        _fail(str(exc))
+    except OSError as exc:  # e.g. disk full or permission denied while writing
+        _fail(f"{exc.filename or ''}: {exc.strerror or exc}".lstrip(": "))
+
+
+def _check_path(path: Path, what: str) -> Path:
+    if not path.exists():
+        _fail(f"{path}: {what} not found")
+    return path
+
+
+class _Bars:
+    """Progress display: an overall bar and a per-shot bar with ETA, plus a line per shot."""
+
+    def __init__(self, quiet: bool):
+        self.quiet = quiet
+        self.progress = None
+
+    def __call__(self, event: str, **info) -> None:
+        if self.quiet:
+            return
+        from rich.progress import (BarColumn, MofNCompleteColumn, Progress, TextColumn,
+                                   TimeElapsedColumn, TimeRemainingColumn)
+
+        if event == "start":
+            self.progress = Progress(
+                TextColumn("{task.description}"), BarColumn(), MofNCompleteColumn(),
+                TimeElapsedColumn(), TextColumn("ETA"), TimeRemainingColumn(), transient=False,
+            )
+            self.progress.start()
+            self.total = self.progress.add_task("all frames", total=info["frames"])
+            self.shot_task, self.shot = None, None
+            w, h = info["size"]
+            self.progress.console.print(
+                f"{info['frames']} frames in {info['shots']} shot(s), working size {w}×{h}"
+                + (f", {info['done']} already finished" if info["done"] else "")
+            )
+        elif event == "frame":
+            if info["shot"] != self.shot:
+                if self.shot_task is not None:
+                    self.progress.remove_task(self.shot_task)
+                self.shot = info["shot"]
+                self.shot_task = self.progress.add_task(f"shot {self.shot}", total=None)
+            self.progress.advance(self.total)
+            self.progress.advance(self.shot_task)
+        elif event == "shot":
+            s = info["summary"]
+            n = s.shot.end - s.shot.start + 1
+            self.progress.console.print(
+                f"shot {s.shot.index}: frames {s.shot.start}-{s.shot.end} ({n}), "
+                f"{s.seconds:.0f} s, {s.iterations / max(1, s.frames_done):.0f} iterations/frame, "
+                f"warping error {s.warp_error:.5f}"
+            )
+
+    def stop(self) -> None:
+        if self.progress is not None:
+            self.progress.stop()
+
+
+@app.command()
+def stylize(
+    input: Annotated[Path, typer.Argument(help="Folder of numbered frames, or a video file.")],
+    style: Annotated[list[Path], typer.Option("--style", "-s", help="Style image; repeat to mix several.")],
+    out: Annotated[Path, typer.Option("--out", "-o", help="Output folder for the stylised frames.")],
+    width: Annotated[int, typer.Option(help="Working width in pixels (never above the source's).")] = Settings.width,
+    iterations: Annotated[int, typer.Option(help="Most solver iterations per frame.")] = Settings.iterations,
+    style_weight: Annotated[float, typer.Option(help="Weight of the Gram style loss: higher, more paint.")] = Settings.style_weight,
+    content_weight: Annotated[float, typer.Option(help="Weight of the content loss: higher, more footage.")] = Settings.content_weight,
+    style_mix: Annotated[Optional[str], typer.Option(help="Comma-separated weights, one per --style.")] = None,
+    style_scale: Annotated[float, typer.Option(help="Stroke size: style image scale relative to the frame.")] = Settings.style_scale,
+    network: Annotated[str, typer.Option(help="Perceptual network: efficientnet-lite0 or vgg19.")] = Settings.network,
+    weights: Annotated[Optional[Path], typer.Option(help="Network weights file (needed for vgg19 offline).")] = None,
+    seed: Annotated[int, typer.Option(help="Random seed; the same seed gives the same frames.")] = Settings.seed,
+    no_temporal: Annotated[bool, typer.Option("--no-temporal", help="Stylise each frame on its own (flickers; for comparison).")] = False,
+    temporal_weight: Annotated[float, typer.Option(help="Weight of the temporal consistency loss.")] = Settings.temporal_weight,
+    flow_preset: Annotated[str, typer.Option(help="Optical flow quality: ultrafast, fast or medium.")] = Settings.flow_preset,
+    tolerance: Annotated[float, typer.Option(help="Stop a frame when the loss falls by less than this fraction per 10 iterations.")] = Settings.tolerance,
+    every: Annotated[Optional[int], typer.Option(help="Preview: stylise only every Nth frame of each shot and write contact sheets.")] = None,
+    preview_width: Annotated[Optional[int], typer.Option(help="Working width for --every previews.")] = None,
+    shots: Annotated[Optional[str], typer.Option(help="Render only these shots, e.g. 2,4-5.")] = None,
+    shot_list: Annotated[Optional[Path], typer.Option(help="File of shot start frames replacing shot detection.")] = None,
+    restart: Annotated[bool, typer.Option("--restart", help="Discard a previous render in --out and start over.")] = False,
+    quiet: Annotated[bool, typer.Option("--quiet", "-q", help="No progress display.")] = False,
+) -> None:
+    """Stylise INPUT in the look of --style into the --out folder (resumes an interrupted render)."""
+    from . import preview as preview_mod
+    from . import render as render_mod
+
+    _check_path(input, "input")
+    for path in style:
+        _check_path(path, "style image")
+    if shot_list is not None:
+        _check_path(shot_list, "shot list")
+    if style_mix is not None:
+        try:
+            mix = tuple(float(v) for v in style_mix.split(","))
+        except ValueError:
+            _fail(f"--style-mix {style_mix!r}: expected numbers like 0.7,0.3")
+    else:
+        mix = ()
+    settings = Settings(
+        styles=tuple(str(p.resolve()) for p in style), style_mix=mix, style_weight=style_weight,
+        content_weight=content_weight, style_scale=style_scale, network=network,
+        weights=str(weights.resolve()) if weights else None, width=width, iterations=iterations,
+        tolerance=tolerance, seed=seed, temporal=not no_temporal, temporal_weight=temporal_weight,
+        flow_preset=flow_preset,
+    )
+    bars = _Bars(quiet)
+    try:
+        if every is not None:
+            sheets = _run(preview_mod.preview, input, out, settings, every, preview_width, shot_list, bars)
+            bars.stop()
+            typer.echo(f"preview frames and contact sheets in {out / 'preview'}:")
+            for sheet in sheets:
+                typer.echo(f"  {sheet}")
+            return
+        result = _run(render_mod.render, input, out, settings, shots=shots, shot_file=shot_list,
+                      restart=restart, progress=bars)
+    finally:
+        bars.stop()
+    typer.echo(f"{len(result.frames)} stylised frames in {result.out}")
+    if result.video:
+        typer.echo(f"video with the source's audio: {result.video}")
+    if not quiet:
+        typer.echo(_CAUTION, err=True)
+
+
+def main() -> None:
+    """Entry point that never shows a traceback for an interrupted render."""
+    try:
+        app()
+    except KeyboardInterrupt:
+        typer.echo("framestyle: interrupted; run the same command again to resume", err=True)
+        sys.exit(130)
+
+
+@app.command("shots")
+def shots_command(
+    input: Annotated[Path, typer.Argument(help="Folder of numbered frames, or a video file.")],
+    json_out: Annotated[bool, typer.Option("--json", help="Print the shot list as JSON.")] = False,
+    fps: Annotated[Optional[float], typer.Option(help="Frame rate for timecode (default: the video's, or 24).")] = None,
+    cut_threshold: Annotated[float, typer.Option(help="Colour distance (0..1) that makes a cut.")] = Settings.cut_threshold,
+    gradual_threshold: Annotated[float, typer.Option(help="End-to-end colour distance that makes a fade or dissolve.")] = Settings.gradual_threshold,
+) -> None:
+    """List the shots of INPUT with first/last frame and SMPTE timecode."""
+    from . import frames
+    from .render import find_shots
+    from .shots import format_shot_table
+
+    _check_path(input, "input")
+    source = _run(frames.open_source, input)
+    settings = Settings(cut_threshold=cut_threshold, gradual_threshold=gradual_threshold)
+    found = _run(find_shots, source, settings, None)
+    if json_out:
+        typer.echo(json.dumps([s.to_dict() for s in found]))
+    else:
+        typer.echo(format_shot_table(found, fps or source.fps or 24.0))
+
+
+@app.command("stability")
+def stability_command(
+    out: Annotated[Path, typer.Argument(help="Folder of stylised frames (a render's --out).")],
+    source: Annotated[Path, typer.Option("--source", help="The footage the render was made from.")],
+    json_out: Annotated[bool, typer.Option("--json", help="Print the figures as JSON.")] = False,
+    flow_preset: Annotated[str, typer.Option(help="Optical flow preset for the measurement.")] = "medium",
+) -> None:
+    """Print the warping error (Lai et al. 2018) of a render per shot and overall; lower is steadier."""
+    from .report import overall, stability
+
+    _check_path(out, "render folder")
+    _check_path(source, "source")
+    rows = _run(stability, out, source, flow_preset)
+    if json_out:
+        typer.echo(json.dumps({
+            "shots": [{**r.shot.to_dict(), "render": r.render, "source": r.source} for r in rows],
+            "overall": {"render": overall(rows, "render"), "source": overall(rows, "source")},
+        }))
+        return
+    typer.echo(f"{'shot':>4}  {'frames':>11}  {'render':>10}  {'source':>10}")
+    for r in rows:
+        typer.echo(f"{r.shot.index:>4}  {f'{r.shot.start}-{r.shot.end}':>11}  {r.render:>10.5f}  {r.source:>10.5f}")
+    typer.echo(f"{'all':>4}  {'':>11}  {overall(rows, 'render'):>10.5f}  {overall(rows, 'source'):>10.5f}")
+    typer.echo("warping error: mean squared RGB change along the optical flow (Lai et al. 2018)")

@@ -1,0 +1,109 @@
+"""Quick previews: stylise every Nth frame of each shot on its own and lay out contact sheets.
+
+A preview answers "is this the look?" before hours of CPU are committed: each previewed frame
+is a shot's first-frame treatment (no temporal chain), optionally at a smaller width, and each
+shot gets a sheet with the source frames above their stylised versions, labelled by frame.
+"""
+
+from __future__ import annotations
+
+import dataclasses
+import time
+from pathlib import Path
+
+import cv2
+import numpy as np
+
+from . import frames
+from .errors import FramestyleError
+from .render import (Progress, start_noise, no_progress, find_shots, fresh_problem, prepare_look, resize,
+                     to_array, working_size)
+from .settings import Settings
+from .solver import solve
+
+_TILE_WIDTH = 240  # contact-sheet tile width in pixels
+_COLUMNS = 6  # tiles per row before a sheet wraps
+_LABEL_HEIGHT = 22
+
+
+def sample_frames(start: int, end: int, every: int) -> list[int]:
+    """Frames of a shot [start, end] to preview: its first frame, then every ``every``-th."""
+    if every < 1:
+        raise FramestyleError(f"--every {every}: must be 1 or more")
+    return list(range(start, end + 1, every))
+
+
+def contact_sheet(tiles: list[tuple[str, np.ndarray, np.ndarray]], tile_width: int = _TILE_WIDTH,
+                  columns: int = _COLUMNS) -> np.ndarray:
+    """Lay out (label, source, stylised) triples: source above stylised, label above both.
+
+    Parameters
+    ----------
+    tiles : list of (label, source (H, W, 3), stylised (H', W', 3)) in [0, 1]
+
+    Returns
+    -------
+    (H_sheet, W_sheet, 3) float32 image in [0, 1]
+    """
+    if not tiles:
+        raise ValueError("a contact sheet needs at least one tile")
+    h0, w0 = tiles[0][1].shape[:2]
+    tile_h = max(1, round(h0 * tile_width / w0))
+    cell_h = _LABEL_HEIGHT + 2 * tile_h + 6
+    rows = (len(tiles) + columns - 1) // columns
+    cols = min(columns, len(tiles))
+    sheet = np.full((rows * cell_h + 4, cols * (tile_width + 4) + 4, 3), 0.12, np.float32)
+    for k, (label, src, styled) in enumerate(tiles):
+        y, x = 4 + (k // columns) * cell_h, 4 + (k % columns) * (tile_width + 4)
+        cv2.putText(sheet, label, (x + 2, y + _LABEL_HEIGHT - 7), cv2.FONT_HERSHEY_SIMPLEX, 0.5,
+                    (0.92, 0.92, 0.92), 1, cv2.LINE_AA)
+        top = y + _LABEL_HEIGHT
+        sheet[top:top + tile_h, x:x + tile_width] = resize(src, (tile_width, tile_h))
+        sheet[top + tile_h + 2:top + 2 * tile_h + 2, x:x + tile_width] = resize(styled, (tile_width, tile_h))
+    return sheet
+
+
+def preview(input_path: Path, out: Path, settings: Settings, every: int, width: int | None = None,
+            shot_file: Path | None = None, progress: Progress = no_progress) -> list[Path]:
+    """Stylise every ``every``-th frame of each shot into ``out/preview`` and write contact sheets.
+
+    Parameters
+    ----------
+    width : preview working width (default: the render's width)
+
+    Returns
+    -------
+    The contact sheet paths, one per shot.
+    """
+    out = Path(out)
+    if out.exists() and not out.is_dir():
+        raise FramestyleError(f"{out}: output path is a file, not a folder")
+    source = frames.open_source(Path(input_path))
+    if width is not None:
+        settings = dataclasses.replace(settings, width=width)
+    shots = find_shots(source, settings, shot_file)
+    size = working_size(source.width, source.height, settings.width, 64)
+    look = prepare_look(settings, size)
+    chosen = {i: shot for shot in shots for i in sample_frames(shot.start, shot.end, every)}
+    progress("start", frames=len(chosen), shots=len(shots), done=0, size=size)
+    folder = out / "preview"
+    tiles: dict[int, list] = {shot.index: [] for shot in shots}
+    for index, frame in frames.iter_frames(source):
+        if index not in chosen:
+            continue
+        t0 = time.perf_counter()
+        content = resize(frame, size)
+        noise = start_noise((1, 3, size[1], size[0]), settings.seed, index)
+        image, stats = solve(look.net, fresh_problem(content, noise), look.style, settings)
+        styled = to_array(image)
+        name = frames.frame_name(source, index)
+        frames.write_frame(folder / name, styled)
+        tiles[chosen[index].index].append((Path(name).stem, content, styled))
+        progress("frame", index=index, shot=chosen[index].index, iterations=stats.iterations,
+                 seconds=time.perf_counter() - t0, skipped=False)
+    sheets = []
+    for shot in shots:
+        path = folder / f"contact_shot{shot.index:03d}.png"
+        frames.write_frame(path, contact_sheet(tiles[shot.index]))
+        sheets.append(path)
+    return sheets

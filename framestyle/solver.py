@@ -1,0 +1,144 @@
+"""The per-frame solver: optimise one frame's pixels against content, style and temporal losses.
+
+Image optimisation by L-BFGS as in Gatys, Ecker & Bethge 2016 ("Image Style Transfer Using
+Convolutional Neural Networks"), with the temporal terms and warm start of Ruder, Dosovitskiy &
+Brox 2016 ("Artistic style transfer for videos"). The solver stops when the loss has
+converged (relative decrease below a tolerance over a chunk of iterations) or at the
+iteration cap, so warm-started frames naturally take fewer iterations than a shot's first.
+
+Example
+-------
+>>> net = load_network("efficientnet-lite0")
+>>> style = style_targets(net, [torch.rand(1, 3, 96, 96)], [1.0], net.style_layers)
+>>> frame = torch.rand(1, 3, 96, 96)
+>>> out, stats = solve(net, Problem(frame, frame), style, Settings(iterations=20))
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass, field
+from typing import Sequence
+
+import torch
+
+from .losses import content_loss, gram_matrix, style_loss, temporal_loss, total_variation
+from .network import FeatureNet
+from .settings import Settings
+
+_CHUNK = 10  # iterations between convergence checks
+
+
+@dataclass
+class Problem:
+    """What one frame is optimised against.
+
+    content : (1, 3, H, W) in [0, 1] — the source frame at working size.
+    init : (1, 3, H, W) — the starting image (content + noise, or the warped previous frame).
+    temporal : list of (warped (1, 3, H, W), weight (1, 1, H, W)) pairs, one per earlier
+        frame the temporal loss ties this frame to (Ruder et al. 2016, Eqs. 7 and 9).
+    """
+
+    content: torch.Tensor
+    init: torch.Tensor
+    temporal: list[tuple[torch.Tensor, torch.Tensor]] = field(default_factory=list)
+
+
+@dataclass
+class SolveStats:
+    """How a frame's optimisation went."""
+
+    iterations: int
+    style: float
+    content: float
+    temporal: float
+
+
+def style_targets(
+    net: FeatureNet, images: Sequence[torch.Tensor], mix: Sequence[float], layers: Sequence[str]
+) -> dict[str, torch.Tensor]:
+    """Target Gram matrices: the weighted mean of each style image's Gram matrices.
+
+    Mixing at the Gram level blends several styles' textures rather than their pixels
+    (Gatys et al. 2016, Sec. 3 on combining styles; Gatys et al. 2017, Sec. 5).
+
+    Parameters
+    ----------
+    images : sequence of (1, 3, h, w) tensors in [0, 1]
+    mix : weights, one per image (normalised here)
+    layers : style layer names
+
+    Returns
+    -------
+    dict layer -> (1, C, C) tensor
+    """
+    if len(images) != len(mix) or not images:
+        raise ValueError("need one mix weight per style image, and at least one image")
+    total = float(sum(mix))
+    targets: dict[str, torch.Tensor] = {}
+    with torch.no_grad():
+        for image, weight in zip(images, mix):
+            feats = net(image, layers)
+            for layer in layers:
+                g = gram_matrix(feats[layer]) * (weight / total)
+                targets[layer] = targets[layer] + g if layer in targets else g
+    return targets
+
+
+def solve(
+    net: FeatureNet, problem: Problem, style: dict[str, torch.Tensor], settings: Settings,
+    iterations: int | None = None,
+) -> tuple[torch.Tensor, SolveStats]:
+    """Optimise the frame's pixels with L-BFGS.
+
+    Loss: content_weight·L_content + style_weight·mean_l L_style,l + tv_weight·L_tv +
+    temporal_weight·Σ_j L_temporal,j (Gatys et al. 2016, Eq. 7; Ruder et al. 2016, Eq. 8).
+
+    Parameters
+    ----------
+    net : the perceptual network (frozen)
+    problem : content frame, starting image and temporal targets
+    style : target Gram matrices from :func:`style_targets`
+    settings : weights, iteration cap and tolerance
+    iterations : override of ``settings.iterations`` (e.g. for previews)
+
+    Returns
+    -------
+    image : (1, 3, H, W) in [0, 1]
+    stats : iterations used and the final loss terms
+    """
+    content_layer = settings.content_layer or net.content_layer
+    layers = list(dict.fromkeys([*style, content_layer]))
+    with torch.no_grad():
+        content_target = net(problem.content, [content_layer])[content_layer]
+    x = problem.init.detach().clone().requires_grad_(True)
+    # No line search: one closure call per iteration, so "iterations" is also the cost unit.
+    opt = torch.optim.LBFGS([x], lr=1.0, max_iter=_CHUNK, history_size=20,
+                            tolerance_grad=0.0, tolerance_change=0.0)
+    terms: dict[str, torch.Tensor] = {}
+    calls = 0
+
+    def closure() -> torch.Tensor:
+        nonlocal calls
+        calls += 1
+        opt.zero_grad()
+        feats = net(x, layers)
+        terms["style"] = sum(style_loss(gram_matrix(feats[l]), style[l]) for l in style) / len(style)
+        terms["content"] = content_loss(feats[content_layer], content_target)
+        terms["temporal"] = sum((temporal_loss(x, w, c) for w, c in problem.temporal), x.new_zeros(()))
+        loss = (settings.style_weight * terms["style"] + settings.content_weight * terms["content"]
+                + settings.tv_weight * total_variation(x) + settings.temporal_weight * terms["temporal"])
+        loss.backward()
+        terms.update({k: v.detach() for k, v in terms.items()}, total=loss.detach())
+        return loss
+
+    cap = settings.iterations if iterations is None else iterations
+    previous = None
+    while calls < cap:
+        opt.param_groups[0]["max_iter"] = min(_CHUNK, cap - calls)
+        opt.step(closure)
+        loss = float(terms["total"])  # the last evaluation (step() returns the chunk's first)
+        if previous is not None and previous - loss < settings.tolerance * abs(previous):
+            break
+        previous = loss
+    stats = SolveStats(calls, float(terms["style"]), float(terms["content"]), float(terms["temporal"]))
+    return x.detach().clamp(0.0, 1.0), stats
