@@ -16,8 +16,8 @@ import numpy as np
 
 from . import frames
 from .errors import FramestyleError
-from .render import (Progress, start_noise, no_progress, find_shots, fresh_problem, prepare_look, resize,
-                     to_array, working_size)
+from .render import (Progress, find_shots, fresh_problem, no_progress, prepare_frame_look, resize,
+                     start_noise, to_array)
 from .settings import Settings
 from .solver import solve
 
@@ -55,8 +55,10 @@ def contact_sheet(tiles: list[tuple[str, np.ndarray, np.ndarray]], tile_width: i
     sheet = np.full((rows * cell_h + 4, cols * (tile_width + 4) + 4, 3), 0.12, np.float32)
     for k, (label, src, styled) in enumerate(tiles):
         y, x = 4 + (k // columns) * cell_h, 4 + (k % columns) * (tile_width + 4)
-        cv2.putText(sheet, label, (x + 2, y + _LABEL_HEIGHT - 7), cv2.FONT_HERSHEY_SIMPLEX, 0.5,
-                    (0.92, 0.92, 0.92), 1, cv2.LINE_AA)
+        band = np.full((_LABEL_HEIGHT, tile_width, 3), 31, np.uint8)  # OpenCV 5 draws text on 8-bit only
+        cv2.putText(band, label, (2, _LABEL_HEIGHT - 7), cv2.FONT_HERSHEY_SIMPLEX, 0.5,
+                    (235, 235, 235), 1, cv2.LINE_AA)
+        sheet[y:y + _LABEL_HEIGHT, x:x + tile_width] = band / 255.0
         top = y + _LABEL_HEIGHT
         sheet[top:top + tile_h, x:x + tile_width] = resize(src, (tile_width, tile_h))
         sheet[top + tile_h + 2:top + 2 * tile_h + 2, x:x + tile_width] = resize(styled, (tile_width, tile_h))
@@ -81,9 +83,8 @@ def preview(input_path: Path, out: Path, settings: Settings, every: int, width: 
     source = frames.open_source(Path(input_path))
     if width is not None:
         settings = dataclasses.replace(settings, width=width)
+    look, size = prepare_frame_look(source, settings)
     shots = find_shots(source, settings, shot_file)
-    size = working_size(source.width, source.height, settings.width, 64)
-    look = prepare_look(settings, size)
     chosen = {i: shot for shot in shots for i in sample_frames(shot.start, shot.end, every)}
     progress("start", frames=len(chosen), shots=len(shots), done=0, size=size)
     folder = out / "preview"

@@ -88,7 +88,7 @@ class Look:
     style: dict[str, torch.Tensor]
 
 
-def prepare_look(settings: Settings, size: tuple[int, int]) -> Look:
+def prepare_look(settings: Settings, size: tuple[int, int], net: FeatureNet | None = None) -> Look:
     """Load the network and compute the target Gram matrices for frames of ``size`` (w, h).
 
     The style image is resized so its longer side is ``style_scale`` × the working frame's
@@ -96,7 +96,7 @@ def prepare_look(settings: Settings, size: tuple[int, int]) -> Look:
     """
     if not settings.styles:
         raise FramestyleError("no style image given")
-    net = load_network(settings.network, settings.weights)
+    net = net or load_network(settings.network, settings.weights)
     layers = settings.style_layers or net.style_layers
     net.check_layers([*layers, settings.content_layer or net.content_layer])
     images = []
@@ -111,6 +111,13 @@ def prepare_look(settings: Settings, size: tuple[int, int]) -> Look:
     if len(mix) != len(images):
         raise FramestyleError(f"{len(mix)} style mix weights for {len(images)} style images")
     return Look(net, style_targets(net, images, mix, layers))
+
+
+def prepare_frame_look(source: frames.FrameSource, settings: Settings) -> tuple[Look, tuple[int, int]]:
+    """The look and working size (w, h) for ``source``; checks network, width and styles."""
+    net = load_network(settings.network, settings.weights)
+    size = working_size(source.width, source.height, settings.width, net.min_side)
+    return prepare_look(settings, size, net), size
 
 
 # --- one frame -------------------------------------------------------------------------------
@@ -269,11 +276,12 @@ def render(
     if out.exists() and not out.is_dir():
         raise FramestyleError(f"{out}: output path is a file, not a folder")
     source = frames.open_source(Path(input_path))
+    look, size = prepare_frame_look(source, settings)  # bad settings fail before OUT is touched
     out.mkdir(parents=True, exist_ok=True)
     with checkpoint.FolderLock(out):
         log = _open_log(out)
         try:
-            return _render_locked(source, out, settings, shots, shot_file, restart, progress, log)
+            return _render_locked(source, out, settings, look, size, shots, shot_file, restart, progress, log)
         finally:
             for handler in list(log.handlers):
                 handler.close()
@@ -290,7 +298,7 @@ def _open_log(out: Path) -> logging.Logger:
     return log
 
 
-def _render_locked(source, out, settings, shot_sel, shot_file, restart, progress, log) -> RenderResult:
+def _render_locked(source, out, settings, look, size, shot_sel, shot_file, restart, progress, log) -> RenderResult:
     inputs = _inputs(source, settings)
     manifest = checkpoint.read_manifest(out)
     if restart:
@@ -311,11 +319,6 @@ def _render_locked(source, out, settings, shot_sel, shot_file, restart, progress
         log.info("new render of %s into %s, settings %s", source.path, out, settings.digest())
     log.info("shots: %s", ", ".join(f"{s.index}:{s.start}-{s.end}" for s in shot_list))
     wanted = parse_shot_selection(shot_sel, shot_list) if shot_sel else [s.index for s in shot_list]
-
-    size = working_size(source.width, source.height, settings.width, 64)
-    look = prepare_look(settings, size)
-    working_size(source.width, source.height, settings.width, look.net.min_side)
-    torch.manual_seed(settings.seed)
 
     names = [frames.frame_name(source, i) for i in range(source.count)]
     total = sum(s.end - s.start + 1 for s in shot_list if s.index in wanted)

@@ -1,0 +1,142 @@
+"""The command line as a new user meets it: main job, previews, video, shots, bad input."""
+
+import json
+import subprocess
+from pathlib import Path
+
+import cv2
+import imageio_ffmpeg
+import numpy as np
+import pytest
+from typer.testing import CliRunner
+
+from framestyle.cli import app
+
+from conftest import SAMPLE, STYLE
+
+runner = CliRunner()
+FAST = ["--width", "128", "--iterations", "4"]
+
+
+def _run(*args):
+    result = runner.invoke(app, [str(a) for a in args])
+    return result.exit_code, result.stdout, result.stderr
+
+
+def _one_line_error(code, stderr, name):
+    assert code == 2
+    lines = stderr.strip().splitlines()
+    assert len(lines) == 1, stderr
+    assert "Traceback" not in stderr and name in lines[0]
+
+
+def test_stylize_writes_frames_and_says_where(small_clip, tmp_path):
+    code, out, _ = _run("stylize", small_clip, "--style", STYLE, "--out", tmp_path / "o", "-q", *FAST, "--shots", "2")
+    assert code == 0
+    assert f"10 stylised frames in {tmp_path / 'o'}" in out
+
+
+def test_every_n_writes_preview_frames_and_a_contact_sheet_per_shot(small_clip, tmp_path):
+    code, out, _ = _run("stylize", small_clip, "--style", STYLE, "--out", tmp_path, "--every", "4", "-q", *FAST)
+    assert code == 0
+    previews = sorted(p.name for p in (tmp_path / "preview").glob("take_*.png"))
+    # each shot sampled from its own first frame: shot 1 = frames 0, 4, 8; shot 2 = 10, 14, 18
+    assert previews == ["take_001.png", "take_005.png", "take_009.png", "take_011.png", "take_015.png", "take_019.png"]
+    for n in (1, 2):
+        sheet = cv2.imread(str(tmp_path / "preview" / f"contact_shot{n:03d}.png"))
+        assert sheet is not None and sheet.shape[1] > 3 * 240
+    assert not list(tmp_path.glob("take_*.png"))  # a preview is not a render
+
+
+def test_video_input_gives_png_frames_and_an_mp4_with_the_source_audio(tmp_path):
+    video = tmp_path / "clip.mp4"
+    ffmpeg = imageio_ffmpeg.get_ffmpeg_exe()
+    subprocess.run([ffmpeg, "-v", "error", "-f", "lavfi", "-i", "testsrc2=size=128x72:rate=12", "-f", "lavfi",
+                    "-i", "sine=frequency=440", "-t", "0.5", "-pix_fmt", "yuv420p", "-c:v", "libx264",
+                    "-c:a", "aac", str(video)], check=True)
+    code, out, err = _run("stylize", video, "--style", STYLE, "--out", tmp_path / "o", "-q", *FAST)
+    assert code == 0, err
+    pngs = sorted((tmp_path / "o").glob("frame_*.png"))
+    assert len(pngs) == 6
+    result = tmp_path / "o" / "clip_framestyle.mp4"
+    assert f"video with the source's audio: {result}" in out
+    probe = subprocess.run([ffmpeg, "-i", str(result)], capture_output=True, text=True).stderr
+    assert "Audio:" in probe and "Video:" in probe
+    assert imageio_ffmpeg.count_frames_and_secs(str(result))[0] == 6
+
+
+def test_shots_command_finds_the_sample_clip_cut():
+    code, out, _ = _run("shots", SAMPLE / "frames", "--json")
+    assert code == 0
+    assert json.loads(out) == [{"shot": 1, "start": 0, "end": 27}, {"shot": 2, "start": 28, "end": 47}]
+    code, out, _ = _run("shots", SAMPLE / "frames")
+    assert "00:00:01:04" in out  # frame 28 at the 24 fps default (SMPTE ST 12-1 non-drop)
+
+
+def test_stability_command_reports_render_and_source(small_clip, tmp_path):
+    _run("stylize", small_clip, "--style", STYLE, "--out", tmp_path, "-q", *FAST)
+    code, out, _ = _run("stability", tmp_path, "--source", small_clip, "--json")
+    assert code == 0
+    report = json.loads(out)
+    assert [s["shot"] for s in report["shots"]] == [1, 2]
+    assert report["overall"]["render"] > report["overall"]["source"] >= 0
+    code, out, _ = _run("stability", tmp_path, "--source", small_clip)
+    assert "all" in out and "warping error" in out
+
+
+# --- bad input: one line naming the file and the problem, exit 2, nothing finished touched ---
+
+def test_missing_input_and_missing_style(tmp_path):
+    _one_line_error(*_run("stylize", tmp_path / "nope", "--style", STYLE, "--out", tmp_path / "o")[::2], "nope")
+    _one_line_error(*_run("stylize", SAMPLE / "frames", "--style", tmp_path / "gone.png", "--out", tmp_path / "o")[::2], "gone.png")
+
+
+def test_unreadable_style_image(small_clip, tmp_path):
+    bad = tmp_path / "style.png"
+    bad.write_bytes(b"\x89PNG not really")
+    _one_line_error(*_run("stylize", small_clip, "--style", bad, "--out", tmp_path / "o", *FAST)[::2], "style.png")
+
+
+def test_folder_without_frames(tmp_path):
+    empty = tmp_path / "empty"
+    empty.mkdir()
+    _one_line_error(*_run("stylize", empty, "--style", STYLE, "--out", tmp_path / "o")[::2], "empty")
+
+
+def test_frames_of_different_sizes(tmp_path):
+    folder = tmp_path / "mixed"
+    folder.mkdir()
+    cv2.imwrite(str(folder / "f_001.png"), np.zeros((72, 128, 3), np.uint8))
+    cv2.imwrite(str(folder / "f_002.png"), np.zeros((80, 128, 3), np.uint8))
+    _one_line_error(*_run("stylize", folder, "--style", STYLE, "--out", tmp_path / "o")[::2], "f_002.png")
+
+
+@pytest.mark.parametrize("content", [b"", b"\x00garbage" * 50], ids=["zero-byte", "corrupt"])
+def test_zero_byte_or_corrupt_frame(tmp_path, content):
+    folder = tmp_path / "broken"
+    folder.mkdir()
+    cv2.imwrite(str(folder / "f_001.png"), np.zeros((72, 128, 3), np.uint8))
+    (folder / "f_002.png").write_bytes(content)
+    _one_line_error(*_run("stylize", folder, "--style", STYLE, "--out", tmp_path / "o")[::2], "f_002.png")
+
+
+def test_unknown_network_and_too_small_width(small_clip, tmp_path):
+    _one_line_error(*_run("stylize", small_clip, "--style", STYLE, "--out", tmp_path / "o", "--network", "alexnet")[::2], "alexnet")
+    _one_line_error(*_run("stylize", small_clip, "--style", STYLE, "--out", tmp_path / "o", "--width", "40")[::2], "width 40")
+
+
+def test_output_path_that_is_a_file(small_clip, tmp_path):
+    target = tmp_path / "taken.png"
+    target.write_bytes(b"precious")
+    _one_line_error(*_run("stylize", small_clip, "--style", STYLE, "--out", target)[::2], "taken.png")
+    assert target.read_bytes() == b"precious"
+
+
+def test_bad_input_never_touches_a_finished_render(small_clip, tmp_path):
+    out = tmp_path / "done"
+    assert _run("stylize", small_clip, "--style", STYLE, "--out", out, "-q", *FAST, "--shots", "2")[0] == 0
+    before = {p.name: p.read_bytes() for p in out.iterdir() if p.is_file()}
+    _one_line_error(*_run("stylize", small_clip, "--style", STYLE, "--out", out, "--width", "40")[::2], "width")
+    code, _, err = _run("stylize", small_clip, "--style", STYLE, "--out", out, "--width", "100", "--iterations", "4")
+    _one_line_error(code, err, "width")  # a changed setting is refused by name
+    assert {p.name: p.read_bytes() for p in out.iterdir() if p.is_file()} == before
