@@ -95,21 +95,27 @@ class _Bars:
 @app.command()
 def stylize(
     input: Annotated[Path, typer.Argument(help="Folder of numbered frames, or a video file.")],
-    style: Annotated[list[Path], typer.Option("--style", "-s", help="Style image; repeat to mix several.")],
     out: Annotated[Path, typer.Option("--out", "-o", help="Output folder for the stylised frames.")],
-    width: Annotated[int, typer.Option(help="Working width in pixels (never above the source's).")] = Settings.width,
-    iterations: Annotated[int, typer.Option(help="Most solver iterations per frame.")] = Settings.iterations,
-    style_weight: Annotated[float, typer.Option(help="Weight of the Gram style loss: higher, more paint.")] = Settings.style_weight,
-    content_weight: Annotated[float, typer.Option(help="Weight of the content loss: higher, more footage.")] = Settings.content_weight,
-    style_mix: Annotated[Optional[str], typer.Option(help="Comma-separated weights, one per --style.")] = None,
-    style_scale: Annotated[float, typer.Option(help="Stroke size: style image scale relative to the frame.")] = Settings.style_scale,
-    network: Annotated[str, typer.Option(help="Perceptual network: efficientnet-lite0 or vgg19.")] = Settings.network,
+    style: Annotated[Optional[list[Path]], typer.Option("--style", "-s", help="Style image; repeat to mix several.")] = None,
+    look: Annotated[Optional[Path], typer.Option(help="TOML look file with settings (and per-shot looks); options given here override it.")] = None,
+    width: Annotated[Optional[int], typer.Option(help=f"Working width in pixels, never above the source's (default {Settings.width}).")] = None,
+    iterations: Annotated[Optional[int], typer.Option(help=f"Most solver iterations per frame (default {Settings.iterations}).")] = None,
+    style_weight: Annotated[Optional[float], typer.Option(help=f"Weight of the Gram style loss: higher, more paint (default {Settings.style_weight}).")] = None,
+    content_weight: Annotated[Optional[float], typer.Option(help=f"Weight of the content loss: higher, more footage (default {Settings.content_weight}).")] = None,
+    style_mix: Annotated[Optional[str], typer.Option(help="Comma-separated weights, one per --style (default equal).")] = None,
+    style_scale: Annotated[Optional[float], typer.Option(help=f"Stroke size: style image scale relative to the frame (default {Settings.style_scale}).")] = None,
+    colour: Annotated[Optional[str], typer.Option(help="Palette: style (the painting's), luma (keep the footage's colours) or match (painting recoloured to the footage) (default style).")] = None,
+    strength: Annotated[Optional[float], typer.Option(help="0 = the footage, 1 = full style (default 1).")] = None,
+    matte: Annotated[Optional[str], typer.Option(help="Folder of matte frames (white = stylise), or 'alpha' for the input's alpha.")] = None,
+    matte_softness: Annotated[Optional[float], typer.Option(help=f"Soft matte edge, Gaussian sigma in pixels (default {Settings.matte_softness}).")] = None,
+    scales: Annotated[Optional[int], typer.Option(help="Coarse-to-fine levels for large frames; 1 = off (default 1).")] = None,
+    network: Annotated[Optional[str], typer.Option(help=f"Perceptual network: efficientnet-lite0 or vgg19 (default {Settings.network}).")] = None,
     weights: Annotated[Optional[Path], typer.Option(help="Network weights file (needed for vgg19 offline).")] = None,
-    seed: Annotated[int, typer.Option(help="Random seed; the same seed gives the same frames.")] = Settings.seed,
+    seed: Annotated[Optional[int], typer.Option(help="Random seed; the same seed gives the same frames (default 0).")] = None,
     no_temporal: Annotated[bool, typer.Option("--no-temporal", help="Stylise each frame on its own (flickers; for comparison).")] = False,
-    temporal_weight: Annotated[float, typer.Option(help="Weight of the temporal consistency loss.")] = Settings.temporal_weight,
-    flow_preset: Annotated[str, typer.Option(help="Optical flow quality: ultrafast, fast or medium.")] = Settings.flow_preset,
-    tolerance: Annotated[float, typer.Option(help="Stop a frame when the loss falls by less than this fraction per 10 iterations.")] = Settings.tolerance,
+    temporal_weight: Annotated[Optional[float], typer.Option(help=f"Weight of the temporal consistency loss (default {Settings.temporal_weight}).")] = None,
+    flow_preset: Annotated[Optional[str], typer.Option(help=f"Optical flow quality: ultrafast, fast or medium (default {Settings.flow_preset}).")] = None,
+    tolerance: Annotated[Optional[float], typer.Option(help=f"Stop a frame when the loss falls by less than this fraction per 10 iterations (default {Settings.tolerance}).")] = None,
     every: Annotated[Optional[int], typer.Option(help="Preview: stylise only every Nth frame of each shot and write contact sheets.")] = None,
     preview_width: Annotated[Optional[int], typer.Option(help="Working width for --every previews.")] = None,
     shots: Annotated[Optional[str], typer.Option(help="Render only these shots, e.g. 2,4-5.")] = None,
@@ -120,26 +126,28 @@ def stylize(
     """Stylise INPUT in the look of --style into the --out folder (resumes an interrupted render)."""
     from . import preview as preview_mod
     from . import render as render_mod
+    from .settings import load_look
 
     _check_path(input, "input")
-    for path in style:
-        _check_path(path, "style image")
-    if shot_list is not None:
-        _check_path(shot_list, "shot list")
-    if style_mix is not None:
-        try:
-            mix = tuple(float(v) for v in style_mix.split(","))
-        except ValueError:
-            _fail(f"--style-mix {style_mix!r}: expected numbers like 0.7,0.3")
-    else:
-        mix = ()
-    settings = Settings(
-        styles=tuple(str(p.resolve()) for p in style), style_mix=mix, style_weight=style_weight,
-        content_weight=content_weight, style_scale=style_scale, network=network,
-        weights=str(weights.resolve()) if weights else None, width=width, iterations=iterations,
-        tolerance=tolerance, seed=seed, temporal=not no_temporal, temporal_weight=temporal_weight,
-        flow_preset=flow_preset,
-    )
+    for path in [*(style or []), *([look] if look else []), *([shot_list] if shot_list else [])]:
+        _check_path(path, "file")
+    if matte and matte != "alpha":
+        _check_path(Path(matte), "matte folder")
+    given = {
+        "styles": [str(p.resolve()) for p in style] if style else None,
+        "style_mix": _numbers(style_mix, "--style-mix") if style_mix else None,
+        "style_weight": style_weight, "content_weight": content_weight, "style_scale": style_scale,
+        "colour": colour, "strength": strength, "scales": scales, "network": network,
+        "matte": str(Path(matte).resolve()) if matte and matte != "alpha" else matte,
+        "matte_softness": matte_softness, "weights": str(weights.resolve()) if weights else None,
+        "width": width, "iterations": iterations, "tolerance": tolerance, "seed": seed,
+        "temporal": False if no_temporal else None, "temporal_weight": temporal_weight,
+        "flow_preset": flow_preset,
+    }
+    base = _run(load_look, look) if look else {}
+    settings = _run(Settings.from_dict, {**base, **{k: v for k, v in given.items() if v is not None}})
+    if not settings.styles:
+        _fail("no style image: give --style or a look file with styles")
     bars = _Bars(quiet)
     try:
         if every is not None:
@@ -153,11 +161,32 @@ def stylize(
                       restart=restart, progress=bars)
     finally:
         bars.stop()
+    if not quiet and result.shots:
+        typer.echo(_summary_table(result.shots))
     typer.echo(f"{len(result.frames)} stylised frames in {result.out}")
     if result.video:
         typer.echo(f"video with the source's audio: {result.video}")
     if not quiet:
         typer.echo(_CAUTION, err=True)
+
+
+def _summary_table(shots) -> str:
+    """The end-of-render table: one row per shot rendered now, and a total."""
+    rows = [f"{'shot':>4}  {'frames':>9}  {'done':>4}  {'time':>8}  {'it/frame':>8}  {'warp error':>10}"]
+    for s in shots:
+        rows.append(f"{s.shot.index:>4}  {f'{s.shot.start}-{s.shot.end}':>9}  {s.frames_done:>4}  "
+                    f"{s.seconds:>7.0f}s  {s.iterations / max(1, s.frames_done):>8.1f}  {s.warp_error:>10.5f}")
+    done = sum(s.frames_done for s in shots)
+    rows.append(f"{'all':>4}  {'':>9}  {done:>4}  {sum(s.seconds for s in shots):>7.0f}s  "
+                f"{sum(s.iterations for s in shots) / max(1, done):>8.1f}")
+    return "\n".join(rows)
+
+
+def _numbers(text: str, option: str) -> tuple[float, ...]:
+    try:
+        return tuple(float(v) for v in text.split(","))
+    except ValueError:
+        _fail(f"{option} {text!r}: expected numbers like 0.7,0.3")
 
 
 def main() -> None:

@@ -16,10 +16,11 @@ import numpy as np
 
 from . import frames
 from .errors import FramestyleError
-from .render import (Progress, find_shots, fresh_problem, no_progress, prepare_frame_look, resize,
-                     start_noise, to_array)
+from .imaging import resize
+from .look import build_look
+from .render import (Mattes, Progress, check_render, deliver, find_shots, no_progress, prepare_frame,
+                     stylise_alone, working_size)
 from .settings import Settings
-from .solver import solve
 
 _TILE_WIDTH = 240  # contact-sheet tile width in pixels
 _COLUMNS = 6  # tiles per row before a sheet wraps
@@ -28,8 +29,6 @@ _LABEL_HEIGHT = 22
 
 def sample_frames(start: int, end: int, every: int) -> list[int]:
     """Frames of a shot [start, end] to preview: its first frame, then every ``every``-th."""
-    if every < 1:
-        raise FramestyleError(f"--every {every}: must be 1 or more")
     return list(range(start, end + 1, every))
 
 
@@ -69,6 +68,9 @@ def preview(input_path: Path, out: Path, settings: Settings, every: int, width: 
             shot_file: Path | None = None, progress: Progress = no_progress) -> list[Path]:
     """Stylise every ``every``-th frame of each shot into ``out/preview`` and write contact sheets.
 
+    Each previewed frame gets a shot's first-frame treatment (no temporal chain) with its
+    shot's look, colour, strength and matte.
+
     Parameters
     ----------
     width : preview working width (default: the render's width)
@@ -80,27 +82,38 @@ def preview(input_path: Path, out: Path, settings: Settings, every: int, width: 
     out = Path(out)
     if out.exists() and not out.is_dir():
         raise FramestyleError(f"{out}: output path is a file, not a folder")
+    if every < 1:
+        raise FramestyleError(f"--every {every}: must be 1 or more")
     source = frames.open_source(Path(input_path))
     if width is not None:
-        settings = dataclasses.replace(settings, width=width)
-    look, size = prepare_frame_look(source, settings)
+        settings = dataclasses.replace(settings, width=width, shot_looks={
+            n: {**look, "width": width} for n, look in settings.shot_looks.items()})
+    net = check_render(source, settings)
     shots = find_shots(source, settings, shot_file)
     chosen = {i: shot for shot in shots for i in sample_frames(shot.start, shot.end, every)}
+    size = working_size(source.width, source.height, settings.width, net.min_side)
     progress("start", frames=len(chosen), shots=len(shots), done=0, size=size)
+    linear = source.bit_depth == 32
     folder = out / "preview"
     tiles: dict[int, list] = {shot.index: [] for shot in shots}
-    for index, frame in frames.iter_frames(source):
+    looks: dict[int, tuple] = {}  # shot -> (look, mattes)
+    for index, raw in frames.iter_frames(source):
         if index not in chosen:
             continue
         t0 = time.perf_counter()
-        content = resize(frame, size)
-        noise = start_noise((1, 3, size[1], size[0]), settings.seed, index)
-        image, stats = solve(look.net, fresh_problem(content, noise), look.style, settings)
-        styled = to_array(image)
+        shot = chosen[index]
+        shot_settings = settings.for_shot(shot.index)
+        size = working_size(source.width, source.height, shot_settings.width, net.min_side)
+        frame = prepare_frame(raw, size, shot_settings, linear)
+        if shot.index not in looks:  # the shot's first sampled frame is its first frame
+            looks[shot.index] = (build_look(net, shot_settings, frame.display), Mattes(source, shot_settings.matte))
+        look, mattes = looks[shot.index]
+        result, stats = stylise_alone(look, frame.content, index, shot_settings)
+        delivered = deliver(result, frame, shot_settings, mattes(index, shot_settings.matte_softness), False)
         name = frames.frame_name(source, index)
-        frames.write_frame(folder / name, styled)
-        tiles[chosen[index].index].append((Path(name).stem, content, styled))
-        progress("frame", index=index, shot=chosen[index].index, iterations=stats.iterations,
+        frames.write_frame(folder / name, delivered)
+        tiles[shot.index].append((Path(name).stem, frame.display, delivered))
+        progress("frame", index=index, shot=shot.index, iterations=stats.iterations,
                  seconds=time.perf_counter() - t0, skipped=False)
     sheets = []
     for shot in shots:

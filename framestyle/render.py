@@ -16,20 +16,22 @@ import time
 from collections import deque
 from dataclasses import dataclass, field
 from pathlib import Path
-from typing import Callable, Iterable, Sequence
+from typing import Callable, Sequence
 
-import cv2
 import numpy as np
 import torch
 
 from . import atomic, checkpoint, frames
+from .compose import finish, from_display, luma_image, soft_matte, to_display
 from .errors import FramestyleError
 from .flow import compute_flow, long_term_masks, reliability_mask, warp
+from .imaging import resize, to_array, to_tensor
+from .look import Look, build_look
 from .metrics import pair_warping_error
 from .network import FeatureNet, load_network
 from .settings import Settings
 from .shots import Shot, detect_shots, frame_signature, parse_shot_file
-from .solver import Problem, solve, style_targets
+from .solver import Problem, SolveStats, solve, solve_coarse_to_fine
 
 Progress = Callable[..., None]  # progress(event: str, **info); events listed in render()
 _NOISE = 0.1  # std of the noise added where a frame starts from its content frame
@@ -37,18 +39,6 @@ _NOISE = 0.1  # std of the noise added where a frame starts from its content fra
 
 def no_progress(event: str, **info) -> None:
     """The default progress callback: report nothing."""
-
-
-# --- conversions at the boundary between numpy frames and torch tensors ---------------------
-
-def to_tensor(image: np.ndarray) -> torch.Tensor:
-    """(H, W, 3) float32 array → (1, 3, H, W) tensor."""
-    return torch.from_numpy(np.ascontiguousarray(image.transpose(2, 0, 1)))[None]
-
-
-def to_array(image: torch.Tensor) -> np.ndarray:
-    """(1, 3, H, W) tensor → (H, W, 3) float32 array."""
-    return image[0].permute(1, 2, 0).contiguous().numpy()
 
 
 def working_size(width: int, height: int, settings_width: int, min_side: int) -> tuple[int, int]:
@@ -63,61 +53,10 @@ def working_size(width: int, height: int, settings_width: int, min_side: int) ->
     return w, h
 
 
-def resize(image: np.ndarray, size: tuple[int, int]) -> np.ndarray:
-    """Resize (H, W, C) to (w, h) = ``size``: area filter down, bicubic up."""
-    if image.shape[1] == size[0] and image.shape[0] == size[1]:
-        return image
-    shrink = size[0] < image.shape[1]
-    out = cv2.resize(image, size, interpolation=cv2.INTER_AREA if shrink else cv2.INTER_CUBIC)
-    return np.clip(out, 0.0, 1.0)
-
-
 def start_noise(shape: tuple[int, ...], seed: int, frame: int) -> torch.Tensor:
     """Seeded noise, a function of (seed, frame) only, so resumed frames get the same noise."""
     gen = torch.Generator().manual_seed(seed * 1_000_003 + frame)
     return torch.randn(shape, generator=gen) * _NOISE
-
-
-# --- the pieces a render needs, built once ---------------------------------------------------
-
-@dataclass
-class Look:
-    """The network and style targets for one render."""
-
-    net: FeatureNet
-    style: dict[str, torch.Tensor]
-
-
-def prepare_look(settings: Settings, size: tuple[int, int], net: FeatureNet | None = None) -> Look:
-    """Load the network and compute the target Gram matrices for frames of ``size`` (w, h).
-
-    The style image is resized so its longer side is ``style_scale`` × the working frame's
-    longer side: larger values give larger strokes.
-    """
-    if not settings.styles:
-        raise FramestyleError("no style image given")
-    net = net or load_network(settings.network, settings.weights)
-    layers = settings.style_layers or net.style_layers
-    net.check_layers([*layers, settings.content_layer or net.content_layer])
-    images = []
-    for path in settings.styles:
-        image = frames.read_image(Path(path))
-        scale = settings.style_scale * max(size) / max(image.shape[:2])
-        target = (max(1, round(image.shape[1] * scale)), max(1, round(image.shape[0] * scale)))
-        if min(target) < net.min_side:
-            raise FramestyleError(f"{path}: style image too small at style scale {settings.style_scale}")
-        images.append(to_tensor(resize(image, target)))
-    mix = settings.style_mix or (1.0,) * len(images)
-    if len(mix) != len(images):
-        raise FramestyleError(f"{len(mix)} style mix weights for {len(images)} style images")
-    return Look(net, style_targets(net, images, mix, layers))
-
-
-def prepare_frame_look(source: frames.FrameSource, settings: Settings) -> tuple[Look, tuple[int, int]]:
-    """The look and working size (w, h) for ``source``; checks network, width and styles."""
-    net = load_network(settings.network, settings.weights)
-    size = working_size(source.width, source.height, settings.width, net.min_side)
-    return prepare_look(settings, size, net), size
 
 
 # --- one frame -------------------------------------------------------------------------------
@@ -130,7 +69,7 @@ def temporal_problem(
 
     Parameters
     ----------
-    content : (H, W, 3) source frame at working size
+    content : (H, W, 3) source frame at working size, as the solver sees it
     earlier : (source (H, W, 3), stylised (H, W, 3)) of earlier frames, most recent first;
         the first is the previous frame
     noise : (1, 3, H, W) noise for pixels that start from the content frame
@@ -158,6 +97,72 @@ def temporal_problem(
 def fresh_problem(content: np.ndarray, noise: torch.Tensor) -> Problem:
     """A frame optimised on its own, starting from its content frame plus noise."""
     return Problem(to_tensor(content), to_tensor(content) + noise)
+
+
+@dataclass
+class Frame:
+    """One source frame at both sizes.
+
+    display : (H, W, 3) display-referred source frame at source size (sRGB-encoded if the
+        source is linear light)
+    content : (h, w, 3) what the solver sees at working size (luma only in "luma" mode)
+    """
+
+    display: np.ndarray
+    content: np.ndarray
+
+
+def prepare_frame(frame: np.ndarray, size: tuple[int, int], settings: Settings, linear: bool) -> Frame:
+    """Source frame → display-referred frame and the solver's working-size content."""
+    display = to_display(frame, linear)
+    content = resize(display, size)
+    if settings.colour == "luma":
+        content = luma_image(content, settings.luma_standard)
+    return Frame(display, content)
+
+
+def stylise_alone(look: Look, content: np.ndarray, index: int, settings: Settings) -> tuple[np.ndarray, SolveStats]:
+    """A frame stylised on its own (a shot's first frame, --no-temporal, previews)."""
+    noise = start_noise((1, 3, *content.shape[:2]), settings.seed, index)
+    image, stats = solve_coarse_to_fine(look.net, fresh_problem(content, noise), look.targets, settings)
+    return to_array(image), stats
+
+
+class Mattes:
+    """Per-frame mattes: a folder of matte frames, the input's alpha, or none."""
+
+    def __init__(self, source: frames.FrameSource, spec: str | None):
+        self.source, self.spec, self.folder = source, spec, None
+        if spec and spec != "alpha":
+            self.folder = frames.open_source(Path(spec))
+            if self.folder.count != source.count or (self.folder.width, self.folder.height) != (
+                    source.width, source.height):
+                raise FramestyleError(
+                    f"{spec}: mattes must match the input, one {source.width}×{source.height} "
+                    f"frame per input frame ({source.count}), found {self.folder.count} of "
+                    f"{self.folder.width}×{self.folder.height}"
+                )
+        elif spec == "alpha" and not source.has_alpha:
+            raise FramestyleError(f"{source.path}: --matte alpha, but the input has no alpha channel")
+
+    def __call__(self, index: int, softness: float) -> np.ndarray | None:
+        """The softened (H, W) matte of frame ``index``, or None without mattes."""
+        if self.spec is None:
+            return None
+        if self.folder is None:
+            raw = frames.read_alpha(self.source, index)
+        else:
+            raw = frames.read_frame(self.folder, index).mean(axis=2)
+        return soft_matte(raw, softness)
+
+
+def deliver(result: np.ndarray, frame: Frame, settings: Settings, matte: np.ndarray | None,
+            linear: bool) -> np.ndarray:
+    """The delivered frame at source size in the source's encoding."""
+    h, w = frame.display.shape[:2]
+    final = finish(resize(result, (w, h)), frame.display, colour=settings.colour,
+                   standard=settings.luma_standard, strength=settings.strength, matte=matte)
+    return from_display(final, linear)
 
 
 # --- shots -------------------------------------------------------------------------------------
@@ -217,10 +222,15 @@ def _file_hash(path: Path) -> str:
 
 
 def _inputs(source: frames.FrameSource, settings: Settings) -> dict:
+    """Fingerprints of everything a render reads: input frames, style images, mattes."""
+    variants = [settings] + [settings.for_shot(int(n)) for n in settings.shot_looks]
+    styles = {p for v in variants for p in v.styles}
+    mattes = {v.matte for v in variants if v.matte and v.matte != "alpha"}
     return {
         "input": str(source.path),
         "input_fingerprint": frames.fingerprint(source),
-        "styles": {p: _file_hash(Path(p)) for p in settings.styles},
+        "styles": {p: _file_hash(Path(p)) for p in sorted(styles)},
+        "mattes": {m: frames.fingerprint(frames.open_source(Path(m))) for m in sorted(mattes)},
     }
 
 
@@ -233,7 +243,7 @@ def _check_resume(manifest: dict, settings: Settings, inputs: dict, out: Path) -
             f"{out}: was rendered with different settings ({', '.join(changed)}); "
             f"use the same options, a new --out, or --restart to start over"
         )
-    for key, what in (("input_fingerprint", "input frames"), ("styles", "style image(s)")):
+    for key, what in (("input_fingerprint", "input frames"), ("styles", "style image(s)"), ("mattes", "mattes")):
         if manifest["inputs"][key] != inputs[key]:
             raise FramestyleError(
                 f"{out}: the {what} changed since this render started; use --restart to start over"
@@ -265,7 +275,7 @@ def render(
     shot_file : a user's shot list replacing detection (see :func:`shots.parse_shot_file`)
     restart : discard a previous render in ``out`` instead of resuming it
     progress : called as ``progress(event, **info)`` with events ``"start"`` (frames, shots,
-        done), ``"frame"`` (index, shot, iterations, seconds, skipped), ``"shot"``
+        done, size), ``"frame"`` (index, shot, iterations, seconds, skipped), ``"shot"``
         (summary) and ``"video"`` (path)
 
     Returns
@@ -276,16 +286,32 @@ def render(
     if out.exists() and not out.is_dir():
         raise FramestyleError(f"{out}: output path is a file, not a folder")
     source = frames.open_source(Path(input_path))
-    look, size = prepare_frame_look(source, settings)  # bad settings fail before OUT is touched
+    net = check_render(source, settings)  # bad settings fail before OUT is touched
     out.mkdir(parents=True, exist_ok=True)
     with checkpoint.FolderLock(out):
         log = _open_log(out)
         try:
-            return _render_locked(source, out, settings, look, size, shots, shot_file, restart, progress, log)
+            return _render_locked(source, out, settings, net, shots, shot_file, restart, progress, log)
         finally:
             for handler in list(log.handlers):
                 handler.close()
                 log.removeHandler(handler)
+
+
+def check_render(source: frames.FrameSource, settings: Settings) -> FeatureNet:
+    """Check every setting (and every shot's overrides) against ``source``; return the network."""
+    settings.check()
+    net = load_network(settings.network, settings.weights)
+    first = frames.read_frame(source, 0) if source.kind == "folder" else next(frames.iter_frames(source))[1]
+    variants = [settings] + [settings.for_shot(int(n)) for n in settings.shot_looks]
+    for variant in variants:
+        if (variant.network, variant.weights) != (settings.network, settings.weights):
+            raise FramestyleError("the network cannot change from shot to shot")
+        size = working_size(source.width, source.height, variant.width, net.min_side)
+        frame = prepare_frame(first, size, variant, source.bit_depth == 32)
+        build_look(net, variant, frame.display).targets(size)
+        Mattes(source, variant.matte)
+    return net
 
 
 def _open_log(out: Path) -> logging.Logger:
@@ -298,7 +324,13 @@ def _open_log(out: Path) -> logging.Logger:
     return log
 
 
-def _render_locked(source, out, settings, look, size, shot_sel, shot_file, restart, progress, log) -> RenderResult:
+def output_names(source: frames.FrameSource) -> list[str]:
+    """Output file names: EXR for float (linear-light) sources, PNG otherwise."""
+    ext = ".exr" if source.bit_depth == 32 else ".png"
+    return [frames.frame_name(source, i, ext) for i in range(source.count)]
+
+
+def _render_locked(source, out, settings, net, shot_sel, shot_file, restart, progress, log) -> RenderResult:
     inputs = _inputs(source, settings)
     manifest = checkpoint.read_manifest(out)
     if restart:
@@ -320,16 +352,18 @@ def _render_locked(source, out, settings, look, size, shot_sel, shot_file, resta
     log.info("shots: %s", ", ".join(f"{s.index}:{s.start}-{s.end}" for s in shot_list))
     wanted = parse_shot_selection(shot_sel, shot_list) if shot_sel else [s.index for s in shot_list]
 
-    names = [frames.frame_name(source, i) for i in range(source.count)]
-    total = sum(s.end - s.start + 1 for s in shot_list if s.index in wanted)
+    names = output_names(source)
+    total = sum(s.length for s in shot_list if s.index in wanted)
     done = sum(1 for s in shot_list if s.index in wanted for i in range(s.start, s.end + 1)
                if names[i] in manifest["frames"])
+    size = working_size(source.width, source.height, settings.width, net.min_side)
     progress("start", frames=total, shots=len(wanted), done=done, size=size)
     summaries = []
     for shot in shot_list:
         if shot.index not in wanted:
             continue
-        summary = _render_shot(source, out, settings, look, shot, size, names, manifest, progress, log)
+        job = _ShotJob(source, out, settings.for_shot(shot.index), net, shot, names, manifest, log)
+        summary = job.run(progress)
         summaries.append(summary)
         progress("shot", summary=summary)
     written = [out / names[i] for i in range(source.count) if names[i] in manifest["frames"]]
@@ -343,63 +377,73 @@ def _render_locked(source, out, settings, look, size, shot_sel, shot_file, resta
     return result
 
 
-def _render_shot(source, out, settings, look, shot, size, names, manifest, progress, log) -> ShotSummary:
+class _ShotJob:
     """Render one shot, skipping its finished frames and continuing its temporal chain."""
-    summary = ShotSummary(shot)
-    status = manifest["shot_status"].setdefault(str(shot.index), {"warp_error_sum": 0.0, "pairs": 0})
-    reach = max(settings.long_term) if settings.temporal else 0
-    first_todo = next((i for i in range(shot.start, shot.end + 1) if names[i] not in manifest["frames"]), None)
-    if first_todo is None:
-        summary.frames_done = shot.end - shot.start + 1
-        return _fill_summary(summary, manifest, names, status)
-    history: deque[tuple[int, np.ndarray]] = deque(maxlen=reach + 1)  # (index, working source)
-    read_from = max(shot.start, first_todo - reach)
-    bit_depth = 16 if source.bit_depth == 16 else 8
-    for index, frame in frames.iter_frames(source, read_from, shot.end + 1):
-        content = resize(frame, size)
-        if index < first_todo or names[index] in manifest["frames"]:
-            history.append((index, content))
-            progress("frame", index=index, shot=shot.index, skipped=True)
-            continue
+
+    def __init__(self, source, out, settings, net, shot, names, manifest, log):
+        self.source, self.out, self.settings, self.shot = source, out, settings, shot
+        self.names, self.manifest, self.log = names, manifest, log
+        self.linear = source.bit_depth == 32
+        self.bit_depth = 16 if source.bit_depth in (16, 32) else 8
+        self.size = working_size(source.width, source.height, settings.width, net.min_side)
+        self.net = net
+        self.status = manifest["shot_status"].setdefault(str(shot.index), {"warp_error_sum": 0.0, "pairs": 0})
+
+    def run(self, progress: Progress) -> ShotSummary:
+        shot, settings, names = self.shot, self.settings, self.names
+        first_todo = next((i for i in range(shot.start, shot.end + 1) if names[i] not in self.manifest["frames"]), None)
+        if first_todo is None:
+            return _fill_summary(ShotSummary(shot), self.manifest, names, self.status)
+        reference = None
+        if settings.colour == "match":  # the style recoloured to the shot's first frame
+            reference = to_display(frames.read_frame(self.source, shot.start), self.linear)
+        look = build_look(self.net, settings, reference)
+        mattes = Mattes(self.source, settings.matte)
+        reach = max(settings.long_term) if settings.temporal else 0
+        history: deque[tuple[int, np.ndarray]] = deque(maxlen=reach + 1)  # (index, working content)
+        for index, raw in frames.iter_frames(self.source, max(shot.start, first_todo - reach), shot.end + 1):
+            frame = prepare_frame(raw, self.size, settings, self.linear)
+            if index >= first_todo and names[index] not in self.manifest["frames"]:
+                self._frame(index, frame, look, mattes, dict(history), progress)
+            else:
+                progress("frame", index=index, shot=shot.index, skipped=True)
+            history.append((index, frame.content))
+        checkpoint.prune_state(self.out, shot.index, None)
+        summary = _fill_summary(ShotSummary(shot), self.manifest, names, self.status)
+        self.log.info("shot %d done: %d frames, %.1f s, %.1f iterations/frame, warping error %.5f",
+                      shot.index, summary.frames_done, summary.seconds,
+                      summary.iterations / max(1, summary.frames_done), summary.warp_error)
+        return summary
+
+    def _frame(self, index, frame, look, mattes, sources, progress) -> None:
         t0 = time.perf_counter()
-        noise = start_noise((1, 3, size[1], size[0]), settings.seed, index)
-        earlier = []
-        if settings.temporal:
-            sources = dict(history)
-            for j in settings.long_term:
-                if index - j in sources:
-                    stylised = checkpoint.load_state(out, shot.index, index - j)
-                    earlier.append((sources[index - j], stylised))
-        problem = temporal_problem(content, earlier, noise, settings.flow_preset) if earlier \
-            else fresh_problem(content, noise)
-        image, stats = solve(look.net, problem, look.style, settings)
-        result = to_array(image)
-        if settings.temporal and index > shot.start:
-            prev = checkpoint.load_state(out, shot.index, index - 1)
-            status["warp_error_sum"] += pair_warping_error(prev, result, sources[index - 1], content,
-                                                           settings.flow_preset)
-            status["pairs"] += 1
-        checkpoint.save_state(out, shot.index, index, result)
-        target = out / names[index]
+        settings, out, shot = self.settings, self.out, self.shot.index
+        earlier = [(sources[index - j], checkpoint.load_state(out, shot, index - j))
+                   for j in sorted(settings.long_term) if settings.temporal and index - j in sources]
+        if earlier:
+            noise = start_noise((1, 3, self.size[1], self.size[0]), settings.seed, index)
+            problem = temporal_problem(frame.content, earlier, noise, settings.flow_preset)
+            image, stats = solve(look.net, problem, look.targets(self.size), settings)
+            result = to_array(image)
+            self.status["warp_error_sum"] += pair_warping_error(
+                earlier[0][1], result, earlier[0][0], frame.content, settings.flow_preset)
+            self.status["pairs"] += 1
+        else:
+            result, stats = stylise_alone(look, frame.content, index, settings)
+        checkpoint.save_state(out, shot, index, result)
+        target = out / self.names[index]
         if not target.exists():  # a frame whose manifest entry was lost is not rewritten
-            frames.write_frame(target, resize(result, (source.width, source.height)), bit_depth)
+            delivered = deliver(result, frame, settings, mattes(index, settings.matte_softness), self.linear)
+            frames.write_frame(target, delivered, self.bit_depth)
         seconds = time.perf_counter() - t0
-        manifest["frames"][names[index]] = {"shot": shot.index, "iterations": stats.iterations,
-                                            "seconds": round(seconds, 3)}
-        checkpoint.write_manifest(out, manifest)
-        checkpoint.prune_state(out, shot.index, index - reach)
-        history.append((index, content))
-        log.info("frame %s shot %d: %d iterations, %.1f s, style %.4f content %.4f temporal %.5f",
-                 names[index], shot.index, stats.iterations, seconds, stats.style, stats.content,
-                 stats.temporal)
-        progress("frame", index=index, shot=shot.index, iterations=stats.iterations,
-                 seconds=seconds, skipped=False)
-    checkpoint.prune_state(out, shot.index, None)
-    summary = _fill_summary(summary, manifest, names, status)
-    log.info("shot %d done: %d frames, %.1f s, %.1f iterations/frame, warping error %.5f",
-             shot.index, summary.frames_done, summary.seconds,
-             summary.iterations / max(1, summary.frames_done), summary.warp_error)
-    return summary
+        self.manifest["frames"][self.names[index]] = {
+            "shot": shot, "iterations": stats.iterations, "seconds": round(seconds, 3)}
+        checkpoint.write_manifest(out, self.manifest)
+        checkpoint.prune_state(out, shot, index - max(settings.long_term))
+        self.log.info("frame %s shot %d: %d iterations, %.1f s, style %.4f content %.4f temporal %.5f",
+                      self.names[index], shot, stats.iterations, seconds, stats.style, stats.content,
+                      stats.temporal)
+        progress("frame", index=index, shot=shot, iterations=stats.iterations, seconds=seconds, skipped=False)
 
 
 def _fill_summary(summary: ShotSummary, manifest: dict, names: list[str], status: dict) -> ShotSummary:

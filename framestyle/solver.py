@@ -16,16 +16,17 @@ Example
 
 from __future__ import annotations
 
-from dataclasses import dataclass, field
-from typing import Sequence
+from dataclasses import dataclass, field, replace
+from typing import Callable, Sequence
 
 import torch
 
+from .imaging import resize_tensor
 from .losses import content_loss, gram_matrix, style_loss, temporal_loss, total_variation
 from .network import FeatureNet
 from .settings import Settings
 
-_CHUNK = 10  # iterations between convergence checks
+_CHUNK = 5  # iterations between convergence checks (the tolerance is stated per 10)
 
 
 @dataclass
@@ -137,8 +138,43 @@ def solve(
         opt.param_groups[0]["max_iter"] = min(_CHUNK, cap - calls)
         opt.step(closure)
         loss = float(terms["total"])  # the last evaluation (step() returns the chunk's first)
-        if previous is not None and previous - loss < settings.tolerance * abs(previous):
+        if previous is not None and previous - loss < settings.tolerance * _CHUNK / 10 * abs(previous):
             break
         previous = loss
     stats = SolveStats(calls, float(terms["style"]), float(terms["content"]), float(terms["temporal"]))
     return x.detach().clamp(0.0, 1.0), stats
+
+
+def solve_coarse_to_fine(
+    net: FeatureNet, problem: Problem, targets: Callable[[tuple[int, int]], dict[str, torch.Tensor]],
+    settings: Settings, iterations: int | None = None,
+) -> tuple[torch.Tensor, SolveStats]:
+    """Solve at 1/2**(scales−1) of the size first, then upsample and refine at each doubling.
+
+    Coarse-to-fine optimisation (Gatys et al. 2017, "Controlling Perceptual Factors in Neural
+    Style Transfer", Sec. 6) places large structures cheaply at low resolution, which makes
+    large frames practical on a CPU. Frames with temporal terms already start from the warped
+    previous frame at full resolution, so they are solved at full size only.
+
+    Parameters
+    ----------
+    targets : style targets for a frame size (w, h), e.g. :meth:`framestyle.look.Look.targets`
+    settings : ``scales`` levels (1 = plain :func:`solve`)
+
+    Returns
+    -------
+    image, stats (iterations summed over the levels)
+    """
+    h, w = problem.content.shape[-2:]
+    levels = 1 if problem.temporal else settings.scales
+    sizes = [(round(w / 2**k), round(h / 2**k)) for k in reversed(range(levels))]
+    sizes = [s for s in sizes[:-1] if min(s) >= net.min_side] + [(w, h)]
+    image, used = None, 0
+    for size in sizes:
+        init = resize_tensor(problem.init if image is None else image, size)
+        level = Problem(resize_tensor(problem.content, size), init)
+        if size == (w, h):
+            level = Problem(problem.content, init, problem.temporal)
+        image, stats = solve(net, level, targets(size), settings, iterations)
+        used += stats.iterations
+    return image, replace(stats, iterations=used)

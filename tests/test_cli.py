@@ -2,7 +2,6 @@
 
 import json
 import subprocess
-from pathlib import Path
 
 import cv2
 import imageio_ffmpeg

@@ -2,10 +2,8 @@
 
 import json
 import os
-import signal
 import subprocess
 import sys
-import time
 from pathlib import Path
 
 import cv2
@@ -14,10 +12,12 @@ import pytest
 
 from framestyle import checkpoint, frames
 from framestyle.errors import FramestyleError
-from framestyle.render import fresh_problem, prepare_look, render, resize, start_noise, to_array
-from framestyle.solver import solve
+from framestyle.imaging import resize
+from framestyle.look import build_look
+from framestyle.network import load_network
+from framestyle.render import render, stylise_alone
 
-from conftest import ROOT, STYLE, fast_settings
+from conftest import STYLE, fast_settings, kill_and_resume
 
 
 def _pngs(folder: Path) -> dict[str, bytes]:
@@ -56,11 +56,10 @@ def test_each_shot_starts_fresh_at_a_cut(full_render, small_clip):
     out, _, _ = full_render
     settings = fast_settings()
     source = frames.open_source(small_clip)
-    look = prepare_look(settings, (128, 72))
+    look = build_look(load_network(settings.network), settings)
     content = resize(frames.read_frame(source, 10), (128, 72))
-    image, _ = solve(look.net, fresh_problem(content, start_noise((1, 3, 72, 128), settings.seed, 10)),
-                     look.style, settings)
-    alone = np.round(to_array(image) * 255).astype(np.uint8)
+    image, _ = stylise_alone(look, content, 10, settings)
+    alone = np.round(image * 255).astype(np.uint8)
     rendered = cv2.imread(str(out / "take_011.png"))[..., ::-1]
     assert np.array_equal(alone, rendered)
 
@@ -120,38 +119,5 @@ def test_a_live_lock_refuses_a_second_render_and_a_stale_one_is_taken_over(small
 
 
 def test_sigkill_mid_shot_then_rerun_finishes_with_nothing_lost_or_recomputed(small_clip, tmp_path):
-    slow = ["--width", "128", "--iterations", "25", "--tolerance", "0", "--shots", "1"]
-    cmd = [sys.executable, "-m", "framestyle", "stylize", str(small_clip), "--style", str(STYLE),
-           "--out", str(tmp_path / "killed"), "-q", *slow]
-    env = {**os.environ, "PYTHONPATH": str(ROOT)}
-    proc = subprocess.Popen(cmd, env=env, stdout=subprocess.DEVNULL, stderr=subprocess.PIPE)
-    manifest = tmp_path / "killed" / checkpoint.MANIFEST
-    deadline = time.time() + 240
-    while time.time() < deadline:
-        try:
-            done = len(json.loads(manifest.read_text())["frames"])
-        except (OSError, ValueError):
-            done = 0
-        if done >= 4:
-            break
-        time.sleep(0.05)
-    os.kill(proc.pid, signal.SIGKILL)
-    proc.wait()
-    killed = tmp_path / "killed"
-    finished = json.loads(manifest.read_text())["frames"]
-    assert 4 <= len(finished) < 10, "the kill should land inside shot 1"
-    for path in killed.glob("*.png"):
-        assert cv2.imread(str(path)) is not None, f"{path.name} is not a valid PNG"
-    stamps = {name: (killed / name).stat().st_mtime_ns for name in finished}
-
-    rerun = subprocess.run(cmd, env=env, capture_output=True, text=True, timeout=600)
-    assert rerun.returncode == 0, rerun.stderr
-    assert {name: (killed / name).stat().st_mtime_ns for name in finished} == stamps
-    log = (killed / "render.log").read_text()
-    assert "resuming" in log
-    for name in finished:  # each finished frame was solved exactly once across both runs
-        assert log.count(f"frame {name} ") == 1
-
-    whole = tmp_path / "whole"
-    subprocess.run([*cmd[:8], str(whole), "-q", *slow], env=env, check=True, timeout=600)
-    assert _pngs(killed) == _pngs(whole)  # bit-identical to an uninterrupted run
+    kill_and_resume(small_clip, tmp_path, ["--style", str(STYLE), "--width", "128", "--iterations", "25",
+                                           "--tolerance", "0", "--shots", "1"])

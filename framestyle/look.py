@@ -1,0 +1,79 @@
+"""A look: the perceptual network plus the style images' target Gram matrices, per frame size.
+
+Style images are resized relative to the frame being solved — their longer side becomes
+``style_scale`` × the frame's longer side — so stroke size is a property of the look, not of
+the working resolution, and coarse-to-fine levels see proportionally smaller strokes.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass, field
+from pathlib import Path
+
+import numpy as np
+import torch
+
+from . import frames
+from .compose import luma_image
+from .color import match_histograms
+from .errors import FramestyleError
+from .network import FeatureNet
+from .settings import Settings
+from .solver import style_targets
+from .imaging import resize, to_tensor
+
+
+@dataclass
+class Look:
+    """Network, style images (H, W, 3 in [0, 1], colour-processed) and their mix weights."""
+
+    net: FeatureNet
+    images: list[np.ndarray]
+    mix: tuple[float, ...]
+    layers: tuple[str, ...]
+    style_scale: float
+    _targets: dict = field(default_factory=dict, repr=False)
+
+    def targets(self, size: tuple[int, int]) -> dict[str, torch.Tensor]:
+        """Target Gram matrices for solving a frame of ``size`` (w, h); cached per size."""
+        if size not in self._targets:
+            tensors = []
+            for image in self.images:
+                scale = self.style_scale * max(size) / max(image.shape[:2])
+                target = (max(1, round(image.shape[1] * scale)), max(1, round(image.shape[0] * scale)))
+                if min(target) < self.net.min_side:
+                    raise FramestyleError(
+                        f"style image too small for a {size[0]}×{size[1]} frame at style scale "
+                        f"{self.style_scale}; use a larger --style-scale"
+                    )
+                tensors.append(to_tensor(resize(image, target)))
+            self._targets[size] = style_targets(self.net, tensors, self.mix, self.layers)
+        return self._targets[size]
+
+
+def build_look(net: FeatureNet, settings: Settings, reference: np.ndarray | None = None) -> Look:
+    """Read the style images of ``settings`` and prepare them for its palette choice.
+
+    Parameters
+    ----------
+    net : the perceptual network
+    settings : styles, mix, scale, colour and layers
+    reference : (H, W, 3) a content frame; needed for ``colour="match"``, whose style images
+        are recoloured to its histogram (Gatys et al. 2017, Sec. 5.2)
+    """
+    if not settings.styles:
+        raise FramestyleError("no style image given (--style or styles in a look file)")
+    layers = tuple(settings.style_layers or net.style_layers)
+    net.check_layers([*layers, settings.content_layer or net.content_layer])
+    images = []
+    for path in settings.styles:
+        image = frames.read_image(Path(path))
+        if settings.colour == "luma":
+            image = luma_image(image, settings.luma_standard)
+        elif settings.colour == "match":
+            if reference is None:
+                raise ValueError("colour 'match' needs a reference frame")
+            image = match_histograms(image, reference)
+        images.append(image)
+    mix = tuple(settings.style_mix) or (1.0,) * len(images)
+    return Look(net, images, mix, layers, settings.style_scale)

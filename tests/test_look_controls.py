@@ -1,0 +1,172 @@
+"""Look controls a colourist expects: colour preservation, strength, mattes, look files,
+coarse-to-fine, bit depth — each on a real render, and each surviving an interrupted render."""
+
+import json
+from pathlib import Path
+
+import cv2
+import numpy as np
+import pytest
+
+from framestyle import checkpoint, frames
+from framestyle.color import rgb_to_ycbcr
+from framestyle.compose import finish
+from framestyle.errors import FramestyleError
+from framestyle.render import render
+from framestyle.settings import Settings, load_look
+
+from conftest import SAMPLE, STYLE, fast_settings, kill_and_resume
+
+INK = SAMPLE / "style_ink.png"
+
+
+def _read(path: Path) -> np.ndarray:
+    return cv2.imread(str(path), cv2.IMREAD_UNCHANGED)[..., ::-1]
+
+
+def _take(clip: Path, out: Path, n: int) -> tuple[np.ndarray, np.ndarray]:
+    name = f"take_{n:03d}.png"
+    return _read(clip / name).astype(np.float32) / 255, _read(out / name).astype(np.float32) / 255
+
+
+def test_strength_zero_gives_back_the_footage(small_clip, tmp_path):
+    render(small_clip, tmp_path, fast_settings(strength=0.0), shots="2")
+    for n in range(11, 21):
+        src, out = _take(small_clip, tmp_path, n)
+        assert np.array_equal(src, out)
+
+
+def test_strength_mixes_linearly_between_footage_and_style():
+    src = np.random.default_rng(0).random((8, 8, 3)).astype(np.float32)
+    styled = np.random.default_rng(1).random((8, 8, 3)).astype(np.float32)
+    half = finish(styled, src, strength=0.5)
+    np.testing.assert_allclose(half, (src + styled) / 2, atol=1e-6)
+
+
+def test_luma_mode_keeps_the_footages_chroma(small_clip, tmp_path):
+    # Gatys et al. 2017, luminance-only transfer: the output's chroma is the content frame's;
+    # chroma per ITU-R BT.709 full-range Y'CbCr. Pixels pushed out of gamut are clipped, so
+    # we require the bulk of pixels to agree within 8-bit quantisation.
+    render(small_clip, tmp_path, fast_settings(colour="luma", luma_standard="bt709"), shots="2")
+    src, out = _take(small_clip, tmp_path, 12)
+    diff = np.abs(rgb_to_ycbcr(src, "bt709")[..., 1:] - rgb_to_ycbcr(out, "bt709")[..., 1:])
+    assert np.mean(diff <= 1.5 / 255) > 0.95
+    assert np.abs(rgb_to_ycbcr(src, "bt709")[..., 0] - rgb_to_ycbcr(out, "bt709")[..., 0]).mean() > 0.02
+
+
+def test_match_mode_brings_the_palette_towards_the_footage(small_clip, tmp_path):
+    # Gatys et al. 2017, colour histogram matching of the style image to the content.
+    render(small_clip, tmp_path / "style", fast_settings(), shots="2")
+    render(small_clip, tmp_path / "match", fast_settings(colour="match"), shots="2")
+    src, styled = _take(small_clip, tmp_path / "style", 15)
+    _, matched = _take(small_clip, tmp_path / "match", 15)
+    def gap(img):
+        return np.abs(img.reshape(-1, 3).mean(0) - src.reshape(-1, 3).mean(0)).sum()
+    assert gap(matched) < gap(styled)
+
+
+def test_a_matte_limits_where_the_style_applies(small_clip, tmp_path):
+    mattes = tmp_path / "mattes"
+    mattes.mkdir()
+    matte = np.zeros((72, 128), np.uint8)
+    matte[:, 64:] = 255  # stylise the right half only
+    for n in range(1, 21):
+        cv2.imwrite(str(mattes / f"m_{n:03d}.png"), matte)
+    out = tmp_path / "out"
+    render(small_clip, out, fast_settings(matte=str(mattes), matte_softness=0.0), shots="2")
+    src, styled = _take(small_clip, out, 14)
+    assert np.array_equal(src[:, :64], styled[:, :64])
+    assert np.abs(src[:, 64:] - styled[:, 64:]).mean() > 0.03
+
+
+def test_mattes_that_do_not_match_the_input_are_refused(small_clip, tmp_path):
+    mattes = tmp_path / "mattes"
+    mattes.mkdir()
+    cv2.imwrite(str(mattes / "m_001.png"), np.zeros((72, 128), np.uint8))
+    with pytest.raises(FramestyleError, match="mattes must match"):
+        render(small_clip, tmp_path / "out", fast_settings(matte=str(mattes)))
+    assert not (tmp_path / "out").exists()
+
+
+def test_sixteen_bit_frames_stay_sixteen_bit(tmp_path):
+    clip = tmp_path / "deep"
+    clip.mkdir()
+    ramp = np.linspace(0, 65535, 128 * 72 * 3).reshape(72, 128, 3).astype(np.uint16)
+    for n in range(1, 4):
+        cv2.imwrite(str(clip / f"ramp_{n:03d}.png"), np.roll(ramp, n, axis=1))
+    render(clip, tmp_path / "out", fast_settings(iterations=3))
+    out = cv2.imread(str(tmp_path / "out" / "ramp_002.png"), cv2.IMREAD_UNCHANGED)
+    assert out.dtype == np.uint16
+    assert len(np.unique(out)) > 256  # more levels than 8 bits could hold
+
+
+def test_exr_in_gives_exr_out_in_linear_light(tmp_path):
+    # EXR is linear light; the network sees sRGB (IEC 61966-2-1) and the output is decoded
+    # back, so with strength 0 the delivered frames equal the input within half precision.
+    clip = tmp_path / "exr"
+    rng = np.random.default_rng(3)
+    base = cv2.resize(rng.random((9, 16, 3)).astype(np.float32), (128, 72), interpolation=cv2.INTER_CUBIC)
+    for n in range(1, 4):
+        frames.write_frame(clip / f"plate_{n:03d}.exr", np.clip(np.roll(base, n, axis=1), 0, 1) ** 2.2, 32)
+    render(clip, tmp_path / "out", fast_settings(iterations=3, strength=0.0))
+    source = frames.open_source(clip)
+    result = frames.open_source(tmp_path / "out")
+    assert result.count == 3 and result.files[0].endswith(".exr")
+    np.testing.assert_allclose(frames.read_frame(result, 1), frames.read_frame(source, 1), atol=2e-3)
+
+
+def test_a_look_file_sets_everything_and_per_shot_looks(small_clip, tmp_path):
+    look = tmp_path / "grade.toml"
+    (tmp_path / "paint.png").write_bytes(STYLE.read_bytes())
+    look.write_text('styles = ["paint.png"]\nwidth = 128\niterations = 6\nlong_term = [1, 4]\n'
+                    '[shots.2]\nstrength = 0.0\n')
+    values = load_look(look)
+    assert values["styles"] == [str((tmp_path / "paint.png").resolve())]
+    out = tmp_path / "out"
+    render(small_clip, out, Settings.from_dict(values))
+    src1, out1 = _take(small_clip, out, 3)
+    src2, out2 = _take(small_clip, out, 14)
+    assert np.abs(src1 - out1).mean() > 0.03  # shot 1: full style
+    assert np.array_equal(src2, out2)  # shot 2: strength 0 from its own look
+    saved = json.loads((out / "settings.json").read_text())
+    assert saved["shot_looks"] == {"2": {"strength": 0.0}}
+
+
+def test_a_bad_look_file_names_the_file_and_the_problem(tmp_path):
+    look = tmp_path / "bad.toml"
+    look.write_text('strength = 2.0\n')
+    with pytest.raises(FramestyleError, match="bad.toml: strength 2.0 is outside 0..1"):
+        load_look(look)
+    look.write_text('[shots.2]\nsparkle = 1\n')
+    with pytest.raises(FramestyleError, match="sparkle"):
+        load_look(look)
+
+
+def test_coarse_to_fine_solves_a_coarse_level_first_on_a_shots_first_frame(tmp_path):
+    # Gatys et al. 2017: optimise at half size, upsample, refine. Warm-started frames already
+    # start from the warped previous frame, so only a shot's first frame uses both levels.
+    clip = tmp_path / "big"
+    clip.mkdir()
+    for n in (1, 2):
+        image = cv2.imread(str(SAMPLE / "frames" / f"drift_{n:04d}.png"))
+        cv2.imwrite(str(clip / f"big_{n}.png"), cv2.resize(image, (256, 144), interpolation=cv2.INTER_AREA))
+    render(clip, tmp_path / "out", fast_settings(width=256, scales=2, iterations=4, tolerance=0.0))
+    done = json.loads((tmp_path / "out" / checkpoint.MANIFEST).read_text())["frames"]
+    assert done["big_1.png"]["iterations"] == 8  # 4 at 128×72, then 4 at 256×144
+    assert done["big_2.png"]["iterations"] == 4
+
+
+def test_every_control_survives_sigkill_and_resume(small_clip, tmp_path):
+    mattes = tmp_path / "mattes"
+    mattes.mkdir()
+    for n in range(1, 21):
+        matte = np.zeros((72, 128), np.uint8)
+        cv2.circle(matte, (40 + 3 * n, 36), 30, 255, -1)  # a matte that follows the frames
+        cv2.imwrite(str(mattes / f"m_{n:03d}.png"), matte)
+    look = tmp_path / "look.toml"
+    look.write_text(
+        f'styles = ["{STYLE}", "{INK}"]\nstyle_mix = [0.7, 0.3]\ncolour = "luma"\nstrength = 0.8\n'
+        f'matte = "{mattes}"\nscales = 2\nstyle_scale = 1.5\nwidth = 128\niterations = 25\n'
+        f'tolerance = 0.0\nlong_term = [1, 4]\n[shots.1]\ncolour = "match"\n'
+    )
+    kill_and_resume(small_clip, tmp_path, ["--look", str(look), "--shots", "1"])
