@@ -21,7 +21,10 @@ import torch
 
 from common import SAMPLE_FRAMES, SAMPLE_STYLE, target_line
 from framestyle import frames
-from framestyle.render import fresh_problem, prepare_look, resize, start_noise
+from framestyle.imaging import resize
+from framestyle.look import build_look
+from framestyle.network import load_network
+from framestyle.render import fresh_problem, start_noise
 from framestyle.settings import Settings
 from framestyle.solver import solve
 
@@ -44,18 +47,19 @@ def main() -> None:
 
     size = (args.width, args.height)
     settings = Settings(styles=(str(SAMPLE_STYLE),), tolerance=0.0)  # tolerance 0: run exactly N
-    look = prepare_look(settings, size)
+    look = build_look(load_network(settings.network), settings)
+    targets = look.targets(size)
     source = frames.open_source(SAMPLE_FRAMES)
     content = resize(frames.read_frame(source, 0), size)
     problem = fresh_problem(content, start_noise((1, 3, size[1], size[0]), settings.seed, 0))
-    layers = list(dict.fromkeys([*look.style, settings.content_layer or look.net.content_layer]))
+    layers = list(dict.fromkeys([*targets, settings.content_layer or look.net.content_layer]))
 
     # Warm-up: first calls pay for allocator growth and kernel selection.
-    solve(look.net, problem, look.style, settings, iterations=2)
+    solve(look.net, problem, targets, settings, iterations=2)
     bare_pass(look.net, problem.init, layers)
 
     t0 = time.perf_counter()
-    _, stats = solve(look.net, problem, look.style, settings, iterations=args.iterations)
+    _, stats = solve(look.net, problem, targets, settings, iterations=args.iterations)
     per_iteration = (time.perf_counter() - t0) / stats.iterations
 
     t0 = time.perf_counter()

@@ -32,7 +32,8 @@ import numpy as np
 
 from common import OUT, SAMPLE_FRAMES, SAMPLE_STYLE, print_progress, target_line
 from framestyle import atomic, checkpoint, frames
-from framestyle.render import render, resize
+from framestyle.imaging import resize
+from framestyle.render import render
 from framestyle.report import ShotStability, overall, stability
 from framestyle.settings import Settings
 
