@@ -64,20 +64,20 @@ class _Bars:
             )
             self.progress.start()
             self.total = self.progress.add_task("all frames", total=info["frames"])
-            self.shot_task, self.shot = None, None
+            self.shot_task = None
             w, h = info["size"]
             self.progress.console.print(
                 f"{info['frames']} frames in {info['shots']} shot(s), working size {w}×{h}"
                 + (f", {info['done']} already finished" if info["done"] else "")
             )
+        elif event == "shot_start":
+            if self.shot_task is not None:
+                self.progress.remove_task(self.shot_task)
+            self.shot_task = self.progress.add_task(f"shot {info['shot']}", total=info["frames"])
         elif event == "frame":
-            if info["shot"] != self.shot:
-                if self.shot_task is not None:
-                    self.progress.remove_task(self.shot_task)
-                self.shot = info["shot"]
-                self.shot_task = self.progress.add_task(f"shot {self.shot}", total=None)
             self.progress.advance(self.total)
-            self.progress.advance(self.shot_task)
+            if self.shot_task is not None:
+                self.progress.advance(self.shot_task)
         elif event == "shot":
             s = info["summary"]
             n = s.shot.end - s.shot.start + 1
@@ -161,6 +161,11 @@ def stylize(
                       restart=restart, progress=bars)
     finally:
         bars.stop()
+    _report(result, quiet)
+
+
+def _report(result, quiet: bool) -> None:
+    """What a finished (or partial) render prints: summary table, where the frames went."""
     if not quiet and result.shots:
         typer.echo(_summary_table(result.shots))
     typer.echo(f"{len(result.frames)} stylised frames in {result.out}")
@@ -198,6 +203,33 @@ def main() -> None:
         sys.exit(130)
 
 
+@app.command()
+def resume(
+    out: Annotated[Path, typer.Argument(help="Output folder of a render started with `stylize`.")],
+    shots: Annotated[Optional[str], typer.Option(help="Render only these shots, e.g. 2,4-5.")] = None,
+    quiet: Annotated[bool, typer.Option("--quiet", "-q", help="No progress display.")] = False,
+) -> None:
+    """Continue a render from its manifest alone (input, settings and shot list are in it).
+
+    Lets another process, or another machine with the same files, take over shots.
+    """
+    from . import checkpoint
+    from . import render as render_mod
+
+    _check_path(out, "render folder")
+    manifest = _run(checkpoint.read_manifest, out)
+    if manifest is None:
+        _fail(f"{out}: no {checkpoint.MANIFEST}; start the render with `framestyle stylize`")
+    settings = _run(Settings.from_dict, manifest["settings"], str(out / checkpoint.MANIFEST))
+    bars = _Bars(quiet)
+    try:
+        result = _run(render_mod.render, Path(manifest["inputs"]["input"]), out, settings,
+                      shots=shots, progress=bars)
+    finally:
+        bars.stop()
+    _report(result, quiet)
+
+
 @app.command("shots")
 def shots_command(
     input: Annotated[Path, typer.Argument(help="Folder of numbered frames, or a video file.")],
@@ -205,16 +237,23 @@ def shots_command(
     fps: Annotated[Optional[float], typer.Option(help="Frame rate for timecode (default: the video's, or 24).")] = None,
     cut_threshold: Annotated[float, typer.Option(help="Colour distance (0..1) that makes a cut.")] = Settings.cut_threshold,
     gradual_threshold: Annotated[float, typer.Option(help="End-to-end colour distance that makes a fade or dissolve.")] = Settings.gradual_threshold,
+    add_cut: Annotated[Optional[list[int]], typer.Option(help="Frame (0-based) that starts a shot; repeatable.")] = None,
+    remove_cut: Annotated[Optional[list[int]], typer.Option(help="Shot start (0-based) to join to the shot before; repeatable.")] = None,
 ) -> None:
-    """List the shots of INPUT with first/last frame and SMPTE timecode."""
+    """List the shots of INPUT with first/last frame and SMPTE timecode.
+
+    With --add-cut/--remove-cut and --json the corrected list can be saved and given to
+    `framestyle stylize --shot-list`.
+    """
     from . import frames
     from .render import find_shots
-    from .shots import format_shot_table
+    from .shots import apply_overrides, format_shot_table
 
     _check_path(input, "input")
     source = _run(frames.open_source, input)
     settings = Settings(cut_threshold=cut_threshold, gradual_threshold=gradual_threshold)
     found = _run(find_shots, source, settings, None)
+    found = _run(apply_overrides, found, add_cut or (), remove_cut or ())
     if json_out:
         typer.echo(json.dumps([s.to_dict() for s in found]))
     else:

@@ -275,8 +275,8 @@ def render(
     shot_file : a user's shot list replacing detection (see :func:`shots.parse_shot_file`)
     restart : discard a previous render in ``out`` instead of resuming it
     progress : called as ``progress(event, **info)`` with events ``"start"`` (frames, shots,
-        done, size), ``"frame"`` (index, shot, iterations, seconds, skipped), ``"shot"``
-        (summary) and ``"video"`` (path)
+        done, size), ``"shot_start"`` (shot, frames), ``"frame"`` (index, shot, iterations,
+        seconds, skipped), ``"shot"`` (summary) and ``"video"`` (path)
 
     Returns
     -------
@@ -399,6 +399,7 @@ class _ShotJob:
             reference = to_display(frames.read_frame(self.source, shot.start), self.linear)
         look = build_look(self.net, settings, reference)
         mattes = Mattes(self.source, settings.matte)
+        progress("shot_start", shot=shot.index, frames=shot.length)
         reach = max(settings.long_term) if settings.temporal else 0
         history: deque[tuple[int, np.ndarray]] = deque(maxlen=reach + 1)  # (index, working content)
         for index, raw in frames.iter_frames(self.source, max(shot.start, first_todo - reach), shot.end + 1):
@@ -409,6 +410,8 @@ class _ShotJob:
                 progress("frame", index=index, shot=shot.index, skipped=True)
             history.append((index, frame.content))
         checkpoint.prune_state(self.out, shot.index, None)
+        self.status["done"] = True
+        checkpoint.write_manifest(self.out, self.manifest)
         summary = _fill_summary(ShotSummary(shot), self.manifest, names, self.status)
         self.log.info("shot %d done: %d frames, %.1f s, %.1f iterations/frame, warping error %.5f",
                       shot.index, summary.frames_done, summary.seconds,

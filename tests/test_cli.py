@@ -35,6 +35,17 @@ def test_stylize_writes_frames_and_says_where(small_clip, tmp_path):
     assert f"10 stylised frames in {tmp_path / 'o'}" in out
 
 
+def test_resume_renders_the_remaining_shots_from_the_manifest_alone(small_clip, tmp_path):
+    out = tmp_path / "o"
+    assert _run("stylize", small_clip, "--style", STYLE, "--out", out, "-q", *FAST, "--shots", "1")[0] == 0
+    code, stdout, err = _run("resume", out, "--shots", "2")
+    assert code == 0, err
+    assert len(list(out.glob("take_*.png"))) == 20
+    assert "shot" in stdout and "all" in stdout  # the summary table
+    manifest = json.loads((out / "framestyle.json").read_text())
+    assert manifest["shot_status"]["1"]["done"] and manifest["shot_status"]["2"]["done"]
+
+
 def test_every_n_writes_preview_frames_and_a_contact_sheet_per_shot(small_clip, tmp_path):
     code, out, _ = _run("stylize", small_clip, "--style", STYLE, "--out", tmp_path, "--every", "4", "-q", *FAST)
     assert code == 0
@@ -70,6 +81,16 @@ def test_shots_command_finds_the_sample_clip_cut():
     assert json.loads(out) == [{"shot": 1, "start": 0, "end": 27}, {"shot": 2, "start": 28, "end": 47}]
     code, out, _ = _run("shots", SAMPLE / "frames")
     assert "00:00:01:04" in out  # frame 28 at the 24 fps default (SMPTE ST 12-1 non-drop)
+
+
+def test_shots_command_edits_cuts_into_a_list_stylize_accepts(small_clip, tmp_path):
+    code, out, _ = _run("shots", small_clip, "--json", "--add-cut", "5", "--remove-cut", "10")
+    assert code == 0 and json.loads(out) == [{"shot": 1, "start": 0, "end": 4}, {"shot": 2, "start": 5, "end": 19}]
+    (tmp_path / "shots.json").write_text(out)
+    code, _, err = _run("stylize", small_clip, "--style", STYLE, "--out", tmp_path / "o", "-q", *FAST,
+                        "--shot-list", tmp_path / "shots.json", "--shots", "1")
+    assert code == 0, err
+    assert len(list((tmp_path / "o").glob("take_*.png"))) == 5
 
 
 def test_stability_command_reports_render_and_source(small_clip, tmp_path):
