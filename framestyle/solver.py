@@ -153,8 +153,10 @@ def solve_coarse_to_fine(
 
     Coarse-to-fine optimisation (Gatys et al. 2017, "Controlling Perceptual Factors in Neural
     Style Transfer", Sec. 6) places large structures cheaply at low resolution, which makes
-    large frames practical on a CPU. Frames with temporal terms already start from the warped
-    previous frame at full resolution, so they are solved at full size only.
+    large frames practical on a CPU: the coarsest level gets the full iteration cap, each
+    finer level (4× the pixels) only a quarter of the previous cap, as it refines an
+    upsampled solution. Frames with temporal terms already start from the warped previous
+    frame at full resolution, so they are solved at full size only.
 
     Parameters
     ----------
@@ -170,11 +172,12 @@ def solve_coarse_to_fine(
     sizes = [(round(w / 2**k), round(h / 2**k)) for k in reversed(range(levels))]
     sizes = [s for s in sizes[:-1] if min(s) >= net.min_side] + [(w, h)]
     image, used = None, 0
-    for size in sizes:
+    cap = settings.iterations if iterations is None else iterations
+    for k, size in enumerate(sizes):
         init = resize_tensor(problem.init if image is None else image, size)
         level = Problem(resize_tensor(problem.content, size), init)
         if size == (w, h):
             level = Problem(problem.content, init, problem.temporal)
-        image, stats = solve(net, level, targets(size), settings, iterations)
+        image, stats = solve(net, level, targets(size), settings, min(cap, max(2 * _CHUNK, cap // 4**k)))
         used += stats.iterations
     return image, replace(stats, iterations=used)
