@@ -117,7 +117,7 @@ def stylize(
     flow_preset: Annotated[Optional[str], typer.Option(help=f"Optical flow quality: ultrafast, fast or medium (default {Settings.flow_preset}).")] = None,
     tolerance: Annotated[Optional[float], typer.Option(help=f"Stop a frame when the loss falls by less than this fraction per 10 iterations (default {Settings.tolerance}).")] = None,
     every: Annotated[Optional[int], typer.Option(help="Preview: stylise only every Nth frame of each shot and write contact sheets.")] = None,
-    preview_width: Annotated[Optional[int], typer.Option(help="Working width for --every previews.")] = None,
+    preview_width: Annotated[Optional[int], typer.Option(help="Working width for --every previews (default: --width, at most 240).")] = None,
     shots: Annotated[Optional[str], typer.Option(help="Render only these shots, e.g. 2,4-5.")] = None,
     shot_list: Annotated[Optional[Path], typer.Option(help="File of shot start frames replacing shot detection.")] = None,
     restart: Annotated[bool, typer.Option("--restart", help="Discard a previous render in --out and start over.")] = False,

@@ -35,8 +35,26 @@ def gram_matrix(features: torch.Tensor) -> torch.Tensor:
     if features.dim() != 4:
         raise ValueError(f"features must be (B, C, H, W), got shape {tuple(features.shape)}")
     b, c, h, w = features.shape
-    flat = features.reshape(b, c, h * w)  # (B, C, H*W)
-    return flat @ flat.transpose(1, 2) / (c * h * w)
+    return _Gram.apply(features.reshape(b, c, h * w)) / (c * h * w)  # (B, C, C)
+
+
+class _Gram(torch.autograd.Function):
+    """G = F Fᵀ with a one-product backward: dF = (dG + dGᵀ) F.
+
+    Autograd's own backward of ``F @ F.transpose`` multiplies twice by the large (C, H·W)
+    operand and adds the two results; the Gram matrices are a large share of each solver
+    iteration with a network as light as EfficientNet-Lite0.
+    """
+
+    @staticmethod
+    def forward(ctx, flat: torch.Tensor) -> torch.Tensor:  # flat: (B, C, N)
+        ctx.save_for_backward(flat)
+        return flat @ flat.transpose(1, 2)
+
+    @staticmethod
+    def backward(ctx, grad: torch.Tensor) -> torch.Tensor:
+        (flat,) = ctx.saved_tensors
+        return (grad + grad.transpose(1, 2)) @ flat
 
 
 def style_loss(gram: torch.Tensor, target: torch.Tensor) -> torch.Tensor:

@@ -22,6 +22,7 @@ from .render import (Mattes, Progress, check_render, deliver, find_shots, no_pro
                      stylise_alone, working_size)
 from .settings import Settings
 
+PREVIEW_WIDTH = 240  # default preview working width: a quick look, a few seconds a frame
 _TILE_WIDTH = 240  # contact-sheet tile width in pixels
 _COLUMNS = 6  # tiles per row before a sheet wraps
 _LABEL_HEIGHT = 22
@@ -73,7 +74,7 @@ def preview(input_path: Path, out: Path, settings: Settings, every: int, width: 
 
     Parameters
     ----------
-    width : preview working width (default: the render's width)
+    width : preview working width (default: the render's width, at most PREVIEW_WIDTH)
 
     Returns
     -------
@@ -85,9 +86,9 @@ def preview(input_path: Path, out: Path, settings: Settings, every: int, width: 
     if every < 1:
         raise FramestyleError(f"--every {every}: must be 1 or more")
     source = frames.open_source(Path(input_path))
-    if width is not None:
-        settings = dataclasses.replace(settings, width=width, shot_looks={
-            n: {**look, "width": width} for n, look in settings.shot_looks.items()})
+    width = width or min(settings.width, PREVIEW_WIDTH)
+    settings = dataclasses.replace(settings, width=width, shot_looks={
+        n: {**look, "width": width} for n, look in settings.shot_looks.items()})
     net = check_render(source, settings)
     shots = find_shots(source, settings, shot_file)
     chosen = {i: shot for shot in shots for i in sample_frames(shot.start, shot.end, every)}

@@ -10,6 +10,7 @@ same output folder continues exactly where a killed render stopped.
 
 from __future__ import annotations
 
+import dataclasses
 import hashlib
 import logging
 import time
@@ -432,7 +433,10 @@ class _ShotJob:
                 earlier[0][1], result, earlier[0][0], frame.content, settings.flow_preset)
             self.status["pairs"] += 1
         else:
-            result, stats = stylise_alone(look, frame.content, index, settings)
+            anchor = settings  # a shot's first frame anchors every later frame through the warp,
+            if settings.temporal:  # so it is converged twice as tightly
+                anchor = dataclasses.replace(settings, tolerance=settings.tolerance / 2)
+            result, stats = stylise_alone(look, frame.content, index, anchor)
         checkpoint.save_state(out, shot, index, result)
         target = out / self.names[index]
         if not target.exists():  # a frame whose manifest entry was lost is not rewritten

@@ -40,6 +40,7 @@ class Settings:
     width: int = 480  # working width in pixels (never above the source width)
     iterations: int = 300  # most L-BFGS iterations for one frame
     tolerance: float = 0.01  # stop when the loss falls by less than this fraction in 10 iterations
+    #                          (half of it for a shot's first frame, which anchors the shot)
     seed: int = 0  # seeds the noise added where a frame starts from its content
     # --- temporal stability (Ruder et al. 2016) -----------------------------------------------
     temporal: bool = True  # warm start from the warped previous frame + temporal losses

@@ -14,6 +14,18 @@ def test_gram_matrix_matches_numpy_einsum():
     np.testing.assert_allclose(gram_matrix(torch.from_numpy(f)).numpy(), expected, rtol=1e-5)
 
 
+def test_gram_matrix_gradient_matches_autograd_of_the_plain_product():
+    # Reference: PyTorch autograd on the textbook expression F Fᵀ / (C·H·W).
+    f = torch.rand(2, 4, 3, 5, dtype=torch.float64, requires_grad=True)
+    weights = torch.rand(2, 4, 4, dtype=torch.float64)
+    (gram_matrix(f) * weights).sum().backward()
+    ours = f.grad.clone()
+    f.grad = None
+    flat = f.reshape(2, 4, 15)
+    ((flat @ flat.transpose(1, 2) / 60) * weights).sum().backward()
+    torch.testing.assert_close(ours, f.grad)
+
+
 def test_gram_matrix_co_occurrence_worked_example():
     # Common practice (the classic teaching example of Gram matrices as feature co-occurrence):
     # a "diagonal" map [1,0,1,0] and a "green" map [0,0,1,1] fire together at one position,
