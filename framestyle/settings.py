@@ -84,6 +84,10 @@ class Settings:
         problems = []
         if self.colour not in COLOURS:
             problems.append(f"colour {self.colour!r} is not one of {', '.join(COLOURS)}")
+        from .flow import FLOW_PRESETS
+
+        if self.flow_preset not in FLOW_PRESETS:
+            problems.append(f"flow_preset {self.flow_preset!r} is not one of {', '.join(FLOW_PRESETS)}")
         if self.luma_standard not in ("bt601", "bt709"):
             problems.append(f"luma_standard {self.luma_standard!r} is not bt601 or bt709")
         if not 0.0 <= self.strength <= 1.0:
@@ -111,14 +115,6 @@ class Settings:
         """Names of the settings whose values differ from ``other``'s."""
         a, b = self.to_dict(), other.to_dict()
         return [k for k in a if a[k] != b[k]]
-
-
-def load_settings(path: Path) -> Settings:
-    """Read a ``settings.json`` written by :func:`Settings.to_dict`."""
-    try:
-        return Settings.from_dict(json.loads(Path(path).read_text()), str(path))
-    except (OSError, ValueError) as exc:
-        raise FramestyleError(f"{path}: cannot read settings ({exc})")
 
 
 _PATH_SETTINGS = ("styles", "weights", "matte")  # resolved against the look file's folder

@@ -145,6 +145,12 @@ def test_unknown_network_and_too_small_width(small_clip, tmp_path):
     _one_line_error(*_run("stylize", small_clip, "--style", STYLE, "--out", tmp_path / "o", "--width", "40")[::2], "width 40")
 
 
+def test_unknown_flow_preset_and_palette(small_clip, tmp_path):
+    _one_line_error(*_run("stylize", small_clip, "--style", STYLE, "--out", tmp_path / "o", "--flow-preset", "turbo")[::2], "turbo")
+    _one_line_error(*_run("stylize", small_clip, "--style", STYLE, "--out", tmp_path / "o", "--colour", "sepia")[::2], "sepia")
+    assert not (tmp_path / "o").exists()
+
+
 def test_output_path_that_is_a_file(small_clip, tmp_path):
     target = tmp_path / "taken.png"
     target.write_bytes(b"precious")
