@@ -303,7 +303,7 @@ def check_render(source: frames.FrameSource, settings: Settings) -> FeatureNet:
     """Check every setting (and every shot's overrides) against ``source``; return the network."""
     settings.check()
     net = load_network(settings.network, settings.weights)
-    first = frames.read_frame(source, 0) if source.kind == "folder" else next(frames.iter_frames(source))[1]
+    first = frames.read_frame(source, 0)
     variants = [settings] + [settings.for_shot(int(n)) for n in settings.shot_looks]
     for variant in variants:
         if (variant.network, variant.weights) != (settings.network, settings.weights):
