@@ -16,11 +16,12 @@ import cv2
 import numpy as np
 
 from common import ROOT, SAMPLE_FRAMES, SAMPLE_STYLE
-from framestyle import frames
-from framestyle.compose import soft_matte
-from framestyle.look import build_look
-from framestyle.network import load_network
-from framestyle.render import deliver, prepare_frame, stylise_alone
+from framestyle import io
+from framestyle.finish.matte import soft_matte
+from framestyle.style.look import build_look
+from framestyle.style.network import load_network
+from framestyle.pipeline import solver_params, stylise
+from framestyle.working import deliver, prepare_frame
 from framestyle.settings import Settings
 
 INK = ROOT / "sample_clip" / "style_ink.png"
@@ -31,8 +32,8 @@ VARIANTS = {  # file name -> (caption, settings changes)
     "colour_luma": ("--colour luma (footage's colours)", {"colour": "luma"}),
     "strength_half": ("--strength 0.5", {"strength": 0.5}),
     "blend": ("two styles, --style-mix 0.5,0.5", {"styles": (str(SAMPLE_STYLE), str(INK)), "style_mix": (0.5, 0.5)}),
-    "strokes_small": ("--style-scale 0.6 (small strokes)", {"style_scale": 0.6}),
-    "strokes_large": ("--style-scale 2.5 (large strokes)", {"style_scale": 2.5}),
+    "strokes_small": ("--stroke-size 0.6 (small strokes)", {"stroke_size": 0.6}),
+    "strokes_large": ("--stroke-size 2.5 (large strokes)", {"stroke_size": 2.5}),
     "matte": ("--matte (tree and shore kept)", {}),
 }
 
@@ -50,19 +51,19 @@ def main() -> None:
     parser.add_argument("--out", type=Path, default=Path(__file__).resolve().parent / "gallery")
     parser.add_argument("--iterations", type=int, default=BASE.iterations)
     args = parser.parse_args()
-    source = frames.open_source(SAMPLE_FRAMES)
+    source = io.open_source(SAMPLE_FRAMES)
     index = args.frame - 1
-    raw = frames.read_frame(source, index)
+    raw = io.read_frame(source, index)
     size = (source.width, source.height)
     net = load_network(BASE.network)
-    frames.write_frame(args.out / "source.png", raw)
+    io.write_image(args.out / "source.png", raw)
     for name, (caption, changes) in VARIANTS.items():
         settings = dataclasses.replace(BASE, iterations=args.iterations, **changes)
         frame = prepare_frame(raw, size, settings, linear=False)
         look = build_look(net, settings, frame.display)
-        result, stats = stylise_alone(look, frame.content, index, settings)
+        result, stats = stylise(look, frame.content, index, [], solver_params(settings), settings.seed, temporal=False)
         matte = matte_for(raw.shape[:2]) if name == "matte" else None
-        frames.write_frame(args.out / f"{name}.png", deliver(result, frame, settings, matte, linear=False))
+        io.write_image(args.out / f"{name}.png", deliver(result, frame, settings, matte, linear=False))
         print(f"{name:14s} {caption:40s} {stats.iterations:3d} iterations", flush=True)
 
 

@@ -1,7 +1,7 @@
 """Shot-detection speed, and a render's peak memory against clip length.
 
-(a) Frames per second of :func:`framestyle.shots.frame_signature` plus
-    :func:`framestyle.shots.detect_shots` on synthetic frames generated in memory (only the
+(a) Frames per second of :func:`framestyle.shots.detect.frame_signature` plus
+    :func:`framestyle.shots.detect.detect_shots` on synthetic frames generated in memory (only the
     detection is timed, not the generation).
 (b) Peak resident memory of a whole render (high-water mark of a fresh child process per
     run) for a short and a long synthetic clip, rendered with tiny settings so the long one
@@ -28,10 +28,10 @@ import cv2
 import numpy as np
 
 from common import SAMPLE_STYLE, target_line
-from framestyle import frames
-from framestyle.render import render
+from framestyle import io
+from framestyle.pipeline import render
 from framestyle.settings import Settings
-from framestyle.shots import detect_shots, frame_signature
+from framestyle.shots.detect import detect_shots, frame_signature
 
 MEMORY_TARGET = 1.1
 # One base colour per shot, in different histogram bins so the cuts are plain to see.
@@ -99,7 +99,7 @@ def peak_memory(count: int, width: int, iterations: int, work: Path) -> tuple[fl
     clip = SyntheticClip(count, 320, 180, seed=count)
     folder = work / f"clip{count}"
     for index in range(count):
-        frames.write_frame(folder / f"synth_{index + 1:04d}.png", clip.frame(index))
+        io.write_image(folder / f"synth_{index + 1:04d}.png", clip.frame(index))
     cmd = [sys.executable, __file__, "--child-render", str(folder), str(work / f"out{count}"),
            str(width), str(iterations)]
     done = subprocess.run(cmd, capture_output=True, text=True)

@@ -20,13 +20,13 @@ import time
 import torch
 
 from common import SAMPLE_FRAMES, SAMPLE_STYLE, target_line
-from framestyle import frames
+from framestyle import io
 from framestyle.imaging import resize
-from framestyle.look import build_look
-from framestyle.network import load_network
-from framestyle.render import fresh_problem, start_noise
+from framestyle.style.look import build_look
+from framestyle.style.network import load_network
+from framestyle.temporal import fresh_problem, start_noise
 from framestyle.settings import Settings
-from framestyle.solver import solve
+from framestyle.style.solver import solve
 
 TARGET = 1.3
 
@@ -50,8 +50,8 @@ def main() -> None:
     settings = Settings(styles=(str(SAMPLE_STYLE),), tolerance=0.0)  # tolerance 0: run exactly N
     look = build_look(load_network(settings.network), settings)
     targets = look.targets(size)
-    source = frames.open_source(SAMPLE_FRAMES)
-    content = resize(frames.read_frame(source, 0), size)
+    source = io.open_source(SAMPLE_FRAMES)
+    content = resize(io.read_frame(source, 0), size)
     problem = fresh_problem(content, start_noise((1, 3, size[1], size[0]), settings.seed, 0))
     layers = list(dict.fromkeys([*targets, settings.content_layer or look.net.content_layer]))
 

@@ -4,7 +4,7 @@ temporal terms.
 Renders the input twice with identical settings except ``temporal`` (Ruder, Dosovitskiy &
 Brox 2016: warm start from the warped previous frame plus short- and long-term temporal
 losses) and measures each render's warping error (Lai et al. 2018) per shot with
-:func:`framestyle.report.stability`. Targets, from one run:
+:func:`framestyle.qc.stability.stability`. Targets, from one run:
 
 * warping error, temporal / per-frame ≤ 0.2 (overall, frame-pair weighted);
 * mean seconds of a warm-started frame / mean seconds of a shot's first frame ≤ 0.35
@@ -31,10 +31,10 @@ import cv2
 import numpy as np
 
 from common import OUT, SAMPLE_FRAMES, SAMPLE_STYLE, print_progress, target_line
-from framestyle import atomic, checkpoint, frames
+from framestyle import atomic, io, store
 from framestyle.imaging import resize
-from framestyle.render import render
-from framestyle.report import ShotStability, overall, stability
+from framestyle.pipeline import render
+from framestyle.qc.stability import ShotStability, overall, stability
 from framestyle.settings import Settings
 
 ERROR_TARGET = 0.2
@@ -49,7 +49,7 @@ def first_frames(input_path: Path, count: int, folder: Path) -> Path:
     Folder frames are copied byte for byte; video frames are decoded and written as PNG
     (16-bit when the video is deeper than 8 bits).
     """
-    source = frames.open_source(input_path)
+    source = io.open_source(input_path)
     if not 2 <= count <= source.count:
         raise SystemExit(f"--frames {count}: need 2..{source.count} for {input_path}")
     folder.mkdir(parents=True, exist_ok=True)
@@ -58,18 +58,18 @@ def first_frames(input_path: Path, count: int, folder: Path) -> Path:
             atomic.write_bytes(folder / name, (source.path / name).read_bytes())
     else:
         depth = 16 if source.bit_depth > 8 else 8
-        for index, frame in frames.iter_frames(source, 0, count):
-            frames.write_frame(folder / frames.frame_name(source, index), frame, depth)
+        for index, frame in io.iter_frames(source, 0, count):
+            io.write_image(folder / io.frame_name(source, index), frame, depth)
     return folder
 
 
-def manifest_timing(out: Path, source: frames.FrameSource) -> dict[str, list[dict]]:
+def manifest_timing(out: Path, source: io.FrameSource) -> dict[str, list[dict]]:
     """The temporal render's manifest entries, split into shots' first frames and the rest."""
-    manifest = checkpoint.read_manifest(out)
+    manifest = store.read_manifest(out)
     starts = {s["start"] for s in manifest["shots"]}
     split = {"first": [], "warm": []}
     for index in range(source.count):
-        entry = manifest["frames"][frames.frame_name(source, index)]
+        entry = manifest["frames"][io.frame_name(source, index)]
         split["first" if index in starts else "warm"].append(entry)
     return split
 
@@ -88,19 +88,19 @@ def labelled_row(label: str, images: list[np.ndarray], tile: tuple[int, int]) ->
     return row
 
 
-def write_strip(path: Path, source: frames.FrameSource, shot: ShotStability,
+def write_strip(path: Path, source: io.FrameSource, shot: ShotStability,
                 renders: dict[str, Path]) -> list[int]:
     """Write the comparison strip for three consecutive frames mid-shot; return their indices."""
     middle = (shot.shot.start + shot.shot.end) // 2
     chosen = [i for i in (middle - 1, middle, middle + 1) if shot.shot.start <= i <= shot.shot.end]
     w = min(_TILE_WIDTH, source.width)
     tile = (w, max(1, round(source.height * w / source.width)))
-    names = [frames.frame_name(source, i) for i in chosen]
+    names = [io.frame_name(source, i) for i in chosen]
     rows = [labelled_row(f"source  frames {', '.join(Path(n).stem for n in names)}",
-                         [frames.read_frame(source, i) for i in chosen], tile)]
+                         [io.read_frame(source, i) for i in chosen], tile)]
     for label, out in renders.items():
-        rows.append(labelled_row(label, [frames.read_image(out / n) for n in names], tile))
-    frames.write_frame(path, np.concatenate(rows, axis=0))
+        rows.append(labelled_row(label, [io.read_image(out / n) for n in names], tile))
+    io.write_image(path, np.concatenate(rows, axis=0))
     return chosen
 
 
@@ -130,7 +130,7 @@ def main() -> None:
             render(input_path, out, dataclasses.replace(settings, temporal=label == "temporal"),
                    restart=True, progress=print_progress)
 
-        source = frames.open_source(input_path)
+        source = io.open_source(input_path)
         rows = {label: stability(out, input_path, settings.flow_preset) for label, out in renders.items()}
         per_frame, temporal = rows.values()
         print(f"\nwarping error (Lai et al. 2018) of {args.input}, {source.count} frames, "

@@ -1,7 +1,7 @@
 """Command line: thin typer commands that build settings and call one library function each."""
 
-from __future__ import annotations
-
+import functools
+import inspect
 import json
 import sys
 from pathlib import Path
@@ -9,8 +9,8 @@ from typing import Annotated, Optional
 
 import typer
 
-from .errors import FramestyleError
-from .settings import Settings
+from framestyle.errors import FramestyleError
+from framestyle.settings import Settings
 
 app = typer.Typer(
     add_completion=False, no_args_is_help=True,
@@ -43,6 +43,83 @@ def _check_path(path: Path, what: str) -> Path:
         _fail(f"{path}: {what} not found")
     return path
 
+
+# --- the render settings' options, shared by `stylise` and `preview` --------------------------
+
+def _settings_options(
+    style: Annotated[Optional[list[Path]], typer.Option("--style", "-s", help="Style image; repeat to mix several.")] = None,
+    look: Annotated[Optional[Path], typer.Option(help="TOML look file with settings (and per-shot looks); options given here override it.")] = None,
+    width: Annotated[Optional[int], typer.Option(help=f"Working width in pixels, never above the source's (default {Settings.width}).")] = None,
+    iterations: Annotated[Optional[int], typer.Option(help=f"Most solver iterations per frame (default {Settings.iterations}).")] = None,
+    style_weight: Annotated[Optional[float], typer.Option(help=f"Weight of the Gram style loss: higher, more paint (default {Settings.style_weight}).")] = None,
+    content_weight: Annotated[Optional[float], typer.Option(help=f"Weight of the content loss: higher, more footage (default {Settings.content_weight}).")] = None,
+    style_mix: Annotated[Optional[str], typer.Option(help="Comma-separated weights, one per --style (default equal).")] = None,
+    stroke_size: Annotated[Optional[float], typer.Option(help=f"Stroke size: the style image's scale relative to the frame (default {Settings.stroke_size}).")] = None,
+    colour: Annotated[Optional[str], typer.Option(help="Palette: style (the painting's), luma (keep the footage's colours) or match (painting recoloured to the footage) (default style).")] = None,
+    strength: Annotated[Optional[float], typer.Option(help="0 = the footage, 1 = full style (default 1).")] = None,
+    matte: Annotated[Optional[str], typer.Option(help="Folder of matte frames (white = stylise), or 'alpha' for the input's alpha.")] = None,
+    matte_softness: Annotated[Optional[float], typer.Option(help=f"Soft matte edge, Gaussian sigma in pixels (default {Settings.matte_softness}).")] = None,
+    levels: Annotated[Optional[int], typer.Option(help="Coarse-to-fine levels: solve at 1/2, 1/4 ... of the size first (default 1 = off).")] = None,
+    network: Annotated[Optional[str], typer.Option(help=f"Perceptual network: efficientnet-lite0 or vgg19 (default {Settings.network}).")] = None,
+    network_weights: Annotated[Optional[Path], typer.Option(help="Weights file for the network (needed for vgg19 offline).")] = None,
+    seed: Annotated[Optional[int], typer.Option(help="Random seed; the same seed gives the same frames (default 0).")] = None,
+    no_temporal: Annotated[bool, typer.Option("--no-temporal", help="Stylise each frame on its own (flickers; for comparison).")] = False,
+    temporal_weight: Annotated[Optional[float], typer.Option(help=f"Weight of the temporal consistency loss (default {Settings.temporal_weight}).")] = None,
+    flow_preset: Annotated[Optional[str], typer.Option(help=f"Optical flow quality: ultrafast, fast or medium (default {Settings.flow_preset}).")] = None,
+    tolerance: Annotated[Optional[float], typer.Option(help=f"Stop a frame when the loss falls by less than this fraction per 10 iterations (default {Settings.tolerance}).")] = None,
+) -> dict:
+    """The settings given on the command line (None where not given), paths checked."""
+    given = dict(locals())
+    for path in [*(style or []), *([look] if look else []), *([network_weights] if network_weights else [])]:
+        _check_path(path, "file")
+    if matte and matte != "alpha":
+        _check_path(Path(matte), "matte folder")
+    given.update(
+        styles=[str(p.resolve()) for p in style] if style else None,
+        style_mix=_numbers(style_mix, "--style-mix") if style_mix else None,
+        matte=str(Path(matte).resolve()) if matte and matte != "alpha" else matte,
+        network_weights=str(network_weights.resolve()) if network_weights else None,
+        temporal=False if no_temporal else None,
+    )
+    for name in ("style", "look", "no_temporal"):
+        del given[name]
+    return {"look": look, "values": {k: v for k, v in given.items() if v is not None}}
+
+
+def _with_settings_options(command):
+    """Give ``command`` the render settings' options; it receives them as ``options``."""
+    shared = list(inspect.signature(_settings_options).parameters.values())
+    own = [p for p in inspect.signature(command).parameters.values() if p.name != "options"]
+
+    @functools.wraps(command)
+    def wrapper(**kwargs):
+        given = {p.name: kwargs.pop(p.name) for p in shared}
+        return command(options=_settings_options(**given), **kwargs)
+
+    wrapper.__signature__ = inspect.Signature(own + shared)
+    wrapper.__annotations__ = {p.name: p.annotation for p in own + shared}
+    return wrapper
+
+
+def _settings(options: dict) -> Settings:
+    """Settings from a look file (if any) overridden by the options given."""
+    from framestyle.settings import load_look
+
+    base = _run(load_look, options["look"]) if options["look"] else {}
+    settings = _run(Settings.from_dict, {**base, **options["values"]}, "options")
+    if not settings.styles:
+        _fail("no style image: give --style or a look file with styles")
+    return settings
+
+
+def _numbers(text: str, option: str) -> tuple[float, ...]:
+    try:
+        return tuple(float(v) for v in text.split(","))
+    except ValueError:
+        _fail(f"{option} {text!r}: expected numbers like 0.7,0.3")
+
+
+# --- progress ---------------------------------------------------------------------------------
 
 class _Bars:
     """Progress display: an overall bar and a per-shot bar with ETA, plus a line per shot."""
@@ -80,9 +157,8 @@ class _Bars:
                 self.progress.advance(self.shot_task)
         elif event == "shot":
             s = info["summary"]
-            n = s.shot.end - s.shot.start + 1
             self.progress.console.print(
-                f"shot {s.shot.index}: frames {s.shot.start}-{s.shot.end} ({n}), "
+                f"shot {s.shot.index}: frames {s.shot.start}-{s.shot.end} ({s.shot.length}), "
                 f"{s.seconds:.0f} s, {s.iterations / max(1, s.frames_done):.0f} iterations/frame, "
                 f"warping error {s.warp_error:.5f}"
             )
@@ -92,73 +168,88 @@ class _Bars:
             self.progress.stop()
 
 
+# --- commands ---------------------------------------------------------------------------------
+
 @app.command()
-def stylize(
+@_with_settings_options
+def stylise(
     input: Annotated[Path, typer.Argument(help="Folder of numbered frames, or a video file.")],
     out: Annotated[Path, typer.Option("--out", "-o", help="Output folder for the stylised frames.")],
-    style: Annotated[Optional[list[Path]], typer.Option("--style", "-s", help="Style image; repeat to mix several.")] = None,
-    look: Annotated[Optional[Path], typer.Option(help="TOML look file with settings (and per-shot looks); options given here override it.")] = None,
-    width: Annotated[Optional[int], typer.Option(help=f"Working width in pixels, never above the source's (default {Settings.width}).")] = None,
-    iterations: Annotated[Optional[int], typer.Option(help=f"Most solver iterations per frame (default {Settings.iterations}).")] = None,
-    style_weight: Annotated[Optional[float], typer.Option(help=f"Weight of the Gram style loss: higher, more paint (default {Settings.style_weight}).")] = None,
-    content_weight: Annotated[Optional[float], typer.Option(help=f"Weight of the content loss: higher, more footage (default {Settings.content_weight}).")] = None,
-    style_mix: Annotated[Optional[str], typer.Option(help="Comma-separated weights, one per --style (default equal).")] = None,
-    style_scale: Annotated[Optional[float], typer.Option(help=f"Stroke size: style image scale relative to the frame (default {Settings.style_scale}).")] = None,
-    colour: Annotated[Optional[str], typer.Option(help="Palette: style (the painting's), luma (keep the footage's colours) or match (painting recoloured to the footage) (default style).")] = None,
-    strength: Annotated[Optional[float], typer.Option(help="0 = the footage, 1 = full style (default 1).")] = None,
-    matte: Annotated[Optional[str], typer.Option(help="Folder of matte frames (white = stylise), or 'alpha' for the input's alpha.")] = None,
-    matte_softness: Annotated[Optional[float], typer.Option(help=f"Soft matte edge, Gaussian sigma in pixels (default {Settings.matte_softness}).")] = None,
-    scales: Annotated[Optional[int], typer.Option(help="Coarse-to-fine levels for large frames; 1 = off (default 1).")] = None,
-    network: Annotated[Optional[str], typer.Option(help=f"Perceptual network: efficientnet-lite0 or vgg19 (default {Settings.network}).")] = None,
-    weights: Annotated[Optional[Path], typer.Option(help="Network weights file (needed for vgg19 offline).")] = None,
-    seed: Annotated[Optional[int], typer.Option(help="Random seed; the same seed gives the same frames (default 0).")] = None,
-    no_temporal: Annotated[bool, typer.Option("--no-temporal", help="Stylise each frame on its own (flickers; for comparison).")] = False,
-    temporal_weight: Annotated[Optional[float], typer.Option(help=f"Weight of the temporal consistency loss (default {Settings.temporal_weight}).")] = None,
-    flow_preset: Annotated[Optional[str], typer.Option(help=f"Optical flow quality: ultrafast, fast or medium (default {Settings.flow_preset}).")] = None,
-    tolerance: Annotated[Optional[float], typer.Option(help=f"Stop a frame when the loss falls by less than this fraction per 10 iterations (default {Settings.tolerance}).")] = None,
-    every: Annotated[Optional[int], typer.Option(help="Preview: stylise only every Nth frame of each shot and write contact sheets.")] = None,
-    preview_width: Annotated[Optional[int], typer.Option(help="Working width for --every previews (default: --width, at most 240).")] = None,
+    options: dict,
     shots: Annotated[Optional[str], typer.Option(help="Render only these shots, e.g. 2,4-5.")] = None,
     shot_list: Annotated[Optional[Path], typer.Option(help="File of shot start frames replacing shot detection.")] = None,
     restart: Annotated[bool, typer.Option("--restart", help="Discard a previous render in --out and start over.")] = False,
     quiet: Annotated[bool, typer.Option("--quiet", "-q", help="No progress display.")] = False,
 ) -> None:
     """Stylise INPUT in the look of --style into the --out folder (resumes an interrupted render)."""
-    from . import preview as preview_mod
-    from . import render as render_mod
-    from .settings import load_look
+    from framestyle.pipeline import render
 
     _check_path(input, "input")
-    for path in [*(style or []), *([look] if look else []), *([shot_list] if shot_list else [])]:
-        _check_path(path, "file")
-    if matte and matte != "alpha":
-        _check_path(Path(matte), "matte folder")
-    given = {
-        "styles": [str(p.resolve()) for p in style] if style else None,
-        "style_mix": _numbers(style_mix, "--style-mix") if style_mix else None,
-        "style_weight": style_weight, "content_weight": content_weight, "style_scale": style_scale,
-        "colour": colour, "strength": strength, "scales": scales, "network": network,
-        "matte": str(Path(matte).resolve()) if matte and matte != "alpha" else matte,
-        "matte_softness": matte_softness, "weights": str(weights.resolve()) if weights else None,
-        "width": width, "iterations": iterations, "tolerance": tolerance, "seed": seed,
-        "temporal": False if no_temporal else None, "temporal_weight": temporal_weight,
-        "flow_preset": flow_preset,
-    }
-    base = _run(load_look, look) if look else {}
-    settings = _run(Settings.from_dict, {**base, **{k: v for k, v in given.items() if v is not None}})
-    if not settings.styles:
-        _fail("no style image: give --style or a look file with styles")
+    if shot_list:
+        _check_path(shot_list, "file")
+    settings = _settings(options)
     bars = _Bars(quiet)
     try:
-        if every is not None:
-            sheets = _run(preview_mod.preview, input, out, settings, every, preview_width, shot_list, bars)
-            bars.stop()
-            typer.echo(f"preview frames and contact sheets in {out / 'preview'}:")
-            for sheet in sheets:
-                typer.echo(f"  {sheet}")
-            return
-        result = _run(render_mod.render, input, out, settings, shots=shots, shot_file=shot_list,
-                      restart=restart, progress=bars)
+        result = _run(render, input, out, settings, shots=shots, shot_file=shot_list, restart=restart, progress=bars)
+    finally:
+        bars.stop()
+    _report(result, quiet)
+
+
+@app.command()
+@_with_settings_options
+def preview(
+    input: Annotated[Path, typer.Argument(help="Folder of numbered frames, or a video file.")],
+    out: Annotated[Path, typer.Option("--out", "-o", help="Output folder; previews go to its preview/ folder.")],
+    options: dict,
+    every: Annotated[int, typer.Option(help="Stylise every Nth frame of each shot, from its first.")] = 10,
+    shots: Annotated[Optional[str], typer.Option(help="Preview only these shots, e.g. 2,4-5.")] = None,
+    shot_list: Annotated[Optional[Path], typer.Option(help="File of shot start frames replacing shot detection.")] = None,
+    quiet: Annotated[bool, typer.Option("--quiet", "-q", help="No progress display.")] = False,
+) -> None:
+    """Quick look: stylise every Nth frame of each shot on its own and lay out contact sheets.
+
+    The working width defaults to the render's, at most 240 pixels.
+    """
+    from framestyle.pipeline import preview as run_preview
+
+    _check_path(input, "input")
+    if shot_list:
+        _check_path(shot_list, "file")
+    width = options["values"].pop("width", None)
+    settings = _settings(options)
+    bars = _Bars(quiet)
+    try:
+        sheets = _run(run_preview, input, out, settings, every, width=width, shots=shots, shot_file=shot_list,
+                      progress=bars)
+    finally:
+        bars.stop()
+    typer.echo(f"preview frames and contact sheets in {out / 'preview'}:")
+    for sheet in sheets:
+        typer.echo(f"  {sheet}")
+
+
+@app.command()
+def resume(
+    out: Annotated[Path, typer.Argument(help="Output folder of a render started with `stylise`.")],
+    shots: Annotated[Optional[str], typer.Option(help="Render only these shots, e.g. 2,4-5.")] = None,
+    quiet: Annotated[bool, typer.Option("--quiet", "-q", help="No progress display.")] = False,
+) -> None:
+    """Continue a render from its manifest alone (input, settings and shot list are in it).
+
+    Lets another process, or another machine with the same files, take over shots.
+    """
+    from framestyle import store
+    from framestyle.pipeline import render
+
+    _check_path(out, "render folder")
+    manifest = _run(store.read_manifest, out)
+    if manifest is None:
+        _fail(f"{out}: no {store.MANIFEST}; start the render with `framestyle stylise`")
+    settings = _run(Settings.from_dict, manifest["settings"], str(out / store.MANIFEST))
+    bars = _Bars(quiet)
+    try:
+        result = _run(render, Path(manifest["inputs"]["input"]), out, settings, shots=shots, progress=bars)
     finally:
         bars.stop()
     _report(result, quiet)
@@ -187,49 +278,6 @@ def _summary_table(shots) -> str:
     return "\n".join(rows)
 
 
-def _numbers(text: str, option: str) -> tuple[float, ...]:
-    try:
-        return tuple(float(v) for v in text.split(","))
-    except ValueError:
-        _fail(f"{option} {text!r}: expected numbers like 0.7,0.3")
-
-
-def main() -> None:
-    """Entry point that never shows a traceback for an interrupted render."""
-    try:
-        app()
-    except KeyboardInterrupt:
-        typer.echo("framestyle: interrupted; run the same command again to resume", err=True)
-        sys.exit(130)
-
-
-@app.command()
-def resume(
-    out: Annotated[Path, typer.Argument(help="Output folder of a render started with `stylize`.")],
-    shots: Annotated[Optional[str], typer.Option(help="Render only these shots, e.g. 2,4-5.")] = None,
-    quiet: Annotated[bool, typer.Option("--quiet", "-q", help="No progress display.")] = False,
-) -> None:
-    """Continue a render from its manifest alone (input, settings and shot list are in it).
-
-    Lets another process, or another machine with the same files, take over shots.
-    """
-    from . import checkpoint
-    from . import render as render_mod
-
-    _check_path(out, "render folder")
-    manifest = _run(checkpoint.read_manifest, out)
-    if manifest is None:
-        _fail(f"{out}: no {checkpoint.MANIFEST}; start the render with `framestyle stylize`")
-    settings = _run(Settings.from_dict, manifest["settings"], str(out / checkpoint.MANIFEST))
-    bars = _Bars(quiet)
-    try:
-        result = _run(render_mod.render, Path(manifest["inputs"]["input"]), out, settings,
-                      shots=shots, progress=bars)
-    finally:
-        bars.stop()
-    _report(result, quiet)
-
-
 @app.command("shots")
 def shots_command(
     input: Annotated[Path, typer.Argument(help="Folder of numbered frames, or a video file.")],
@@ -243,15 +291,16 @@ def shots_command(
     """List the shots of INPUT with first/last frame and SMPTE timecode.
 
     With --add-cut/--remove-cut and --json the corrected list can be saved and given to
-    `framestyle stylize --shot-list`.
+    `framestyle stylise --shot-list`.
     """
-    from . import frames
-    from .render import find_shots
-    from .shots import apply_overrides, format_shot_table
+    from framestyle import io
+    from framestyle.pipeline import find_shots
+    from framestyle.shots.lists import apply_overrides, format_shot_table
 
     _check_path(input, "input")
-    source = _run(frames.open_source, input)
-    settings = Settings(cut_threshold=cut_threshold, gradual_threshold=gradual_threshold)
+    source = _run(io.open_source, input)
+    settings = _run(Settings.from_dict, {"cut_threshold": cut_threshold, "gradual_threshold": gradual_threshold},
+                    "options")
     found = _run(find_shots, source, settings, None)
     found = _run(apply_overrides, found, add_cut or (), remove_cut or ())
     if json_out:
@@ -268,7 +317,7 @@ def stability_command(
     flow_preset: Annotated[str, typer.Option(help="Optical flow preset for the measurement.")] = "medium",
 ) -> None:
     """Print the warping error (Lai et al. 2018) of a render per shot and overall; lower is steadier."""
-    from .report import overall, stability
+    from framestyle.qc.stability import overall, stability
 
     _check_path(out, "render folder")
     _check_path(source, "source")
@@ -284,3 +333,12 @@ def stability_command(
         typer.echo(f"{r.shot.index:>4}  {f'{r.shot.start}-{r.shot.end}':>11}  {r.render:>10.5f}  {r.source:>10.5f}")
     typer.echo(f"{'all':>4}  {'':>11}  {overall(rows, 'render'):>10.5f}  {overall(rows, 'source'):>10.5f}")
     typer.echo("warping error: mean squared RGB change along the optical flow (Lai et al. 2018)")
+
+
+def main() -> None:
+    """Entry point that never shows a traceback for an interrupted render."""
+    try:
+        app()
+    except KeyboardInterrupt:
+        typer.echo("framestyle: interrupted; run the same command again to resume", err=True)
+        sys.exit(130)

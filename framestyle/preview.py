@@ -1,28 +1,18 @@
-"""Quick previews: stylise every Nth frame of each shot on its own and lay out contact sheets.
+"""Previews: which frames a preview stylises, and the contact sheet that shows them.
 
-A preview answers "is this the look?" before hours of CPU are committed: each previewed frame
-is a shot's first-frame treatment (no temporal chain), optionally at a smaller width, and each
-shot gets a sheet with the source frames above their stylised versions, labelled by frame.
+A preview answers "is this the look?" before hours of CPU are committed: every Nth frame of
+each shot gets a shot's first-frame treatment (no temporal chain), usually at a smaller width
+(:func:`framestyle.pipeline.preview` runs it), and each shot gets a sheet with the source
+frames above their stylised versions, labelled by frame.
 """
 
 from __future__ import annotations
 
-import dataclasses
-import time
-from pathlib import Path
-
 import cv2
 import numpy as np
 
-from . import frames
-from .errors import FramestyleError
-from .imaging import resize
-from .look import build_look
-from .render import (Mattes, Progress, check_render, deliver, find_shots, no_progress, prepare_frame,
-                     stylise_alone, working_size)
-from .settings import Settings
+from framestyle.imaging import resize
 
-PREVIEW_WIDTH = 240  # default preview working width: a quick look, a few seconds a frame
 _TILE_WIDTH = 240  # contact-sheet tile width in pixels
 _COLUMNS = 6  # tiles per row before a sheet wraps
 _LABEL_HEIGHT = 22
@@ -63,62 +53,3 @@ def contact_sheet(tiles: list[tuple[str, np.ndarray, np.ndarray]], tile_width: i
         sheet[top:top + tile_h, x:x + tile_width] = resize(src, (tile_width, tile_h))
         sheet[top + tile_h + 2:top + 2 * tile_h + 2, x:x + tile_width] = resize(styled, (tile_width, tile_h))
     return sheet
-
-
-def preview(input_path: Path, out: Path, settings: Settings, every: int, width: int | None = None,
-            shot_file: Path | None = None, progress: Progress = no_progress) -> list[Path]:
-    """Stylise every ``every``-th frame of each shot into ``out/preview`` and write contact sheets.
-
-    Each previewed frame gets a shot's first-frame treatment (no temporal chain) with its
-    shot's look, colour, strength and matte.
-
-    Parameters
-    ----------
-    width : preview working width (default: the render's width, at most PREVIEW_WIDTH)
-
-    Returns
-    -------
-    The contact sheet paths, one per shot.
-    """
-    out = Path(out)
-    if out.exists() and not out.is_dir():
-        raise FramestyleError(f"{out}: output path is a file, not a folder")
-    if every < 1:
-        raise FramestyleError(f"--every {every}: must be 1 or more")
-    source = frames.open_source(Path(input_path))
-    width = width or min(settings.width, PREVIEW_WIDTH)
-    settings = dataclasses.replace(settings, width=width, shot_looks={
-        n: {**look, "width": width} for n, look in settings.shot_looks.items()})
-    net = check_render(source, settings)
-    shots = find_shots(source, settings, shot_file)
-    chosen = {i: shot for shot in shots for i in sample_frames(shot.start, shot.end, every)}
-    size = working_size(source.width, source.height, settings.width, net.min_side)
-    progress("start", frames=len(chosen), shots=len(shots), done=0, size=size)
-    linear = source.bit_depth == 32
-    folder = out / "preview"
-    tiles: dict[int, list] = {shot.index: [] for shot in shots}
-    looks: dict[int, tuple] = {}  # shot -> (look, mattes)
-    for index, raw in frames.iter_frames(source):
-        if index not in chosen:
-            continue
-        t0 = time.perf_counter()
-        shot = chosen[index]
-        shot_settings = settings.for_shot(shot.index)
-        size = working_size(source.width, source.height, shot_settings.width, net.min_side)
-        frame = prepare_frame(raw, size, shot_settings, linear)
-        if shot.index not in looks:  # the shot's first sampled frame is its first frame
-            looks[shot.index] = (build_look(net, shot_settings, frame.display), Mattes(source, shot_settings.matte))
-        look, mattes = looks[shot.index]
-        result, stats = stylise_alone(look, frame.content, index, shot_settings)
-        delivered = deliver(result, frame, shot_settings, mattes(index, shot_settings.matte_softness), False)
-        name = frames.frame_name(source, index)
-        frames.write_frame(folder / name, delivered)
-        tiles[shot.index].append((Path(name).stem, frame.display, delivered))
-        progress("frame", index=index, shot=shot.index, iterations=stats.iterations,
-                 seconds=time.perf_counter() - t0, skipped=False)
-    sheets = []
-    for shot in shots:
-        path = folder / f"contact_shot{shot.index:03d}.png"
-        frames.write_frame(path, contact_sheet(tiles[shot.index]))
-        sheets.append(path)
-    return sheets

@@ -1,8 +1,10 @@
-"""All render settings in one dataclass, with the defaults a user would pick.
+"""All render settings in one typed dataclass, with the defaults a user would pick.
 
-The CLI builds a :class:`Settings`; the library consumes it. It is saved beside the output
-(``settings.json``) and hashed into the manifest so a resumed render provably uses the same
-settings as the one it continues.
+The CLI builds a :class:`Settings`; the library consumes it. It is saved in the output
+folder's manifest so a resumed render provably uses the same settings as the one it
+continues. Every value is checked on construction (pydantic, strict types): a string where a
+list is meant, an unknown key or an out-of-range value is refused with one line naming the
+key and what is expected, never iterated character by character.
 """
 
 from __future__ import annotations
@@ -10,106 +12,97 @@ from __future__ import annotations
 import dataclasses
 import hashlib
 import json
-from dataclasses import dataclass, field
+import tomllib
 from pathlib import Path
+from typing import Annotated, Any, Literal
 
-from .errors import FramestyleError
+from pydantic import ConfigDict, Field, Strict, ValidationError
+from pydantic.dataclasses import dataclass
+
+from framestyle.errors import FramestyleError
+from framestyle.finish.compose import COLOURS
+from framestyle.motion import FLOW_PRESETS
+
+NETWORKS = ("efficientnet-lite0", "vgg19")
+"""Perceptual networks (see :mod:`framestyle.style.network`)."""
+
+_NonNegative = Annotated[float, Field(ge=0)]
+_Fraction = Annotated[float, Field(gt=0, le=1)]
+_List = Strict(False)  # a TOML/JSON list is accepted for a tuple; its items stay strictly typed
 
 
-@dataclass(frozen=True)
+@dataclass(frozen=True, config=ConfigDict(strict=True, extra="forbid"))
 class Settings:
     # --- look -------------------------------------------------------------------------------
-    styles: tuple[str, ...] = ()  # style image paths; several are mixed at the Gram level
-    style_mix: tuple[float, ...] = ()  # one weight per style image (empty: equal weights)
-    style_weight: float = 5.0  # weight of the relative Gram style loss
-    content_weight: float = 1.0  # weight of the relative content loss
-    tv_weight: float = 10.0  # total-variation weight: suppresses pixel-level speckle
-    style_scale: float = 1.0  # stroke size: style image resized to this × the working size
-    colour: str = "style"  # palette: "style" (painting's), "luma" (footage's), "match" (recoloured style)
-    luma_standard: str = "bt709"  # luma weights for "luma": ITU-R "bt709" (HD) or "bt601" (SD)
-    strength: float = 1.0  # 0 = the footage, 1 = full style (a linear mix)
+    styles: Annotated[tuple[str, ...], _List] = ()  # style image paths, mixed at the Gram level
+    style_mix: Annotated[tuple[_NonNegative, ...], _List] = ()  # one weight per style (empty: equal)
+    style_weight: _NonNegative = 5.0  # weight of the relative Gram style loss
+    content_weight: _NonNegative = 1.0  # weight of the relative content loss
+    tv_weight: _NonNegative = 10.0  # total-variation weight: suppresses pixel-level speckle
+    stroke_size: Annotated[float, Field(gt=0)] = 1.0  # style image resized to this × the working size
+    colour: Literal[COLOURS] = "style"  # palette: the painting's, the footage's (luma), recoloured
+    luma_standard: Literal["bt709", "bt601"] = "bt709"  # luma weights for "luma": HD or SD
+    strength: Annotated[float, Field(ge=0, le=1)] = 1.0  # 0 = the footage, 1 = full style
     matte: str | None = None  # folder of matte frames (white = stylise), or "alpha" for the input's
-    matte_softness: float = 2.0  # soft matte edge: Gaussian sigma in source pixels
-    scales: int = 1  # coarse-to-fine: solve at 1/2**(scales-1) of the size first, then refine
-    shot_looks: dict = field(default_factory=dict)  # per-shot overrides: {"2": {"strength": 0.5}}
+    matte_softness: _NonNegative = 2.0  # soft matte edge: Gaussian sigma in source pixels
+    levels: Annotated[int, Field(ge=1, le=6)] = 1  # coarse-to-fine levels: first solve at 1/2**(levels-1)
+    shot_looks: dict[str, dict[str, Any]] = dataclasses.field(default_factory=dict)  # {"2": {"strength": 0.5}}
     # --- network and solver -----------------------------------------------------------------
-    network: str = "efficientnet-lite0"  # perceptual network (see framestyle.network.NETWORKS)
-    weights: str | None = None  # a state_dict file instead of the network's default weights
-    style_layers: tuple[str, ...] = ()  # empty: the network's default style layers
+    network: Literal[NETWORKS] = "efficientnet-lite0"  # perceptual network
+    network_weights: str | None = None  # a state_dict file instead of the network's default weights
+    style_layers: Annotated[tuple[str, ...], _List] = ()  # empty: the network's default style layers
     content_layer: str = ""  # empty: the network's default content layer
-    width: int = 480  # working width in pixels (never above the source width)
-    iterations: int = 300  # most L-BFGS iterations for one frame
-    tolerance: float = 0.01  # stop when the loss falls by less than this fraction in 10 iterations
-    #                          (half of it for a shot's first frame, which anchors the shot)
-    seed: int = 0  # seeds the noise added where a frame starts from its content
+    width: Annotated[int, Field(ge=1)] = 480  # working width in pixels (never above the source width)
+    iterations: Annotated[int, Field(ge=1)] = 300  # most L-BFGS iterations for one frame
+    tolerance: _NonNegative = 0.01  # stop when the loss falls by less than this fraction in 10
+    #                                 iterations (half of it for a shot's first frame)
+    seed: Annotated[int, Field(ge=0)] = 0  # seeds the noise added where a frame starts from its content
     # --- temporal stability (Ruder et al. 2016) -----------------------------------------------
     temporal: bool = True  # warm start from the warped previous frame + temporal losses
-    temporal_weight: float = 50.0  # weight of the (short- and long-term) temporal loss
-    long_term: tuple[int, ...] = (1, 10, 20, 40)  # frames back tied by the temporal loss
-    flow_preset: str = "medium"  # DIS optical flow preset: ultrafast, fast, medium
+    temporal_weight: _NonNegative = 50.0  # weight of the (short- and long-term) temporal loss
+    long_term: Annotated[tuple[Annotated[int, Field(ge=1)], ...], _List] = (1, 10, 20, 40)  # frames back tied
+    flow_preset: Literal[FLOW_PRESETS] = "medium"  # DIS optical flow preset
     # --- shots ------------------------------------------------------------------------------
     shot_detection: bool = True  # restart the temporal chain at detected cuts
-    cut_threshold: float = 0.4  # colour-histogram distance (0..1) above which a frame is a cut
-    gradual_threshold: float = 0.4  # end-to-end distance that makes a fade or dissolve a boundary
+    cut_threshold: _Fraction = 0.4  # colour-histogram distance (0..1] above which a frame is a cut
+    gradual_threshold: _Fraction = 0.4  # end-to-end distance that makes a fade or dissolve a boundary
 
-    def to_dict(self) -> dict:
-        """Plain JSON-able dict of every field (tuples as lists)."""
-        return dataclasses.asdict(self)
-
-    def digest(self) -> str:
-        """A short hash of the settings; a resumed render must match it exactly."""
-        blob = json.dumps(self.to_dict(), sort_keys=True).encode()
-        return hashlib.sha256(blob).hexdigest()[:16]
-
-    @classmethod
-    def from_dict(cls, d: dict, source: str = "settings") -> "Settings":
-        """Build settings from a dict (e.g. a saved ``settings.json``), checking field names."""
-        names = {f.name for f in dataclasses.fields(cls)}
-        unknown = sorted(set(d) - names)
-        if unknown:
-            raise FramestyleError(f"{source}: unknown setting(s) {', '.join(unknown)}")
-        fixed = {k: tuple(v) if isinstance(v, list) else v for k, v in d.items()}
-        return cls(**fixed)
-
-    def for_shot(self, shot: int) -> "Settings":
-        """The settings of one shot: these, with that shot's overrides from ``shot_looks``."""
-        overrides = {k: tuple(v) if isinstance(v, list) else v
-                     for k, v in self.shot_looks.get(str(shot), {}).items()}
-        return dataclasses.replace(self, **overrides, shot_looks={})
-
-    def check(self, source: str = "settings") -> None:
-        """Raise :class:`FramestyleError` for values no render can use."""
-        from .compose import COLOURS
-
-        problems = []
-        if self.colour not in COLOURS:
-            problems.append(f"colour {self.colour!r} is not one of {', '.join(COLOURS)}")
-        from .flow import FLOW_PRESETS
-
-        if self.flow_preset not in FLOW_PRESETS:
-            problems.append(f"flow_preset {self.flow_preset!r} is not one of {', '.join(FLOW_PRESETS)}")
-        if self.luma_standard not in ("bt601", "bt709"):
-            problems.append(f"luma_standard {self.luma_standard!r} is not bt601 or bt709")
-        if not 0.0 <= self.strength <= 1.0:
-            problems.append(f"strength {self.strength} is outside 0..1")
-        if self.scales < 1 or self.iterations < 1 or self.width < 1:
-            problems.append("scales, iterations and width must be at least 1")
-        if self.style_scale <= 0 or self.matte_softness < 0:
-            problems.append("style_scale must be positive and matte_softness not negative")
-        if 1 not in self.long_term or min(self.long_term) < 1:
-            problems.append("long_term needs frame offsets of 1 or more, including 1")
-        if self.style_mix and (len(self.style_mix) != len(self.styles) or min(self.style_mix) < 0
-                               or sum(self.style_mix) <= 0):
-            problems.append(f"style_mix needs {len(self.styles)} non-negative weights, not all 0")
+    def __post_init__(self) -> None:
+        if 1 not in self.long_term:
+            raise ValueError("long_term must include 1 (the previous frame)")
+        if self.style_mix and (len(self.style_mix) != len(self.styles) or sum(self.style_mix) <= 0):
+            raise ValueError(f"style_mix needs {len(self.styles)} weights, one per style, not all 0")
         names = {f.name for f in dataclasses.fields(self)} - {"shot_looks"}
         for shot, overrides in self.shot_looks.items():
             unknown = sorted(set(overrides) - names)
-            if not str(shot).isdigit() or unknown:
-                problems.append(f"shot {shot}: not a shot number or unknown setting(s) {unknown}")
-        if problems:
-            raise FramestyleError(f"{source}: {'; '.join(problems)}")
-        for shot in self.shot_looks:
-            self.for_shot(int(shot)).check(f"{source}, shot {shot}")
+            if not shot.isdigit() or int(shot) < 1:
+                raise ValueError(f"[shots.{shot}]: not a shot number (1, 2, ...)")
+            if unknown:
+                raise ValueError(f"[shots.{shot}]: unknown setting(s) {', '.join(unknown)}")
+
+    @classmethod
+    def from_dict(cls, values: dict, source: str = "settings") -> "Settings":
+        """Build settings from a dict (a look file, a saved manifest, CLI options); every shot's
+        overrides are checked too. Raises :class:`FramestyleError` naming ``source`` and the key."""
+        settings = _validated(cls, values, source)
+        for shot in settings.shot_looks:
+            settings.for_shot(int(shot), source)
+        return settings
+
+    def to_dict(self) -> dict:
+        """Plain JSON-able dict of every field (tuples as lists)."""
+        return json.loads(json.dumps(dataclasses.asdict(self)))
+
+    def digest(self) -> str:
+        """A short hash of the settings; a resumed render must match it exactly."""
+        return hashlib.sha256(json.dumps(self.to_dict(), sort_keys=True).encode()).hexdigest()[:16]
+
+    def for_shot(self, shot: int, source: str = "settings") -> "Settings":
+        """The settings of one shot: these, with that shot's overrides from ``shot_looks``."""
+        overrides = self.shot_looks.get(str(shot), {})
+        if not overrides:
+            return dataclasses.replace(self, shot_looks={})
+        return _validated(type(self), {**self.to_dict(), **overrides, "shot_looks": {}}, f"{source} [shots.{shot}]")
 
     def differences(self, other: "Settings") -> list[str]:
         """Names of the settings whose values differ from ``other``'s."""
@@ -117,15 +110,40 @@ class Settings:
         return [k for k in a if a[k] != b[k]]
 
 
-_PATH_SETTINGS = ("styles", "weights", "matte")  # resolved against the look file's folder
+def _validated(cls: type, values: dict, source: str):
+    try:
+        return cls(**values)
+    except ValidationError as exc:
+        raise FramestyleError(f"{source}: {'; '.join(_describe(e) for e in exc.errors())}") from None
+
+
+_EXPECTED = {  # pydantic's error types, said in a look-file writer's words
+    "tuple_type": "expected a list, like [\"a.png\", \"b.png\"]", "float_type": "expected a number",
+    "int_type": "expected a whole number", "string_type": "expected text in quotes",
+    "bool_type": "expected true or false", "dict_type": "expected a table",
+    "unexpected_keyword_argument": "unknown setting",
+}
+
+
+def _describe(error: dict) -> str:
+    """One pydantic error as ``key: what is expected (got value)``."""
+    where = ".".join(str(part) for part in error["loc"])
+    if error["type"] == "value_error":
+        return str(error["ctx"]["error"])
+    what = _EXPECTED.get(error["type"], error["msg"].replace("Input should be", "expected"))
+    got = "" if error["type"] == "unexpected_keyword_argument" else f" (got {error['input']!r})"
+    return f"{where}: {what}{got}"
+
+
+_PATH_SETTINGS = ("styles", "network_weights", "matte")  # resolved against the look file's folder
 
 
 def load_look(path: Path) -> dict:
     """Read a look file (TOML) into a dict of settings, ready to merge with CLI options.
 
     Top-level keys are :class:`Settings` fields; a ``[shots.N]`` table overrides settings
-    for shot N. Relative style, weights and matte paths are taken from the look file's
-    folder, so a look travels with its images. Example::
+    for shot N. Relative style, network-weight and matte paths are taken from the look
+    file's folder, so a look travels with its images. Example::
 
         styles = ["paint.png"]
         style_weight = 8.0
@@ -134,20 +152,21 @@ def load_look(path: Path) -> dict:
         [shots.2]
         styles = ["ink.png"]
         strength = 0.6
-    """
-    import tomllib
 
+    Raises :class:`FramestyleError` with one line naming the file, the key and what is
+    expected for a malformed file, a wrong type, an unknown key or an out-of-range value.
+    """
     path = Path(path)
     try:
         data = tomllib.loads(path.read_text())
     except (OSError, UnicodeDecodeError, tomllib.TOMLDecodeError) as exc:
         raise FramestyleError(f"{path}: not a readable look file ({exc})")
     shots = data.pop("shots", {})
-    if not isinstance(shots, dict):
-        raise FramestyleError(f"{path}: [shots] must be a table of shot numbers")
+    if not isinstance(shots, dict) or not all(isinstance(v, dict) for v in shots.values()):
+        raise FramestyleError(f"{path}: shots: expected tables like [shots.2]")
     look = _resolve_paths(data, path.parent)
     look["shot_looks"] = {str(k): _resolve_paths(v, path.parent) for k, v in shots.items()}
-    Settings.from_dict(look, str(path)).check(str(path))
+    Settings.from_dict(look, str(path))
     return look
 
 
@@ -156,7 +175,7 @@ def _resolve_paths(table: dict, folder: Path) -> dict:
     for key in _PATH_SETTINGS:
         value = out.get(key)
         if key == "styles" and isinstance(value, list):
-            out[key] = [str((folder / v).resolve()) for v in value]
+            out[key] = [str((folder / v).resolve()) if isinstance(v, str) else v for v in value]
         elif isinstance(value, str) and value != "alpha":
             out[key] = str((folder / value).resolve())
     return out

@@ -17,11 +17,19 @@ _DROP_FRAMES = {30: 2, 60: 4}
 _HOURS_PER_DAY = 24
 
 
-def _timebase(fps: float) -> tuple[int, int]:
-    """Return ``(nominal integer rate, frame numbers dropped per minute)`` for ``fps``."""
+def ntsc_nominal(fps: float) -> int | None:
+    """The nominal integer rate n if ``fps`` is an NTSC rate n·1000/1001 (within 0.01), else None."""
     for nominal in _NTSC_NOMINAL:
         if abs(fps - nominal * 1000.0 / 1001.0) <= _NTSC_TOLERANCE:
-            return nominal, _DROP_FRAMES.get(nominal, 0)
+            return nominal
+    return None
+
+
+def _timebase(fps: float) -> tuple[int, int]:
+    """Return ``(nominal integer rate, frame numbers dropped per minute)`` for ``fps``."""
+    nominal = ntsc_nominal(fps)
+    if nominal is not None:
+        return nominal, _DROP_FRAMES.get(nominal, 0)
     return max(1, round(fps)), 0
 
 

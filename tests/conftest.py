@@ -11,7 +11,7 @@ from pathlib import Path
 import cv2
 import pytest
 
-from framestyle import checkpoint
+from framestyle import store
 
 from framestyle.settings import Settings
 
@@ -44,10 +44,10 @@ def kill_and_resume(clip: Path, tmp_path: Path, options: list[str]) -> None:
     rewritten or solved twice; the result equals an uninterrupted render bit for bit.
     """
     killed, whole = tmp_path / "killed", tmp_path / "whole"
-    cmd = [sys.executable, "-m", "framestyle", "stylize", str(clip), "-q", *options, "--out"]
+    cmd = [sys.executable, "-m", "framestyle", "stylise", str(clip), "-q", *options, "--out"]
     env = {**os.environ, "PYTHONPATH": str(ROOT)}
     proc = subprocess.Popen([*cmd, str(killed)], env=env, stdout=subprocess.DEVNULL, stderr=subprocess.PIPE)
-    manifest = killed / checkpoint.MANIFEST
+    manifest = killed / store.MANIFEST
     deadline, done = time.time() + 300, 0
     while time.time() < deadline and done < 4 and proc.poll() is None:
         try:

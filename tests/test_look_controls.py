@@ -8,11 +8,11 @@ import cv2
 import numpy as np
 import pytest
 
-from framestyle import checkpoint, frames
-from framestyle.color import rgb_to_ycbcr
-from framestyle.compose import finish
+from framestyle import io, store
+from framestyle.finish.colour import rgb_to_ycbcr
+from framestyle.finish.compose import finish
 from framestyle.errors import FramestyleError
-from framestyle.render import render
+from framestyle.pipeline import render
 from framestyle.settings import Settings, load_look
 
 from conftest import SAMPLE, STYLE, fast_settings, kill_and_resume
@@ -107,12 +107,12 @@ def test_exr_in_gives_exr_out_in_linear_light(tmp_path):
     rng = np.random.default_rng(3)
     base = cv2.resize(rng.random((9, 16, 3)).astype(np.float32), (128, 72), interpolation=cv2.INTER_CUBIC)
     for n in range(1, 4):
-        frames.write_frame(clip / f"plate_{n:03d}.exr", np.clip(np.roll(base, n, axis=1), 0, 1) ** 2.2, 32)
+        io.write_image(clip / f"plate_{n:03d}.exr", np.clip(np.roll(base, n, axis=1), 0, 1) ** 2.2, 32)
     render(clip, tmp_path / "out", fast_settings(iterations=3, strength=0.0))
-    source = frames.open_source(clip)
-    result = frames.open_source(tmp_path / "out")
+    source = io.open_source(clip)
+    result = io.open_source(tmp_path / "out")
     assert result.count == 3 and result.files[0].endswith(".exr")
-    np.testing.assert_allclose(frames.read_frame(result, 1), frames.read_frame(source, 1), atol=2e-3)
+    np.testing.assert_allclose(io.read_frame(result, 1), io.read_frame(source, 1), atol=2e-3)
 
 
 def test_a_look_file_sets_everything_and_per_shot_looks(small_clip, tmp_path):
@@ -128,14 +128,14 @@ def test_a_look_file_sets_everything_and_per_shot_looks(small_clip, tmp_path):
     src2, out2 = _take(small_clip, out, 14)
     assert np.abs(src1 - out1).mean() > 0.03  # shot 1: full style
     assert np.array_equal(src2, out2)  # shot 2: strength 0 from its own look
-    saved = json.loads((out / "settings.json").read_text())
+    saved = json.loads((out / store.MANIFEST).read_text())["settings"]
     assert saved["shot_looks"] == {"2": {"strength": 0.0}}
 
 
 def test_a_bad_look_file_names_the_file_and_the_problem(tmp_path):
     look = tmp_path / "bad.toml"
     look.write_text('strength = 2.0\n')
-    with pytest.raises(FramestyleError, match="bad.toml: strength 2.0 is outside 0..1"):
+    with pytest.raises(FramestyleError, match="bad.toml: strength: expected less than or equal to 1"):
         load_look(look)
     look.write_text('[shots.2]\nsparkle = 1\n')
     with pytest.raises(FramestyleError, match="sparkle"):
@@ -150,8 +150,8 @@ def test_coarse_to_fine_solves_a_coarse_level_first_on_a_shots_first_frame(tmp_p
     for n in (1, 2):
         image = cv2.imread(str(SAMPLE / "frames" / f"drift_{n:04d}.png"))
         cv2.imwrite(str(clip / f"big_{n}.png"), cv2.resize(image, (256, 144), interpolation=cv2.INTER_AREA))
-    render(clip, tmp_path / "out", fast_settings(width=256, scales=2, iterations=4, tolerance=0.0))
-    done = json.loads((tmp_path / "out" / checkpoint.MANIFEST).read_text())["frames"]
+    render(clip, tmp_path / "out", fast_settings(width=256, levels=2, iterations=4, tolerance=0.0))
+    done = json.loads((tmp_path / "out" / store.MANIFEST).read_text())["frames"]
     assert done["big_1.png"]["iterations"] == 8  # 4 at 128×72, then 4 at 256×144
     assert done["big_2.png"]["iterations"] == 4
 
@@ -166,7 +166,7 @@ def test_every_control_survives_sigkill_and_resume(small_clip, tmp_path):
     look = tmp_path / "look.toml"
     look.write_text(
         f'styles = ["{STYLE}", "{INK}"]\nstyle_mix = [0.7, 0.3]\ncolour = "luma"\nstrength = 0.8\n'
-        f'matte = "{mattes}"\nscales = 2\nstyle_scale = 1.5\nwidth = 128\niterations = 25\n'
+        f'matte = "{mattes}"\nlevels = 2\nstroke_size = 1.5\nwidth = 128\niterations = 25\n'
         f'tolerance = 0.0\nlong_term = [1, 4]\n[shots.1]\ncolour = "match"\n'
     )
     kill_and_resume(small_clip, tmp_path, ["--look", str(look), "--shots", "1"])

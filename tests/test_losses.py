@@ -3,7 +3,7 @@
 import numpy as np
 import torch
 
-from framestyle.losses import content_loss, gram_matrix, style_loss, temporal_loss, total_variation
+from framestyle.style.losses import content_loss, gram_matrix, style_loss, temporal_loss, total_variation
 
 
 def test_gram_matrix_matches_numpy_einsum():

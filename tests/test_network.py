@@ -8,7 +8,7 @@ import torch.nn.functional as F
 from skimage import data
 
 from framestyle.errors import FramestyleError
-from framestyle.network import EfficientNetLite0, _lite0_file, _remap_lite0, load_network
+from framestyle.style.network import EfficientNetLite0, lite0_weights_file, remap_lite0_keys, load_network
 
 
 @pytest.fixture(scope="module")
@@ -22,7 +22,7 @@ def _imagenet_input(image: np.ndarray) -> torch.Tensor:
 
 
 def test_embedded_weights_fill_every_parameter_of_the_architecture(plain_net):
-    shipped = _remap_lite0(torch.load(_lite0_file(), map_location="cpu", weights_only=True))
+    shipped = remap_lite0_keys(torch.load(lite0_weights_file(), map_location="cpu", weights_only=True))
     # load_state_dict is strict by default; check the key sets too, so nothing is left random.
     assert set(shipped) == set(plain_net.state_dict())
 

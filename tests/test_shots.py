@@ -5,17 +5,9 @@ import numpy as np
 import pytest
 
 from framestyle.errors import FramestyleError
-from framestyle.shots import (
-    HISTOGRAM_BINS,
-    SIGNATURE_WIDTH,
-    Shot,
-    apply_overrides,
-    detect_shots,
-    format_shot_table,
-    frame_signature,
-    parse_shot_file,
-    shots_from_boundaries,
-)
+from framestyle.shots import Shot, shots_from_boundaries
+from framestyle.shots.detect import HISTOGRAM_BINS, SIGNATURE_WIDTH, detect_shots, frame_signature
+from framestyle.shots.lists import apply_overrides, format_shot_table, parse_shot_file
 
 # --- synthetic footage: smooth procedural textures, one palette per shot -----------------
 

@@ -6,12 +6,12 @@ import numpy as np
 import pytest
 import torch
 
-from framestyle.frames import read_image
-from framestyle.network import load_network
+from framestyle.io import read_image
+from framestyle.style.network import load_network
 from framestyle.imaging import resize, to_array, to_tensor
-from framestyle.render import fresh_problem, start_noise
+from framestyle.temporal import fresh_problem, start_noise
 from framestyle.settings import Settings
-from framestyle.solver import Problem, solve, style_targets
+from framestyle.style.solver import Problem, SolverParams, solve, style_targets
 
 CLIP = Path(__file__).resolve().parents[1] / "sample_clip"
 SIZE = (160, 90)
@@ -35,7 +35,7 @@ def test_style_loss_falls_tenfold_while_the_content_stays(setup):
     # content loss keeps the scene; we require an order of magnitude on the style side.
     net, targets, content = setup
     # A bold look (style weight 10; the default 5 with its smoothing term gives about 9.5×).
-    settings = Settings(iterations=80, tolerance=0.0, style_weight=10.0)
+    settings = SolverParams(iterations=80, tolerance=0.0, style_weight=10.0)
     frame = to_tensor(content)
     _, before = solve(net, Problem(frame, frame), targets, settings, iterations=1)  # the content frame
     image, after = solve(net, _problem(content), targets, settings)
@@ -46,7 +46,7 @@ def test_style_loss_falls_tenfold_while_the_content_stays(setup):
 
 def test_the_same_seed_gives_the_same_frame_and_another_seed_does_not(setup):
     net, targets, content = setup
-    settings = Settings(iterations=10)
+    settings = SolverParams(iterations=10)
     a, _ = solve(net, _problem(content, 0), targets, settings)
     b, _ = solve(net, _problem(content, 0), targets, settings)
     c, _ = solve(net, _problem(content, 1), targets, settings)
@@ -57,7 +57,7 @@ def test_the_same_seed_gives_the_same_frame_and_another_seed_does_not(setup):
 def test_a_converged_start_stops_early(setup):
     # Convergence-based stopping: a frame that starts at a solution needs few iterations.
     net, targets, content = setup
-    settings = Settings(iterations=200, tolerance=0.01)
+    settings = SolverParams(iterations=200, tolerance=0.01)
     image, first = solve(net, _problem(content), targets, settings)
     _, again = solve(net, Problem(to_tensor(content), image), targets, settings)
     assert again.iterations < first.iterations / 2

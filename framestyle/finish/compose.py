@@ -1,5 +1,7 @@
 """Finishing a stylised frame for the edit: colour preservation, strength, matte, light encoding.
 
+Mattes themselves (reading and softening) are in :mod:`framestyle.finish.matte`.
+
 The solver works on display-referred RGB at working size; these pure functions turn its
 result into the delivered frame at source size. They run after the optimisation, so none of
 them disturbs the temporal chain (which is built from the solver's results).
@@ -13,10 +15,9 @@ True
 
 from __future__ import annotations
 
-import cv2
 import numpy as np
 
-from .color import linear_to_srgb, luma, luminance_transfer, srgb_to_linear
+from framestyle.finish.colour import linear_to_srgb, luma, luminance_transfer, srgb_to_linear
 
 COLOURS = ("style", "luma", "match")
 """Palette choices: the painting's colours; the footage's (luminance-only transfer, Gatys et
@@ -31,18 +32,6 @@ def luma_image(rgb: np.ndarray, standard: str) -> np.ndarray:
     and style; the network expects RGB, so the luma goes into all three channels.
     """
     return np.repeat(luma(rgb, standard)[..., None], 3, axis=2).astype(np.float32)
-
-
-def soft_matte(matte: np.ndarray, softness: float) -> np.ndarray:
-    """Soften a matte's edge: Gaussian blur with standard deviation ``softness`` pixels.
-
-    Parameters
-    ----------
-    matte : (H, W) float in [0, 1]; 1 = stylise, 0 = keep the footage
-    softness : blur sigma in pixels (0 = hard edge)
-    """
-    matte = np.clip(matte.astype(np.float32), 0.0, 1.0)
-    return cv2.GaussianBlur(matte, (0, 0), softness) if softness > 0 else matte
 
 
 def finish(

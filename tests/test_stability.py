@@ -1,4 +1,4 @@
-"""Tests for framestyle.metrics: the flow warping error of Lai et al. (2018)."""
+"""Tests for framestyle.qc.stability: the flow warping error of Lai et al. (2018)."""
 
 import math
 
@@ -6,8 +6,8 @@ import numpy as np
 import pytest
 from scipy import ndimage
 
-import framestyle.metrics as metrics
-from framestyle.metrics import pair_warping_error, sequence_warping_error
+from framestyle.motion import FlowPair
+from framestyle.qc.stability import pair_warping_error, sequence_warping_error
 
 H = W = 128
 
@@ -72,7 +72,7 @@ def test_stable_stylisation_of_a_pan_scores_near_zero_and_flicker_adds_its_energ
 
 def test_pair_error_is_zero_when_no_pixel_is_reliable(monkeypatch):
     src = _rgb(_texture((H, W), 2.0, np.random.default_rng(3)))
-    monkeypatch.setattr(metrics, "reliability_mask", lambda back, fwd: np.zeros(back.shape[:2], np.float32))
+    monkeypatch.setattr(FlowPair, "earlier_mask", lambda flows: np.zeros(flows.forward.shape[:2], np.float32))
     assert pair_warping_error(src, 1.0 - src, src, src) == 0.0
 
 

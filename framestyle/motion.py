@@ -1,4 +1,4 @@
-"""Optical flow, backward warping and flow reliability masks for temporally stable stylisation.
+"""Motion: optical flow, backward warping, flow reliability (occlusion) masks.
 
 Conventions: images are float32 ``(H, W, 3)`` RGB in [0, 1]; a flow is float32 ``(H, W, 2)`` in
 pixels, channel 0 = dx (columns), channel 1 = dy (rows); masks are float32 ``(H, W)``.
@@ -15,8 +15,8 @@ Ruder, Dosovitskiy & Brox (2016), "Artistic style transfer for videos", GCPR, Se
 
 from __future__ import annotations
 
-import threading
 from collections.abc import Sequence
+from dataclasses import dataclass
 
 import cv2
 import numpy as np
@@ -29,22 +29,9 @@ _PRESET_IDS = {
     "medium": cv2.DISOPTICAL_FLOW_PRESET_MEDIUM,
 }
 
-# One DIS object per preset and per thread: an object keeps its scratch buffers between calls
-# (reuse saves reallocating them), and so must not run calc() in two threads at once.
-_dis_cache = threading.local()
-
 # Thresholds of the forward-backward consistency check, Ruder et al. (2016), Sec. 3.
 _DISOCC_REL, _DISOCC_ABS = 0.01, 0.5
 _BOUNDARY_REL, _BOUNDARY_ABS = 0.01, 0.002
-
-
-def _dis(preset: str) -> cv2.DISOpticalFlow:
-    cache = getattr(_dis_cache, "by_preset", None)
-    if cache is None:
-        cache = _dis_cache.by_preset = {}
-    if preset not in cache:
-        cache[preset] = cv2.DISOpticalFlow_create(_PRESET_IDS[preset])
-    return cache[preset]
 
 
 def _to_gray_u8(image: np.ndarray) -> np.ndarray:
@@ -52,7 +39,8 @@ def _to_gray_u8(image: np.ndarray) -> np.ndarray:
     return np.rint(gray * 255.0).astype(np.uint8)
 
 
-def _check_rgb(name: str, image: np.ndarray) -> None:
+def check_rgb(name: str, image: np.ndarray) -> None:
+    """Raise ValueError unless ``image`` is an (H, W, 3) array."""
     if not isinstance(image, np.ndarray) or image.ndim != 3 or image.shape[2] != 3:
         raise ValueError(f"{name} must be an (H, W, 3) RGB array, got {getattr(image, 'shape', type(image))}")
 
@@ -95,12 +83,12 @@ def compute_flow(src: np.ndarray, dst: np.ndarray, preset: str = "medium") -> np
     """
     if preset not in _PRESET_IDS:
         raise ValueError(f"unknown flow preset {preset!r}; expected one of {FLOW_PRESETS}")
-    _check_rgb("src", src)
-    _check_rgb("dst", dst)
+    check_rgb("src", src)
+    check_rgb("dst", dst)
     if src.shape != dst.shape:
         raise ValueError(f"src and dst differ in shape: {src.shape} vs {dst.shape}")
     try:
-        flow = _dis(preset).calc(_to_gray_u8(src), _to_gray_u8(dst), None)
+        flow = cv2.DISOpticalFlow_create(_PRESET_IDS[preset]).calc(_to_gray_u8(src), _to_gray_u8(dst), None)
     except cv2.error as exc:
         raise ValueError(f"DIS optical flow cannot handle a {src.shape[0]}x{src.shape[1]} image") from exc
     return flow.astype(np.float32, copy=False)
@@ -237,3 +225,35 @@ def long_term_masks(masks: Sequence[np.ndarray]) -> list[np.ndarray]:
         out.append(np.maximum(mask - more_recent, 0.0).astype(np.float32))
         more_recent = more_recent + mask
     return out
+
+
+@dataclass(frozen=True)
+class FlowPair:
+    """Optical flow both ways between a frame and an earlier frame of its shot.
+
+    Computed once per pair of frames and shared by everything that needs the motion between
+    them: the starting image and temporal loss of the later frame (Ruder et al. 2016) and the
+    warping error of the pair (Lai et al. 2018).
+
+    Attributes
+    ----------
+    backward : (H, W, 2) flow current → earlier; ``warp(earlier_image, backward)`` brings the
+        earlier frame into the current frame's pixel grid
+    forward : (H, W, 2) flow earlier → current
+    """
+
+    backward: np.ndarray
+    forward: np.ndarray
+
+    @classmethod
+    def between(cls, current: np.ndarray, earlier: np.ndarray, preset: str = "medium") -> "FlowPair":
+        """DIS flow both ways between (H, W, 3) frames ``current`` and ``earlier``."""
+        return cls(compute_flow(current, earlier, preset), compute_flow(earlier, current, preset))
+
+    def current_mask(self) -> np.ndarray:
+        """(H, W) reliability of the current frame's pixels (disocclusions, motion boundaries)."""
+        return reliability_mask(self.backward, self.forward)
+
+    def earlier_mask(self) -> np.ndarray:
+        """(H, W) reliability of the earlier frame's pixels, the mask of the warping error."""
+        return reliability_mask(self.forward, self.backward)

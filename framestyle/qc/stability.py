@@ -1,7 +1,10 @@
-"""Temporal stability of a stylised shot: the flow warping error of Lai et al. (2018).
+"""Temporal stability of a render: the flow warping error of Lai et al. (2018), per shot.
 
 The flow and the occlusion mask come from the *source* frames, so the measure asks how much the
-stylised frames change where the source scene itself only moved.
+stylised frames change where the source scene itself only moved. It is computed between
+consecutive frames of the same shot only (a cut is meant to change), and the same figure for
+the source footage is the reference: a render cannot be steadier than its footage's own
+change along the motion.
 
 References
 ----------
@@ -11,20 +14,22 @@ ECCV (the warping error of its evaluation section; section number not checked).
 
 from __future__ import annotations
 
+import math
 from collections.abc import Iterable
+from dataclasses import dataclass
+from pathlib import Path
 
-import cv2
 import numpy as np
 
-from framestyle.flow import _check_rgb, compute_flow, reliability_mask, warp
+from framestyle import io, store
+from framestyle.errors import FramestyleError
+from framestyle.shots import Shot
+from framestyle.shots.detect import detect_shots, frame_signature
+
+from framestyle.imaging import resize
+from framestyle.motion import FlowPair, check_rgb, warp
 
 _END = object()  # end-of-sequence marker for next()
-
-
-def _resize_to(image: np.ndarray, height: int, width: int) -> np.ndarray:
-    if image.shape[:2] == (height, width):
-        return image
-    return cv2.resize(image, (width, height), interpolation=cv2.INTER_AREA)
 
 
 def pair_warping_error(
@@ -53,7 +58,7 @@ def pair_warping_error(
     src_t, src_next : np.ndarray
         Source frames, float RGB ``(h, w, 3)`` in [0, 1], same shape.
     preset : str
-        DIS preset for the flow, one of ``framestyle.flow.FLOW_PRESETS``.
+        DIS preset for the flow, one of ``framestyle.motion.FLOW_PRESETS``.
 
     Returns
     -------
@@ -66,21 +71,29 @@ def pair_warping_error(
     Ruder, Dosovitskiy & Brox (2016), "Artistic style transfer for videos", GCPR, Sec. 3.
     """
     for name, image in (("out_t", out_t), ("out_next", out_next), ("src_t", src_t), ("src_next", src_next)):
-        _check_rgb(name, image)
+        check_rgb(name, image)
     if out_t.shape != out_next.shape:
         raise ValueError(f"out_t and out_next differ in shape: {out_t.shape} vs {out_next.shape}")
     if src_t.shape != src_next.shape:
         raise ValueError(f"src_t and src_next differ in shape: {src_t.shape} vs {src_next.shape}")
-    height, width = out_t.shape[:2]
-    src_t = _resize_to(src_t.astype(np.float32, copy=False), height, width)
-    src_next = _resize_to(src_next.astype(np.float32, copy=False), height, width)
+    size = (out_t.shape[1], out_t.shape[0])
+    src_t = resize(src_t.astype(np.float32, copy=False), size)
+    src_next = resize(src_next.astype(np.float32, copy=False), size)
+    return flow_warping_error(out_t, out_next, FlowPair.between(src_next, src_t, preset))
 
-    flow = compute_flow(src_t, src_next, preset)
-    mask = reliability_mask(flow, compute_flow(src_next, src_t, preset)).astype(np.float64)
+
+def flow_warping_error(out_t: np.ndarray, out_next: np.ndarray, flows: FlowPair) -> float:
+    """The warping error of stylised frames V_t, V_{t+1} given the source frames' flows.
+
+    ``flows`` is the :class:`FlowPair` between source frame t+1 (current) and t (earlier):
+    F = ``flows.forward`` and M = ``flows.earlier_mask()`` in the formula of
+    :func:`pair_warping_error`. Lets a render reuse the flows its temporal loss computed.
+    """
+    mask = flows.earlier_mask().astype(np.float64)
     total = mask.sum()
     if total == 0.0:
         return 0.0
-    diff = out_t.astype(np.float64) - warp(out_next, flow)
+    diff = out_t.astype(np.float64) - warp(out_next, flows.forward)
     return float(np.sum(mask * np.sum(diff * diff, axis=-1)) / total)
 
 
@@ -101,7 +114,7 @@ def sequence_warping_error(
     sources : Iterable[np.ndarray]
         The matching source frames, float RGB ``(h, w, 3)`` in [0, 1], as many as ``outputs``.
     preset : str
-        DIS preset for the flow, one of ``framestyle.flow.FLOW_PRESETS``.
+        DIS preset for the flow, one of ``framestyle.motion.FLOW_PRESETS``.
 
     Returns
     -------
@@ -132,3 +145,47 @@ def sequence_warping_error(
             pairs += 1
         previous = (out, src)
     return total / pairs if pairs else float("nan")
+
+
+@dataclass
+class ShotStability:
+    shot: Shot
+    render: float  # mean warping error of the stylised frames
+    source: float  # the same for the source footage
+
+
+def _shots(out: Path, source: io.FrameSource) -> list[Shot]:
+    manifest = store.read_manifest(out)
+    if manifest is not None:
+        return [Shot(s["shot"], s["start"], s["end"]) for s in manifest["shots"]]
+    return detect_shots([frame_signature(f) for _, f in io.iter_frames(source)])
+
+
+def stability(out: Path, source_path: Path, preset: str = "medium") -> list[ShotStability]:
+    """Warping error per shot of the frames in ``out`` against the source at ``source_path``.
+
+    The shot list comes from the render's manifest, or is detected on the source.
+    """
+    out = Path(out)
+    source = io.open_source(Path(source_path))
+    rendered = io.open_source(out)
+    if rendered.count != source.count:
+        raise FramestyleError(f"{out}: holds {rendered.count} frames but the source has {source.count}")
+    result = []
+    for shot in _shots(out, source):
+        def stream(clip):  # frames of this shot, read as needed: memory does not grow
+            return (f for _, f in io.iter_frames(clip, shot.start, shot.end + 1))
+
+        result.append(ShotStability(
+            shot,
+            sequence_warping_error(stream(rendered), stream(source), preset),
+            sequence_warping_error(stream(source), stream(source), preset),
+        ))
+    return result
+
+
+def overall(rows: list[ShotStability], attr: str) -> float:
+    """Mean over shots, weighted by frame pairs; one-frame shots (NaN) are left out."""
+    pairs = [(getattr(r, attr), r.shot.end - r.shot.start) for r in rows if not math.isnan(getattr(r, attr))]
+    n = sum(p for _, p in pairs)
+    return sum(v * p for v, p in pairs) / n if n else float("nan")

@@ -11,12 +11,12 @@ import cv2
 import numpy as np
 import pytest
 
-from framestyle import checkpoint, frames
+from framestyle import io, store
 from framestyle.errors import FramestyleError
 from framestyle.imaging import resize
-from framestyle.look import build_look
-from framestyle.network import load_network
-from framestyle.render import render, stylise_alone
+from framestyle.style.look import build_look
+from framestyle.style.network import load_network
+from framestyle.pipeline import render, solver_params, stylise
 
 from conftest import STYLE, fast_settings, kill_and_resume
 
@@ -43,11 +43,11 @@ def test_writes_one_png_per_input_frame_named_after_the_input(full_render, small
 
 def test_manifest_records_settings_shots_and_every_frame(full_render):
     out, _, _ = full_render
-    manifest = json.loads((out / checkpoint.MANIFEST).read_text())
+    manifest = json.loads((out / store.MANIFEST).read_text())
     assert manifest["shots"] == [{"shot": 1, "start": 0, "end": 9}, {"shot": 2, "start": 10, "end": 19}]
     assert len(manifest["frames"]) == 20
-    assert manifest["settings_hash"] == fast_settings().digest()
-    assert (out / "settings.json").exists() and (out / "render.log").read_text().count("shot 2 done") == 1
+    assert manifest["settings"] == fast_settings().to_dict()
+    assert (out / "render.log").read_text().count("shot 2 done") == 1
     assert not (out / ".state").exists() or not any((out / ".state").rglob("*.npy"))
 
 
@@ -56,11 +56,10 @@ def test_each_shot_starts_fresh_at_a_cut(full_render, small_clip):
     # strokes is carried across the cut.
     out, _, _ = full_render
     settings = fast_settings()
-    source = frames.open_source(small_clip)
+    source = io.open_source(small_clip)
     look = build_look(load_network(settings.network), settings)
-    content = resize(frames.read_frame(source, 10), (128, 72))
-    anchor = dataclasses.replace(settings, tolerance=settings.tolerance / 2)  # a shot's first frame
-    image, _ = stylise_alone(look, content, 10, anchor)
+    content = resize(io.read_frame(source, 10), (128, 72))
+    image, _ = stylise(look, content, 10, [], solver_params(settings), settings.seed)  # a shot's first frame
     alone = np.round(image * 255).astype(np.uint8)
     rendered = cv2.imread(str(out / "take_011.png"))[..., ::-1]
     assert np.array_equal(alone, rendered)
@@ -123,3 +122,18 @@ def test_a_live_lock_refuses_a_second_render_and_a_stale_one_is_taken_over(small
 def test_sigkill_mid_shot_then_rerun_finishes_with_nothing_lost_or_recomputed(small_clip, tmp_path):
     kill_and_resume(small_clip, tmp_path, ["--style", str(STYLE), "--width", "128", "--iterations", "25",
                                            "--tolerance", "0", "--shots", "1"])
+
+
+def test_each_frame_pair_flows_are_computed_once_and_shared_with_the_warping_error(small_clip, tmp_path, monkeypatch):
+    # Every warm-started frame needs the flow both ways to each earlier frame its temporal
+    # loss ties it to (long_term (1, 4): frames 1 and 4 back, within its shot); the in-render
+    # warping error of the frame and its predecessor reuses the pair for offset 1.
+    import framestyle.motion as motion
+
+    calls = []
+    real = motion.compute_flow
+    monkeypatch.setattr(motion, "compute_flow", lambda *a, **k: calls.append(1) or real(*a, **k))
+    result = render(small_clip, tmp_path / "out", fast_settings(iterations=2), shots="1")
+    pairs = sum(1 for k in range(10) for j in (1, 4) if k - j >= 0)  # shot 1 is frames 0..9
+    assert len(calls) == 2 * pairs
+    assert result.shots[0].warp_error_pairs == 9

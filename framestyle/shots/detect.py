@@ -1,4 +1,4 @@
-"""Shot boundary detection (hard cuts and gradual transitions) and user shot lists.
+"""Shot boundary detection: hard cuts and gradual transitions.
 
 Each frame is reduced to a small colour signature, a joint RGB histogram of a downscaled
 copy, so a caller can stream a clip through :func:`frame_signature` and keep only the
@@ -25,8 +25,8 @@ signatures. :func:`detect_shots` compares signatures with the total-variation di
 
 Colour histograms ignore where colours are, so they are largely invariant to motion
 (Swain & Ballard 1991). The price is that a cut between two shots with the same colours
-is missed; a user can correct that with a shot list (:func:`parse_shot_file`) or with
-:func:`apply_overrides`.
+is missed; a user can correct that with a shot list (:func:`framestyle.shots.lists.parse_shot_file`)
+or with :func:`framestyle.shots.lists.apply_overrides`.
 
 References
 ----------
@@ -40,18 +40,12 @@ Computer Vision, 7(1), 11-32.
 
 from __future__ import annotations
 
-import json
-import os
-import re
-from dataclasses import dataclass
-from pathlib import Path
-from typing import Iterable, Sequence
+from typing import Sequence
 
 import cv2
 import numpy as np
 
-from framestyle.errors import FramestyleError
-from framestyle.timecode import frame_to_timecode
+from framestyle.shots.shot import Shot, shots_from_boundaries
 
 SIGNATURE_WIDTH = 160
 """Frames wider than this are downscaled to it (area averaging) before counting colours."""
@@ -62,25 +56,6 @@ _PEAK_RADIUS = 2  # neighbours on each side a cut must clearly exceed
 _TIE_TOLERANCE = 0.01  # distances this close count as equal when placing a boundary
 _BLANK_SHARE = 0.95  # a frame with this much of it in one bin is blank (black, a flash)
 _END_FRAMES = 3  # a transition's ends are compared as means of this many frames
-_JSON_SPACE = re.compile(r"[ \t\n\r]*")  # JSON's insignificant whitespace (RFC 8259)
-
-
-@dataclass(frozen=True)
-class Shot:
-    """One shot: 1-based ``index`` and 0-based inclusive frame range ``start .. end``."""
-
-    index: int
-    start: int
-    end: int
-
-    @property
-    def length(self) -> int:
-        """Number of frames in the shot."""
-        return self.end - self.start + 1
-
-    def to_dict(self) -> dict[str, int]:
-        """Return ``{"shot": index, "start": start, "end": end}``, one shot-list JSON entry."""
-        return {"shot": self.index, "start": self.start, "end": self.end}
 
 
 def frame_signature(frame: np.ndarray) -> np.ndarray:
@@ -122,12 +97,13 @@ def frame_signature(frame: np.ndarray) -> np.ndarray:
     return (counts / codes.size).astype(np.float32)
 
 
-def signature_distance(a: np.ndarray, b: np.ndarray) -> float:
-    """Total-variation distance of two signatures: half their L1 difference, in [0, 1].
+def signature_distance(a: np.ndarray, b: np.ndarray) -> np.ndarray:
+    """Total-variation distance of signatures: half their L1 difference, in [0, 1].
 
-    0 means the same colour distribution, 1 means no colour bin in common.
+    0 means the same colour distribution, 1 means no colour bin in common. ``a`` and ``b``
+    are ``(..., bins)`` arrays that broadcast; the distance is taken over the last axis.
     """
-    return 0.5 * float(np.abs(np.asarray(a, np.float32) - np.asarray(b, np.float32)).sum())
+    return 0.5 * np.abs(np.asarray(a, np.float32) - np.asarray(b, np.float32)).sum(axis=-1)
 
 
 def detect_shots(
@@ -202,7 +178,7 @@ def detect_shots(
     n_frames = len(sigs)
     if n_frames == 1:
         return [Shot(1, 0, 0)]
-    steps = 0.5 * np.abs(np.diff(sigs, axis=0)).sum(axis=1)
+    steps = signature_distance(sigs[1:], sigs[:-1])
     is_cut = _cut_mask(steps, cut_threshold, adaptive_k, adaptive_window, peak_ratio)
     boundaries = [(int(i) + 1, float(steps[i])) for i in np.flatnonzero(is_cut)]
     blank = sigs.max(axis=1) >= _BLANK_SHARE
@@ -290,7 +266,7 @@ def _most_different_span(
     frames apart within ``first .. last`` (the run's own ends if it is that short)."""
     span = min(max_length, last - first)
     starts = np.arange(first, last - span + 1)
-    distances = 0.5 * np.abs(from_[starts + span] - up_to[starts]).sum(axis=1)
+    distances = signature_distance(from_[starts + span], up_to[starts])
     best = int(np.argmax(distances))
     return int(starts[best]), int(starts[best]) + span, float(distances[best])
 
@@ -306,7 +282,7 @@ def _transition_frame(
     """
     inner = sigs[first + 1 : last + 1]
     unlikeness = np.minimum(
-        0.5 * np.abs(inner - before).sum(axis=1), 0.5 * np.abs(inner - after).sum(axis=1)
+        signature_distance(inner, before), signature_distance(inner, after)
     )
     ties = np.flatnonzero(unlikeness >= unlikeness.max() - _TIE_TOLERANCE)
     return first + 1 + int(ties[len(ties) // 2])
@@ -321,239 +297,3 @@ def _space_boundaries(boundaries: list[tuple[int, float]], min_gap: int) -> list
     return sorted(kept)
 
 
-def shots_from_boundaries(starts: Iterable[int], n_frames: int) -> list[Shot]:
-    """Build contiguous shots from their start frames.
-
-    Parameters
-    ----------
-    starts : iterable of int
-        0-based first frames of the shots, strictly increasing, each in
-        ``0 .. n_frames - 1``; frame 0 is added if missing.
-    n_frames : int
-        Number of frames in the clip, ``>= 1``.
-
-    Returns
-    -------
-    list[Shot]
-        Shots numbered from 1, the last one ending at ``n_frames - 1``.
-    """
-    if n_frames < 1:
-        raise ValueError(f"n_frames must be >= 1, got {n_frames}")
-    starts = [int(s) for s in starts]
-    if any(b <= a for a, b in zip(starts, starts[1:])):
-        raise ValueError(f"shot starts must be strictly increasing, got {starts}")
-    if starts and not (0 <= starts[0] and starts[-1] < n_frames):
-        raise ValueError(f"shot starts must lie in 0..{n_frames - 1}, got {starts}")
-    if not starts or starts[0] != 0:
-        starts.insert(0, 0)
-    ends = [s - 1 for s in starts[1:]] + [n_frames - 1]
-    return [Shot(i, s, e) for i, (s, e) in enumerate(zip(starts, ends), start=1)]
-
-
-def parse_shot_file(path: str | os.PathLike, n_frames: int) -> list[Shot]:
-    """Read a user's shot list, in either of two formats.
-
-    *Text* (ours): one shot start frame (0-based) per line, in increasing order. Blank
-    lines and everything after ``#`` are ignored. Frame 0 always starts shot 1 and may
-    be left out::
-
-        # shot starts for the harbour clip
-        0
-        48    # the cut to the close-up
-        131
-
-    *JSON*: the list that ``framestyle shots --json`` prints,
-    ``[{"shot": 1, "start": 0, "end": 47}, ...]``. The ``start`` values define the shots;
-    ``shot`` numbers are ignored (shots are renumbered). An ``end`` must lie between its
-    ``start`` and the clip's last frame and before the next ``start``, but may leave a
-    gap: deleting an entry merges its shot into the one before.
-
-    Parameters
-    ----------
-    path : str or os.PathLike
-        The shot list file, UTF-8.
-    n_frames : int
-        Number of frames in the clip the list is for.
-
-    Returns
-    -------
-    list[Shot]
-
-    Raises
-    ------
-    FramestyleError
-        If the file cannot be read or a line is malformed, out of range or out of order;
-        the message names the file and line.
-    """
-    try:
-        text = Path(path).read_text(encoding="utf-8-sig")  # tolerate a byte-order mark
-    except (OSError, UnicodeDecodeError) as exc:
-        raise FramestyleError(f"{path}: cannot read the shot list ({exc})") from exc
-    if text.lstrip().startswith("["):
-        starts = _json_shot_starts(text, path, n_frames)
-    else:
-        starts = _text_shot_starts(text, path, n_frames)
-    return shots_from_boundaries(starts, n_frames)
-
-
-def _check_start(start: int, previous: int | None, where: str, n_frames: int) -> None:
-    """Raise FramestyleError if a listed start is out of the clip or out of order."""
-    if not 0 <= start < n_frames:
-        raise FramestyleError(
-            f"{where}: frame {start} is outside the clip (frames 0..{n_frames - 1})"
-        )
-    if previous is not None and start <= previous:
-        raise FramestyleError(
-            f"{where}: shot start {start} does not come after the previous start {previous}"
-        )
-
-
-def _text_shot_starts(text: str, path: str | os.PathLike, n_frames: int) -> list[int]:
-    """Shot starts from our text format (see :func:`parse_shot_file`)."""
-    starts: list[int] = []
-    for line_number, line in enumerate(text.splitlines(), start=1):
-        field = line.split("#", 1)[0].strip()
-        if not field:
-            continue
-        where = f"{path}:{line_number}"
-        if not field.isdecimal():
-            raise FramestyleError(f"{where}: expected one frame number (0-based), got {field!r}")
-        start = int(field)
-        _check_start(start, starts[-1] if starts else None, where, n_frames)
-        starts.append(start)
-    if not starts:
-        raise FramestyleError(f"{path}: the shot list names no shot start (write 0 for one shot)")
-    return starts
-
-
-def _json_shot_starts(text: str, path: str | os.PathLike, n_frames: int) -> list[int]:
-    """Shot starts from the JSON list ``framestyle shots --json`` prints."""
-    try:
-        entries = json.loads(text)
-    except json.JSONDecodeError as exc:
-        raise FramestyleError(f"{path}:{exc.lineno}: not valid JSON ({exc.msg})") from exc
-    if not entries:
-        raise FramestyleError(f"{path}: the shot list is empty")
-    starts: list[int] = []
-    previous_end: int | None = None
-    for line_number, entry in zip(_array_entry_lines(text), entries):
-        where = f"{path}:{line_number}"
-        if not (isinstance(entry, dict) and all(type(entry.get(k)) is int for k in ("start", "end"))):
-            raise FramestyleError(
-                f'{where}: expected {{"shot": N, "start": FRAME, "end": FRAME}}, got {entry!r}'
-            )
-        _check_start(entry["start"], starts[-1] if starts else None, where, n_frames)
-        if previous_end is not None and entry["start"] <= previous_end:
-            raise FramestyleError(
-                f"{where}: start {entry['start']} is inside the previous shot"
-                f" (which ends at {previous_end})"
-            )
-        if not entry["start"] <= entry["end"] < n_frames:
-            raise FramestyleError(
-                f"{where}: end {entry['end']} is not in {entry['start']}..{n_frames - 1}"
-            )
-        starts.append(entry["start"])
-        previous_end = entry["end"]
-    return starts
-
-
-def _array_entry_lines(text: str) -> list[int]:
-    """Return the 1-based line on which each element of a valid top-level JSON array starts."""
-    decoder = json.JSONDecoder()
-    lines: list[int] = []
-    position = _JSON_SPACE.match(text, text.index("[") + 1).end()
-    while text[position] != "]":
-        lines.append(text.count("\n", 0, position) + 1)
-        _, position = decoder.raw_decode(text, position)
-        position = _JSON_SPACE.match(text, position).end()
-        if text[position] == ",":
-            position = _JSON_SPACE.match(text, position + 1).end()
-    return lines
-
-
-def apply_overrides(
-    shots: Sequence[Shot], add_cuts: Iterable[int] = (), remove_cuts: Iterable[int] = ()
-) -> list[Shot]:
-    """Add or remove cuts, given as the start frame of the shot they begin, and renumber.
-
-    Adding a cut where a shot already starts changes nothing.
-
-    Parameters
-    ----------
-    shots : sequence of Shot
-        Contiguous shots starting at frame 0 (as :func:`detect_shots` returns them).
-    add_cuts : iterable of int
-        Frames in ``1 .. last frame`` that should start a new shot.
-    remove_cuts : iterable of int
-        Current shot starts (not 0) whose shot should join the one before.
-
-    Returns
-    -------
-    list[Shot]
-
-    Raises
-    ------
-    FramestyleError
-        If a frame is out of the clip, a removed frame starts no shot, frame 0 is
-        removed, or one frame is both added and removed.
-    """
-    _check_contiguous(shots)
-    n_frames = shots[-1].end + 1
-    starts = {shot.start for shot in shots}
-    add, remove = {int(f) for f in add_cuts}, {int(f) for f in remove_cuts}
-    both = sorted(add & remove)
-    if both:
-        raise FramestyleError(f"frame {both[0]} is given both as a cut to add and as one to remove")
-    for frame in sorted(add):
-        if not 0 <= frame < n_frames:
-            raise FramestyleError(
-                f"cannot add a cut at frame {frame}: the clip has frames 0..{n_frames - 1}"
-            )
-    for frame in sorted(remove):
-        if frame == 0:
-            raise FramestyleError("cannot remove the cut at frame 0: it starts the clip")
-        if frame not in starts:
-            listed = ", ".join(str(s) for s in sorted(starts))
-            raise FramestyleError(
-                f"cannot remove a cut at frame {frame}: no shot starts there"
-                f" (shot starts: {listed})"
-            )
-    return shots_from_boundaries(sorted((starts - remove) | add), n_frames)
-
-
-def _check_contiguous(shots: Sequence[Shot]) -> None:
-    """Raise ValueError unless ``shots`` cover frames 0.. without gaps or overlaps."""
-    if not shots:
-        raise ValueError("need at least one shot")
-    expected_start = 0
-    for shot in shots:
-        if shot.start != expected_start or shot.end < shot.start:
-            raise ValueError(
-                f"shots must be contiguous from frame 0, got {shot} after frame {expected_start - 1}"
-            )
-        expected_start = shot.end + 1
-
-
-def format_shot_table(shots: Sequence[Shot], fps: float) -> str:
-    """Return a plain-text table of shots with frame ranges and SMPTE timecodes.
-
-    Columns: shot number, first and last frame (0-based), frame count, and the SMPTE
-    ST 12-1 timecodes of the first and of the last frame (:func:`frame_to_timecode`).
-    """
-    _check_contiguous(shots)
-    header = ("shot", "first", "last", "frames", "start", "end")
-    rows = [
-        (
-            str(shot.index),
-            str(shot.start),
-            str(shot.end),
-            str(shot.length),
-            frame_to_timecode(shot.start, fps),
-            frame_to_timecode(shot.end, fps),
-        )
-        for shot in shots
-    ]
-    widths = [max(len(row[col]) for row in [header, *rows]) for col in range(len(header))]
-    return "\n".join(
-        "  ".join(cell.rjust(width) for cell, width in zip(row, widths)) for row in [header, *rows]
-    )

@@ -1,11 +1,11 @@
-"""Tests for framestyle.flow: DIS flow, backward warping, reliability and long-term masks."""
+"""Tests for framestyle.motion: DIS flow, backward warping, reliability and long-term masks."""
 
 import cv2
 import numpy as np
 import pytest
 from scipy import ndimage
 
-from framestyle.flow import (
+from framestyle.motion import (
     FLOW_PRESETS,
     _to_gray_u8,
     compute_flow,

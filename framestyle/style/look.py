@@ -1,7 +1,7 @@
 """A look: the perceptual network plus the style images' target Gram matrices, per frame size.
 
 Style images are resized relative to the frame being solved — their longer side becomes
-``style_scale`` × the frame's longer side — so stroke size is a property of the look, not of
+``stroke_size`` × the frame's longer side — so stroke size is a property of the look, not of
 the working resolution, and coarse-to-fine levels see proportionally smaller strokes.
 """
 
@@ -13,14 +13,14 @@ from pathlib import Path
 import numpy as np
 import torch
 
-from . import frames
-from .compose import luma_image
-from .color import match_histograms
-from .errors import FramestyleError
-from .network import FeatureNet
-from .settings import Settings
-from .solver import style_targets
-from .imaging import resize, to_tensor
+from framestyle import io
+from framestyle.errors import FramestyleError
+from framestyle.finish.colour import match_histograms
+from framestyle.finish.compose import luma_image
+from framestyle.imaging import resize, to_tensor
+from framestyle.settings import Settings
+from framestyle.style.network import FeatureNet
+from framestyle.style.solver import style_targets
 
 
 @dataclass
@@ -31,7 +31,7 @@ class Look:
     images: list[np.ndarray]
     mix: tuple[float, ...]
     layers: tuple[str, ...]
-    style_scale: float
+    stroke_size: float
     _targets: dict = field(default_factory=dict, repr=False)
 
     def targets(self, size: tuple[int, int]) -> dict[str, torch.Tensor]:
@@ -39,12 +39,12 @@ class Look:
         if size not in self._targets:
             tensors = []
             for image in self.images:
-                scale = self.style_scale * max(size) / max(image.shape[:2])
+                scale = self.stroke_size * max(size) / max(image.shape[:2])
                 target = (max(1, round(image.shape[1] * scale)), max(1, round(image.shape[0] * scale)))
                 if min(target) < self.net.min_side:
                     raise FramestyleError(
-                        f"style image too small for a {size[0]}×{size[1]} frame at style scale "
-                        f"{self.style_scale}; use a larger --style-scale"
+                        f"style image too small for a {size[0]}×{size[1]} frame at stroke size "
+                        f"{self.stroke_size}; use a larger --stroke-size"
                     )
                 tensors.append(to_tensor(resize(image, target)))
             self._targets[size] = style_targets(self.net, tensors, self.mix, self.layers)
@@ -67,7 +67,7 @@ def build_look(net: FeatureNet, settings: Settings, reference: np.ndarray | None
     net.check_layers([*layers, settings.content_layer or net.content_layer])
     images = []
     for path in settings.styles:
-        image = frames.read_image(Path(path))
+        image = io.read_image(Path(path))
         if settings.colour == "luma":
             image = luma_image(image, settings.luma_standard)
         elif settings.colour == "match":
@@ -76,4 +76,4 @@ def build_look(net: FeatureNet, settings: Settings, reference: np.ndarray | None
             image = match_histograms(image, reference)
         images.append(image)
     mix = tuple(settings.style_mix) or (1.0,) * len(images)
-    return Look(net, images, mix, layers, settings.style_scale)
+    return Look(net, images, mix, layers, settings.stroke_size)

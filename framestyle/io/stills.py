@@ -1,0 +1,145 @@
+"""Still-image files — frames, style images, mattes — through OpenImageIO.
+
+One backend for every still format framestyle reads or writes: PNG, JPEG, TIFF, OpenEXR and
+DPX, 8/16-bit integer or half/float samples, gray, RGB, with or without alpha. OpenImageIO
+reads headers without decoding pixels (so a folder's frame sizes are checked cheaply) and
+keeps samples at their stored type: integers are scaled to [0, 1] here, float samples
+(EXR, float TIFF) come back as stored, not clipped. With an alpha channel, EXR colour is
+premultiplied by convention (Kainz, Bogart et al., "Technical Introduction to OpenEXR",
+from memory) and is returned so.
+
+Images leave this module as float32 ``(H, W, 3)`` RGB (gray replicated), alpha as
+``(H, W)``; channel order is RGB(A) throughout, as OpenImageIO delivers it.
+"""
+
+from __future__ import annotations
+
+from pathlib import Path
+
+import numpy as np
+import OpenImageIO as oiio
+
+from framestyle.atomic import atomic_path
+from framestyle.errors import FramestyleError
+
+IMAGE_EXTS = frozenset({".png", ".jpg", ".jpeg", ".tif", ".tiff", ".exr", ".dpx"})
+# Bit depths written for each output extension; 32 means float (16 is half for EXR).
+_WRITE_DEPTHS = {".png": (8, 16), ".tif": (8, 16, 32), ".tiff": (8, 16, 32), ".exr": (16, 32)}
+_WRITE_TYPES = {8: oiio.UINT8, 16: oiio.UINT16, 32: oiio.FLOAT}
+_INT_SCALE = {np.dtype(np.uint8): 255.0, np.dtype(np.uint16): 65535.0}
+DTYPE_DEPTH = {np.dtype(np.uint8): 8, np.dtype(np.uint16): 16, np.dtype(np.float32): 32}
+# Samples as stored: OpenImageIO would otherwise premultiply the colour of PNG and TIFF files
+# whose alpha is unassociated (straight), changing the footage's pixels.
+_READ_CONFIG = oiio.ImageSpec()
+_READ_CONFIG.attribute("oiio:UnassociatedAlpha", 1)
+
+
+def image_size(file: Path) -> tuple[int, int]:
+    """(width, height) of an image file from its header, without decoding the pixels."""
+    spec = _open(file, lambda image: image.spec())
+    return spec.width, spec.height
+
+
+def load_image(file: Path) -> np.ndarray:
+    """Decode an image file to ``(H, W, C)`` samples in their own type (uint8, uint16, float32).
+
+    C is 1 (gray), 2 (gray + alpha), 3 (RGB) or 4 (RGBA); half floats are widened to float32,
+    other integer depths (10/12-bit DPX) to uint16.
+    """
+    def read(image):
+        spec = image.spec()
+        base = spec.format.basetype
+        kind = {oiio.UINT8: oiio.UINT8, oiio.UINT16: oiio.UINT16}.get(
+            base, oiio.FLOAT if base in (oiio.HALF, oiio.FLOAT, oiio.DOUBLE) else oiio.UINT16)
+        channels = min(spec.nchannels, 4)
+        pixels = image.read_image(0, 0, 0, channels, kind)
+        if pixels is None:
+            raise FramestyleError(f"{file}: cannot decode the image ({_last_error()})")
+        return np.ascontiguousarray(pixels.reshape(spec.height, spec.width, channels))
+
+    check_not_empty(file)
+    return _open(file, read)
+
+
+def write_image(path: Path, image: np.ndarray, bit_depth: int = 8) -> None:
+    """Atomically write a float RGB image as PNG, TIFF or OpenEXR, chosen by extension.
+
+    Integer formats clip to [0, 1] and round to the nearest level (half to even); float TIFF
+    and EXR (zip-compressed) store the values unchanged. Either the complete file appears or
+    the old one stays.
+
+    Parameters
+    ----------
+    path : ``.png`` (bit depth 8 or 16), ``.tif``/``.tiff`` (8, 16 or 32 = float) or ``.exr``
+        (16 = half or 32 = float)
+    image : float ``(H, W, 3)`` RGB
+    """
+    path = Path(path)
+    ext = path.suffix.lower()
+    if ext not in _WRITE_DEPTHS:
+        raise FramestyleError(f"{path}: cannot write '{ext}' frames; use .png, .tif, .tiff or .exr")
+    if bit_depth not in _WRITE_DEPTHS[ext]:
+        allowed = " or ".join(map(str, _WRITE_DEPTHS[ext]))
+        raise FramestyleError(f"{path}: {ext} frames are written at bit depth {allowed}, not {bit_depth}")
+    image = np.asarray(image)
+    if image.ndim != 3 or image.shape[2] != 3 or not np.issubdtype(image.dtype, np.floating):
+        raise ValueError(f"expected a float (H, W, 3) image for {path}, got {image.dtype} {image.shape}")
+    if not np.isfinite(image).all():
+        raise ValueError(f"image for {path} has NaN or infinite values")
+    height, width = image.shape[:2]
+    kind = oiio.HALF if ext == ".exr" and bit_depth == 16 else _WRITE_TYPES[bit_depth]
+    spec = oiio.ImageSpec(width, height, 3, kind)
+    if ext == ".exr":
+        spec.attribute("compression", "zip")
+    samples = np.ascontiguousarray(quantise(image, 32 if ext == ".exr" else bit_depth))
+    with atomic_path(path) as tmp:
+        out = oiio.ImageOutput.create(str(tmp))
+        if out is None or not out.open(str(tmp), spec):
+            raise FramestyleError(f"{path}: cannot write the image ({_last_error()})")
+        ok = out.write_image(samples)
+        ok = out.close() and ok
+        if not ok:
+            raise FramestyleError(f"{path}: cannot write the image ({out.geterror() or _last_error()})")
+
+
+def to_rgb(raw: np.ndarray) -> np.ndarray:
+    """``(H, W, C)`` decoded samples → float32 ``(H, W, 3)`` RGB; gray replicated, alpha dropped."""
+    colour = raw[..., :3] if raw.shape[2] >= 3 else np.repeat(raw[..., :1], 3, axis=2)
+    return colour.astype(np.float32) / np.float32(_INT_SCALE.get(raw.dtype, 1.0))
+
+
+def to_alpha(raw: np.ndarray) -> np.ndarray | None:
+    """The alpha of ``(H, W, C)`` decoded samples as float32 ``(H, W)``, or None without one."""
+    if raw.shape[2] not in (2, 4):
+        return None
+    return raw[..., -1].astype(np.float32) / np.float32(_INT_SCALE.get(raw.dtype, 1.0))
+
+
+def quantise(image: np.ndarray, bit_depth: int) -> np.ndarray:
+    """Float image → samples of ``bit_depth``: 8/16 clip to [0, 1] and round; 32 stays float."""
+    if bit_depth == 32:
+        return image.astype(np.float32)
+    dtype = np.uint8 if bit_depth == 8 else np.uint16
+    top = np.iinfo(dtype).max
+    return np.rint(np.clip(image, 0.0, 1.0) * top).astype(dtype)
+
+
+def check_not_empty(file: Path) -> None:
+    """Raise :class:`FramestyleError` for a zero-byte file (a frame an export never wrote)."""
+    if file.stat().st_size == 0:
+        raise FramestyleError(f"{file}: file is empty (0 bytes)")
+
+
+def _open(file: Path, use):
+    """Open ``file`` with OpenImageIO, call ``use(image_input)``, close it; errors name the file."""
+    image = oiio.ImageInput.open(str(file), _READ_CONFIG)
+    if image is None:
+        raise FramestyleError(f"{file}: cannot decode the image ({_last_error()})")
+    try:
+        return use(image)
+    finally:
+        image.close()
+
+
+def _last_error() -> str:
+    return (oiio.geterror() or "damaged or unsupported").strip().splitlines()[-1]

@@ -1,0 +1,197 @@
+"""Video files through the ffmpeg that imageio-ffmpeg ships: probe, stream frames, encode.
+
+Video frames are counted and streamed with ffmpeg's ``-fps_mode passthrough``: one output
+frame per decoded frame. imageio-ffmpeg's ``read_frames`` default (the image2pipe muxer)
+resamples variable-frame-rate clips, common from phones, to a constant rate by duplicating
+or dropping frames, which would break "one output frame per input frame". Starting mid-clip
+uses ffmpeg's ``trim=start_frame=N`` filter: it decodes and discards the first N frames
+(about 600 frames/s for 720p H.264 on two cores), exact for any clip, where a time-based
+``-ss`` seek is only exact for constant-frame-rate clips.
+"""
+
+from __future__ import annotations
+
+import math
+import re
+import subprocess
+import tempfile
+from dataclasses import dataclass
+from fractions import Fraction
+from pathlib import Path
+from typing import Iterator, Sequence
+
+import imageio_ffmpeg
+import numpy as np
+
+from framestyle.atomic import atomic_path
+from framestyle.errors import FramestyleError
+from framestyle.timecode import ntsc_nominal
+
+# The first real video stream (capital V skips cover-art pictures), one frame per decoded frame.
+_VIDEO_STREAM = ["-map", "0:V:0", "-fps_mode", "passthrough"]
+_HIGH_DEPTH_PIX = re.compile(r"(9|10|12|14|16|48|64)(le|be)$")  # e.g. yuv420p10le, rgb48le
+_ALPHA_PIX = re.compile(r"^(yuva|gbrap|ya|rgba|bgra|argb|abgr)")
+
+# H.264 4:2:0 needs even dimensions: drop a trailing odd row/column rather than resample.
+# BT.709 matrix and matching stream tags so players decode the colours as they were
+# (ITU-R BT.709; common practice). The ffmpeg 9 bundled here derives either from the
+# other; older builds that imageio-ffmpeg>=0.4.9 allows need both spelled out.
+_ENCODE_FILTER = "crop=trunc(iw/2)*2:trunc(ih/2)*2:0:0,scale=out_color_matrix=bt709:out_range=tv,format=yuv420p"
+_ENCODE_VIDEO = [
+    "-c:v", "libx264", "-preset", "medium", "-crf", "18", "-pix_fmt", "yuv420p",
+    "-colorspace", "bt709", "-color_primaries", "bt709", "-color_trc", "bt709", "-color_range", "tv",
+]
+
+
+@dataclass(frozen=True)
+class VideoInfo:
+    """What a video file holds: frame count, size, rate and sample layout."""
+
+    count: int
+    width: int
+    height: int
+    fps: float
+    bit_depth: int  # 8, or 16 for high-bit-depth pixel formats (10-bit and up)
+    has_alpha: bool
+
+
+def probe_video(path: Path) -> VideoInfo:
+    """Decode ``path`` once to count its frames exactly and read its size, rate and format."""
+    meta = _video_meta(path)
+    progress = run_ffmpeg(
+        ["-i", str(path), *_VIDEO_STREAM, "-f", "null", "-progress", "pipe:1", "-"], path, "not a readable video"
+    )
+    counts = re.findall(rb"^frame=(\d+)", progress, re.MULTILINE)
+    count = int(counts[-1]) if counts else 0
+    if count == 0:
+        raise FramestyleError(f"{path}: video has no frames")
+    if not meta["fps"] > 0:
+        raise FramestyleError(f"{path}: video frame rate is unknown")
+    pix_fmt = meta["pix_fmt"].split("(", 1)[0]
+    width, height = meta["size"]
+    return VideoInfo(count, width, height, float(rational_rate(meta["fps"])),
+                     16 if _HIGH_DEPTH_PIX.search(pix_fmt) else 8, bool(_ALPHA_PIX.match(pix_fmt)))
+
+
+def iter_video(path: Path, info: VideoInfo, start: int, stop: int) -> Iterator[tuple[int, np.ndarray]]:
+    """Stream frames start..stop-1 as ``(H, W, C)`` uint8/uint16 RGB(A) from one ffmpeg run."""
+    channels = 4 if info.has_alpha else 3
+    if info.bit_depth == 16:
+        pix_fmt, dtype = ("rgba64le" if info.has_alpha else "rgb48le"), np.dtype("<u2")
+    else:
+        pix_fmt, dtype = ("rgba" if info.has_alpha else "rgb24"), np.dtype(np.uint8)
+    frame_bytes = info.width * info.height * channels * dtype.itemsize
+    cmd = [imageio_ffmpeg.get_ffmpeg_exe(), "-hide_banner", "-loglevel", "error", "-i", str(path)]
+    cmd += _VIDEO_STREAM + (["-vf", f"trim=start_frame={start}"] if start else [])
+    cmd += ["-frames:v", str(stop - start), "-f", "rawvideo", "-pix_fmt", pix_fmt, "-"]
+    with tempfile.TemporaryFile() as errors:
+        process = subprocess.Popen(cmd, stdin=subprocess.DEVNULL, stdout=subprocess.PIPE, stderr=errors)
+        try:
+            for index in range(start, stop):
+                data = process.stdout.read(frame_bytes)
+                if len(data) < frame_bytes:
+                    process.wait()
+                    errors.seek(0)
+                    reason = last_line(errors.read(), f"it ended at frame {index}, expected {info.count} frames")
+                    raise FramestyleError(f"{path}: cannot decode the video ({reason})")
+                yield index, np.frombuffer(data, dtype).reshape(info.height, info.width, channels)
+        finally:
+            process.stdout.close()
+            if process.poll() is None:
+                process.kill()
+            process.wait()
+
+
+def write_video(
+    frames_paths: Sequence[Path], fps: float, out_path: Path, audio_from: Path | None = None
+) -> None:
+    """Encode image files, in the given order, into an H.264 video, atomically.
+
+    The files are streamed to the bundled ffmpeg as they are (no decoding in Python) and
+    encoded with libx264, CRF 18, yuv420p, BT.709. An odd width or height loses its last
+    column or row (4:2:0 chroma needs even sizes). The audio of ``audio_from`` is carried
+    over (copied when AAC, else encoded to AAC) and cut at the video's end; the video keeps
+    exactly one frame per file.
+
+    Parameters
+    ----------
+    frames_paths : PNG (or other ffmpeg-readable still image) files, one per frame
+    fps : frame rate; 23.976-style rates become the exact NTSC ratios (24000/1001 ...)
+    out_path : video file to write; its extension chooses the container (``.mp4`` usual)
+    audio_from : the source video whose first audio stream, if any, is carried over
+    """
+    paths = [Path(p) for p in frames_paths]
+    out_path = Path(out_path)
+    if not paths:
+        raise FramestyleError(f"{out_path}: no frames to encode")
+    for p in paths:
+        if not p.is_file():
+            raise FramestyleError(f"{p}: frame to encode is missing")
+    if not (math.isfinite(fps) and fps > 0):
+        raise FramestyleError(f"{out_path}: frame rate must be a positive number, got {fps}")
+    rate = rational_rate(fps)
+    cmd = [imageio_ffmpeg.get_ffmpeg_exe(), "-hide_banner", "-loglevel", "error", "-y"]
+    cmd += ["-f", "image2pipe", "-framerate", str(rate), "-i", "-"]
+    streams = ["-map", "0:v:0"]
+    audio: list[str] = []
+    audio_codec = _video_meta(Path(audio_from)).get("audio_codec") if audio_from is not None else None
+    if audio_codec is not None:
+        cmd += ["-i", str(audio_from)]
+        streams += ["-map", "1:a:0"]
+        audio = ["-c:a", "copy"] if audio_codec == "aac" else ["-c:a", "aac", "-b:a", "192k"]
+        # Cut at the last frame's end instead of -shortest, which would also cut the video
+        # when the audio is the shorter stream.
+        audio += ["-t", f"{float(len(paths) / rate) + 1e-6:.6f}"]
+    cmd += streams + ["-vf", _ENCODE_FILTER] + _ENCODE_VIDEO + audio + ["-movflags", "+faststart"]
+    with atomic_path(out_path) as tmp, tempfile.TemporaryFile() as errors:
+        process = subprocess.Popen(cmd + [str(tmp)], stdin=subprocess.PIPE, stderr=errors, bufsize=0)
+        try:
+            try:
+                for p in paths:
+                    process.stdin.write(p.read_bytes())
+            except BrokenPipeError:
+                pass  # ffmpeg stopped early; its exit status and message say why
+            process.stdin.close()
+            status = process.wait()
+        finally:
+            if process.poll() is None:
+                process.kill()
+                process.wait()
+        if status != 0:
+            errors.seek(0)
+            raise FramestyleError(f"{out_path}: video encoding failed ({last_line(errors.read())})")
+
+
+def rational_rate(fps: float) -> Fraction:
+    """The frame rate as a fraction; ffmpeg reports 23.976 as '23.98', so snap NTSC rates."""
+    nominal = ntsc_nominal(fps)
+    if nominal is not None:
+        return Fraction(nominal * 1000, 1001)
+    return Fraction(fps).limit_denominator(1001)
+
+
+def run_ffmpeg(args: list[str], file: Path, problem: str, stdin: bytes | None = None) -> bytes:
+    """Run the bundled ffmpeg; on failure raise '<file>: <problem> (<ffmpeg's last line>)'."""
+    cmd = [imageio_ffmpeg.get_ffmpeg_exe(), "-hide_banner", "-loglevel", "error", *args]
+    result = subprocess.run(cmd, input=stdin, stdin=None if stdin is not None else subprocess.DEVNULL,
+                            capture_output=True)
+    if result.returncode != 0:
+        raise FramestyleError(f"{file}: {problem} ({last_line(result.stderr)})")
+    return result.stdout
+
+
+def last_line(stderr: bytes, default: str = "ffmpeg gave no reason") -> str:
+    """ffmpeg's last message line, without its ``[in#0 @ 0x..]`` prefix."""
+    lines = [line.strip() for line in stderr.decode(errors="replace").splitlines() if line.strip()]
+    return re.sub(r"^\[[^\]]*\]\s*", "", lines[-1]) if lines else default
+
+
+def _video_meta(path: Path) -> dict:
+    """imageio-ffmpeg's parse of ffmpeg's stream report (size after any rotation, fps, ...)."""
+    reader = imageio_ffmpeg.read_frames(str(path), output_params=_VIDEO_STREAM)
+    try:
+        return next(reader)
+    except Exception as exc:  # imageio-ffmpeg raises IOError/RuntimeError, its parser Index/AttributeError
+        raise FramestyleError(f"{path}: not a readable video") from exc
+    finally:
+        reader.close()

@@ -1,0 +1,1 @@
+"""Style: the perceptual network, the losses, the per-frame solver and the look they serve."""
