@@ -1,0 +1,1 @@
+"""Quality checks of footage and renders."""
