@@ -12,17 +12,22 @@ Definitions (WCAG 2.1, "general flash and red flash thresholds", and its notes):
 * **Relative luminance** ``L = 0.2126 R + 0.7152 G + 0.0722 B`` of linearised sRGB
   (IEC 61966-2-1 transfer). Frames are quantised to 8 bits before linearising through a
   256-entry table; WCAG's own break point 0.03928 and IEC's 0.04045 give the same result
-  for every 8-bit code, and the quantisation moves ``L`` by less than 0.002, far below
-  the 0.1 threshold.
+  for every 8-bit code, and the quantisation moves ``L`` by at most 0.005 (near white),
+  far below the 0.1 threshold.
 * **Measurement blocks.** The exception for fine balanced patterns ("white noise or an
   alternating checkerboard pattern with squares smaller than 0.1 degree on a side does not
   violate the thresholds") is honoured by averaging linear R, G, B over blocks of
   ``block_degrees`` (at least 0.1°, default :data:`DEFAULT_BLOCK_DEGREES`) before anything
   else. 0.1° blocks cancel a balanced checkerboard but not random noise: binary pixel noise
-  averaged over ``n`` pixels still jitters by ``0.5 / sqrt(n)``, which at 0.1° (about ten
-  pixels on a 1024×768 screen) is larger than the 0.1 flash threshold. The default
-  block is therefore larger; it also sets the resolution of the area measurement (the
-  10° field is ``10 / block_degrees`` blocks across).
+  averaged over ``n`` pixels still jitters by ``0.5 / sqrt(n)``, which at 0.1° (a 4×3-pixel
+  block on a 1024×768 screen) is larger than the 0.1 flash threshold. The default block
+  is therefore larger. With it, 1-pixel black/white noise passes from about 1024 pixels
+  across (elements up to ~0.03°) and 1-pixel grey noise from about 512; coarser noise,
+  though still under 0.1°, can register as flashing (widen ``block_degrees`` for it).
+  The block also sets the resolution of the area measurement (the 10° field is ``10 /
+  block_degrees`` blocks across): a block partly covered by a flashing object counts whole
+  once its mean changes by 0.1, so flashing areas are over-estimated by up to one block
+  around their edges, the cautious side.
 * **Viewing geometry.** WCAG's note: a 341×256 px rectangle on a 1024×768 screen
   approximates a 10° visual field. The frame is shown full screen, fitted into that
   reference screen with its aspect ratio kept (a 16:9 frame fills the width), so the 10°
@@ -81,6 +86,7 @@ from __future__ import annotations
 
 import math
 import numbers
+from array import array
 from collections.abc import Callable, Iterable
 from dataclasses import dataclass, field
 
@@ -195,8 +201,8 @@ def red_value(linear: np.ndarray) -> np.ndarray:
 
     Examples
     --------
-    >>> float(red_value(np.array([0.5, 0.05, 0.05])))  # doctest: +ELLIPSIS
-    128.0...
+    >>> round(float(red_value(np.array([0.5, 0.05, 0.05]))), 3)  # (0.5 - 0.1) * 320
+    128.0
 
     References
     ----------
@@ -218,6 +224,11 @@ class FlashGeometry:
     origin: tuple[int, int]  # (x, y) of the grid's top-left pixel (the grid is centred)
     field_size: tuple[float, float]  # (w, h) of a 10° field in frame pixels
     field_blocks: tuple[int, int]  # (columns, rows) of blocks that approximate a 10° field
+
+    def measured(self, frame: np.ndarray) -> np.ndarray:
+        """The part of ``frame`` ``(H, W, ...)`` that the grid covers (a view, no copy)."""
+        (x, y), (cols, rows), (bw, bh) = self.origin, self.grid, self.block_size
+        return frame[y:y + rows * bh, x:x + cols * bw]
 
     def to_dict(self) -> dict:
         return {
@@ -539,21 +550,20 @@ def analyse_flashes(
     geometry = None
     shape = None
     counters: dict[str, _TransitionCounter] = {}
-    measures: dict[str, list[tuple[int, float, float]]] = {kind: [] for kind in KINDS}
+    # Per-frame series in compact arrays (about 40 bytes a frame for both kinds).
+    measures = {kind: (array("i"), array("d"), array("d")) for kind in KINDS}
     for index, frame in enumerate(frames):
         frame = _check_frame(frame, shape, index)
         if geometry is None:
             shape = frame.shape
             geometry = flash_geometry(shape[1], shape[0], block_degrees)
             grid = geometry.grid[::-1]  # (rows, cols)
-            (left, top), (cols, rows) = geometry.origin, geometry.grid
-            right, bottom = left + cols * geometry.block_size[0], top + rows * geometry.block_size[1]
             counters = {
                 "general": _TransitionCounter(grid, window, GENERAL_CHANGE, strict=False),
                 "red": _TransitionCounter(grid, window, RED_CHANGE, strict=True),
             }
         # Average in linear light over each block: (rows, cols, 3).
-        blocks = cv2.resize(linear_rgb(frame[top:bottom, left:right]), geometry.grid,
+        blocks = cv2.resize(linear_rgb(geometry.measured(frame)), geometry.grid,
                             interpolation=cv2.INTER_AREA)
         luminance = blocks @ _WEIGHTS
         signals = {
@@ -563,21 +573,18 @@ def analyse_flashes(
         for kind, (value, ok) in signals.items():
             flashes = counters[kind].update(value, ok) // 2
             field_share, screen_share = _area_fractions(flashes > MAX_FLASHES, geometry)
-            measures[kind].append((int(flashes.max()), field_share, screen_share))
+            for column, measure in zip(measures[kind], (int(flashes.max()), field_share, screen_share)):
+                column.append(measure)
     if geometry is None:
         raise ValueError("no frames to analyse")
 
-    series = {}
-    for kind, rows in measures.items():
-        table = np.asarray(rows, np.float64)
-        series[kind] = FlashSeries(
-            flashes=table[:, 0].astype(np.int32),
-            field_fraction=table[:, 1].astype(np.float32),
-            screen_fraction=table[:, 2].astype(np.float32),
-        )
+    series = {
+        kind: FlashSeries(*(np.frombuffer(column, column.typecode).copy() for column in columns))
+        for kind, columns in measures.items()
+    }
     ranked = [w for kind in KINDS for w in _worst_seconds(kind, series[kind], window, worst, label)]
     ranked.sort(key=lambda w: (-w.field_fraction, -w.screen_fraction, w.start_frame))
     return FlashReport(
-        frames=len(measures["general"]), fps=fps, geometry=geometry,
+        frames=len(series["general"].flashes), fps=fps, geometry=geometry,
         general=series["general"], red=series["red"], worst_seconds=tuple(ranked), timecode=label,
     )
