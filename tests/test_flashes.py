@@ -355,7 +355,7 @@ def test_report_to_dict_is_json_with_verdicts_series_and_worst_seconds():
     data = json.loads(json.dumps(report.to_dict()))
     assert data["verdicts"]["wcag21"]["general"] == "fail" and data["passed"] is False
     assert (data["frames"], data["fps"], data["window_frames"]) == (2 * FPS, FPS, FPS)
-    assert (data["geometry"]["width"], data["geometry"]["height"]) == (W, H)
+    assert (data["width"], data["height"]) == report.size == (W, H)
     assert len(data["series"]["general"]["flashes"]) == 2 * FPS
     assert data["series"]["general"]["field_fraction"][-1] == 1.0
     assert data["worst_seconds"][0]["kind"] == "general"

@@ -341,6 +341,11 @@ class FlashReport:
     timecode: Callable[[int], str] = field(repr=False, compare=False)  # frame index -> label
 
     @property
+    def size(self) -> tuple[int, int]:
+        """(width, height) of the frames analysed."""
+        return self.geometry.width, self.geometry.height
+
+    @property
     def window(self) -> int:
         """Frames in a 1-second window."""
         return _window_frames(self.fps)
@@ -371,6 +376,7 @@ class FlashReport:
         """A JSON-ready dictionary (plain lists and numbers)."""
         return {
             "frames": self.frames, "fps": self.fps, "window_frames": self.window,
+            "width": self.geometry.width, "height": self.geometry.height,
             "geometry": self.geometry.to_dict(),
             "limits": {"flashes_per_second": MAX_FLASHES, "area_fraction": AREA_LIMIT},
             "standards": dict(STANDARDS),
