@@ -13,7 +13,7 @@ import cv2
 import numpy as np
 import pytest
 
-from framestyle.color import linear_to_srgb
+from framestyle.finish.colour import linear_to_srgb
 from framestyle.qc.flash_plot import plot_flash_timeline
 from framestyle.qc.flashes import (
     analyse_flashes,

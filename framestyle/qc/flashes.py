@@ -93,7 +93,7 @@ from dataclasses import dataclass, field
 import cv2
 import numpy as np
 
-from framestyle.color import LUMA_BT709, srgb_to_linear
+from framestyle.finish.colour import LUMA_BT709, srgb_to_linear
 from framestyle.timecode import frame_to_timecode
 
 # WCAG 2.1 note: a 341×256 px rectangle on a 1024×768 screen ~ a 10° visual field.
