@@ -122,13 +122,18 @@ def _numbers(text: str, option: str) -> tuple[float, ...]:
 # --- progress ---------------------------------------------------------------------------------
 
 class _Bars:
-    """Progress display: an overall bar and a per-shot bar with ETA, plus a line per shot."""
+    """Progress display: an overall bar (crediting frames already finished) and a per-shot bar
+    with ETA, a line per shot, and warnings."""
 
     def __init__(self, quiet: bool):
         self.quiet = quiet
         self.progress = None
+        self.shot_task = None
 
     def __call__(self, event: str, **info) -> None:
+        if event == "warning":  # shown even with --quiet: it says something is off
+            typer.echo(f"framestyle: warning: {info['message']}", err=True)
+            return
         if self.quiet:
             return
         from rich.progress import (BarColumn, MofNCompleteColumn, Progress, TextColumn,
@@ -140,21 +145,25 @@ class _Bars:
                 TimeElapsedColumn(), TextColumn("ETA"), TimeRemainingColumn(), transient=False,
             )
             self.progress.start()
-            self.total = self.progress.add_task("all frames", total=info["frames"])
-            self.shot_task = None
+            self.total = self.progress.add_task("all frames", total=info["frames"], completed=info["done"])
             w, h = info["size"]
             self.progress.console.print(
                 f"{info['frames']} frames in {info['shots']} shot(s), working size {w}×{h}"
                 + (f", {info['done']} already finished" if info["done"] else "")
             )
+        elif self.progress is None:
+            return
         elif event == "shot_start":
             if self.shot_task is not None:
                 self.progress.remove_task(self.shot_task)
-            self.shot_task = self.progress.add_task(f"shot {info['shot']}", total=info["frames"])
+            self.shot_task = self.progress.add_task(f"shot {info['shot']}", total=info["frames"],
+                                                    completed=info["done"])
         elif event == "frame":
             self.progress.advance(self.total)
             if self.shot_task is not None:
                 self.progress.advance(self.shot_task)
+        elif event == "waiting":
+            self.progress.console.print(f"waiting: {info['holder']}")
         elif event == "shot":
             s = info["summary"]
             self.progress.console.print(
@@ -249,7 +258,8 @@ def resume(
     settings = _run(Settings.from_dict, manifest["settings"], str(out / store.MANIFEST))
     bars = _Bars(quiet)
     try:
-        result = _run(render, Path(manifest["inputs"]["input"]), out, settings, shots=shots, progress=bars)
+        result = _run(render, Path(manifest["inputs"]["input"]), out, settings, shots=shots, keep_shot_list=True,
+                      progress=bars)
     finally:
         bars.stop()
     _report(result, quiet)

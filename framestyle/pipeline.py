@@ -14,6 +14,8 @@ another mode: a few frames of each shot, each stylised on its own, laid out on c
 from __future__ import annotations
 
 import dataclasses
+import functools
+import importlib.metadata
 import time
 from collections import deque
 from dataclasses import dataclass, field
@@ -21,6 +23,7 @@ from pathlib import Path
 from typing import Callable, Sequence
 
 import numpy as np
+import torch
 
 from framestyle import io
 from framestyle.errors import FramestyleError
@@ -31,10 +34,11 @@ from framestyle.motion import FlowPair
 from framestyle.preview import contact_sheet, sample_frames
 from framestyle.qc.stability import flow_warping_error
 from framestyle.settings import Settings
-from framestyle.shots import Shot
+from framestyle.shots import Shot, shots_from_boundaries
 from framestyle.shots.detect import detect_shots, frame_signature
 from framestyle.shots.lists import parse_shot_file, parse_shot_selection
-from framestyle.store import Store, check_resume, input_fingerprints, output_names
+from framestyle.store import (Store, check_resume, environment_changes, input_fingerprints, output_names,
+                              shot_list_fingerprint)
 from framestyle.style.look import Look, build_look
 from framestyle.style.network import FeatureNet, load_network
 from framestyle.style.solver import SolverParams, SolveStats, solve, solve_coarse_to_fine
@@ -51,7 +55,7 @@ def no_progress(event: str, **info) -> None:
 
 @dataclass
 class ShotSummary:
-    """How a shot's render went: frames done, seconds, iterations, mean warping error."""
+    """How a shot's render went, from its record: frames done, seconds, iterations, warping error."""
 
     shot: Shot
     frames_done: int = 0
@@ -59,6 +63,12 @@ class ShotSummary:
     iterations: int = 0
     warp_error_sum: float = 0.0
     warp_error_pairs: int = 0
+
+    @classmethod
+    def from_record(cls, shot: Shot, frames: dict[str, dict]) -> "ShotSummary":
+        errors = [e["warp_error"] for e in frames.values() if e.get("warp_error") is not None]
+        return cls(shot, len(frames), sum(e["seconds"] for e in frames.values()),
+                   sum(e["iterations"] for e in frames.values()), sum(errors), len(errors))
 
     @property
     def warp_error(self) -> float:
@@ -73,62 +83,135 @@ class RenderResult:
     video: Path | None = None
 
 
+@dataclass(frozen=True)
+class Plan:
+    """What every shot of a render needs, and nothing large: paths, settings, the shot list.
+
+    Made by :func:`plan_render` after the output folder's manifest is created or checked;
+    each shot is then rendered by :func:`render_shot`, in this process or another.
+    """
+
+    source: io.FrameSource
+    out: Path
+    settings: Settings
+    shots: tuple[Shot, ...]
+    wanted: tuple[int, ...]  # the shots to render now
+
+    @property
+    def names(self) -> list[str]:
+        return output_names(self.source)
+
+
 # --- the render -----------------------------------------------------------------------------
 
 def render(
     input_path: Path, out: Path, settings: Settings, *, shots: str | None = None,
-    shot_file: Path | None = None, restart: bool = False, progress: Progress = no_progress,
+    shot_file: Path | None = None, restart: bool = False, keep_shot_list: bool = False,
+    progress: Progress = no_progress,
 ) -> RenderResult:
     """Stylise a clip into ``out``, resuming a previous run of the same render.
+
+    Several processes may render one folder at once: each shot is rendered by whichever
+    process takes its lock first; a process that finds a shot taken renders the others, then
+    waits for it (and finishes it if its process died).
 
     Parameters
     ----------
     input_path : folder of numbered frames or a video file
-    out : output folder (created); holds frames, manifest, log, state
+    out : output folder (created); holds frames, manifest, records, log, state
     settings : the render settings (must equal a resumed render's)
     shots : render only these shots, e.g. ``"2,4-5"``
     shot_file : a user's shot list replacing detection (see :func:`shots.lists.parse_shot_file`)
     restart : discard a previous render in ``out`` instead of resuming it
+    keep_shot_list : resume with the shot list the render was started with (``framestyle resume``)
     progress : called as ``progress(event, **info)`` with events ``"start"`` (frames, shots,
-        done, size), ``"shot_start"`` (shot, frames), ``"frame"`` (index, shot, iterations,
-        seconds, skipped), ``"shot"`` (summary) and ``"video"`` (path)
+        done, size), ``"warning"`` (message), ``"shot_start"`` (shot, frames, done),
+        ``"frame"`` (index, shot, iterations, seconds), ``"waiting"`` (shot, holder),
+        ``"shot"`` (summary) and ``"video"`` (path)
     """
-    source, net = open_render(input_path, out, settings)
-    with Store(out) as store:
-        inputs = input_fingerprints(source, settings)
-        manifest = store.read_manifest()
-        if restart:
-            store.restart(manifest)
-            manifest = None
-        if manifest is not None:
-            check_resume(manifest, settings, inputs, store.out)
-            shot_list = [Shot(s["shot"], s["start"], s["end"]) for s in manifest["shots"]]
-            store.log.info("resuming render in %s", store.out)
-        else:
-            shot_list = find_shots(source, settings, shot_file)
-            manifest = {"settings": settings.to_dict(), "inputs": inputs,
-                        "shots": [s.to_dict() for s in shot_list], "frames": {}, "shot_status": {}}
-            store.write_manifest(manifest)
-            store.log.info("new render of %s into %s, settings %s", source.path, store.out, settings.digest())
-        store.log.info("shots: %s", ", ".join(f"{s.index}:{s.start}-{s.end}" for s in shot_list))
-        wanted = parse_shot_selection(shots, len(shot_list)) if shots else [s.index for s in shot_list]
+    plan = plan_render(input_path, out, settings, shots=shots, shot_file=shot_file, restart=restart,
+                       keep_shot_list=keep_shot_list, progress=progress)
+    taken = [n for n in plan.wanted if render_shot(plan, n, progress, wait=False) is None]
+    for n in taken:  # shots another process was rendering: wait for it, finish what it left
+        progress("waiting", shot=n, holder=Store(plan.out).shot_holder(n))
+        render_shot(plan, n, progress, wait=True)
+    return finish_render(plan, progress)
 
-        names = output_names(source)
-        chosen = [s for s in shot_list if s.index in wanted]
-        done = sum(1 for s in chosen for i in range(s.start, s.end + 1) if names[i] in manifest["frames"])
-        size = working_size(source.width, source.height, settings.width, net.min_side)
-        progress("start", frames=sum(s.length for s in chosen), shots=len(chosen), done=done, size=size)
-        summaries = []
-        for shot in chosen:
-            summary = _ShotRender(source, store, settings.for_shot(shot.index), net, shot, names, manifest).run(progress)
-            summaries.append(summary)
-            progress("shot", summary=summary)
-        finished = [name for name in names if name in manifest["frames"]]
-        result = RenderResult(store.out, store.frame_paths(finished), summaries)
-        if source.kind == "video" and len(finished) == source.count:
-            result.video = store.write_video(source, finished)
+
+def plan_render(
+    input_path: Path, out: Path, settings: Settings, *, shots: str | None = None,
+    shot_file: Path | None = None, restart: bool = False, keep_shot_list: bool = False,
+    progress: Progress = no_progress,
+) -> Plan:
+    """Check everything, then create (or check and continue) the render's manifest in ``out``."""
+    source, net = open_render(input_path, out, settings)
+    inputs = input_fingerprints(source, settings)
+    shot_list = shot_list_fingerprint(shot_file)
+    store = Store(out)
+    with store.folder_lock():
+        if restart:
+            store.restart(output_names(source))
+            store.log("restarted: previous frames, state, video, previews and records discarded")
+        manifest = store.manifest()
+        if manifest is not None:
+            check_resume(manifest, settings, inputs, None if keep_shot_list else shot_list, store.out)
+            for change in environment_changes(manifest, environment()):
+                progress("warning", message=f"resumed under {change}: frames may differ in the last bits "
+                                            f"from an uninterrupted render")
+            shot_list_ = tuple(Shot(s["shot"], s["start"], s["end"]) for s in manifest["shots"])
+            store.log(f"resuming render of {source.path}")
+        else:
+            shot_list_ = tuple(find_shots(source, settings, shot_file))
+            store.create({"settings": settings.to_dict(), "inputs": inputs, "shot_list": shot_list,
+                          "shots": [s.to_dict() for s in shot_list_], "environment": environment(),
+                          "created": time.strftime("%Y-%m-%dT%H:%M:%S%z")})
+            store.log(f"new render of {source.path}, settings {settings.digest()}, "
+                      f"shots {', '.join(f'{s.index}:{s.start}-{s.end}' for s in shot_list_)}")
+        finished = store.finished()
+    if source.gaps:
+        missing = ", ".join(f"{a}-{b}" if b > a else f"{a}" for a, b in source.gaps[:5])
+        progress("warning", message=f"{source.path}: frame numbers missing ({missing}"
+                                    f"{', ...' if len(source.gaps) > 5 else ''}); each gap starts a new "
+                                    f"shot in detected shot lists, a shot list of yours is warped over it")
+    wanted = parse_shot_selection(shots, len(shot_list_)) if shots else [s.index for s in shot_list_]
+    plan = Plan(source, store.out, settings, shot_list_, tuple(wanted))
+    chosen = [s for s in shot_list_ if s.index in wanted]
+    names = plan.names
+    done = sum(1 for s in chosen for i in range(s.start, s.end + 1) if names[i] in finished)
+    size = working_size(source.width, source.height, settings.width, net.min_side)
+    progress("start", frames=sum(s.length for s in chosen), shots=len(chosen), done=done, size=size)
+    return plan
+
+
+def finish_render(plan: Plan, progress: Progress = no_progress) -> RenderResult:
+    """After the shots: the summary of the wanted shots, and the video once every frame is done."""
+    store = Store(plan.out)
+    names = plan.names
+    with store.folder_lock():
+        records = store.records()
+        finished = {name for record in records.values() for name in record["frames"]}
+        done = [name for name in names if name in finished]
+        result = RenderResult(store.out, store.frame_paths(done))
+        if plan.source.kind == "video" and len(done) == plan.source.count:
+            result.video = store.write_video(plan.source, done)
             progress("video", path=result.video)
-        return result
+    result.shots = [ShotSummary.from_record(shot, records.get(shot.index, {"frames": {}})["frames"])
+                    for shot in plan.shots if shot.index in plan.wanted]
+    return result
+
+
+def environment() -> dict:
+    """Library versions and thread count a render runs under (recorded; a resume compares)."""
+    versions = {name: _version(name) for name in ("framestyle", "torch", "numpy", "opencv-python-headless",
+                                                   "openimageio")}
+    return {**versions, "torch threads": torch.get_num_threads()}
+
+
+def _version(package: str) -> str | None:
+    try:
+        return importlib.metadata.version(package)
+    except importlib.metadata.PackageNotFoundError:
+        return None
 
 
 def open_render(input_path: Path, out: Path, settings: Settings) -> tuple[io.FrameSource, FeatureNet]:
@@ -142,7 +225,7 @@ def open_render(input_path: Path, out: Path, settings: Settings) -> tuple[io.Fra
 
 def check_render(source: io.FrameSource, settings: Settings) -> FeatureNet:
     """Check every setting (and every shot's overrides) against ``source``; return the network."""
-    net = load_network(settings.network, settings.network_weights)
+    net = network(settings.network, settings.network_weights)
     first = io.read_frame(source, 0)
     variants = [settings] + [settings.for_shot(int(n)) for n in settings.shot_looks]
     for variant in variants:
@@ -155,14 +238,27 @@ def check_render(source: io.FrameSource, settings: Settings) -> FeatureNet:
     return net
 
 
+@functools.lru_cache(maxsize=2)
+def network(name: str, weights: str | None) -> FeatureNet:
+    """The perceptual network, loaded once per process."""
+    return load_network(name, weights)
+
+
 def find_shots(source: io.FrameSource, settings: Settings, shot_file: Path | None) -> list[Shot]:
-    """The shot list: from ``shot_file`` if given, else detected (or one shot if disabled)."""
+    """The shot list: from ``shot_file`` if given, else detected (or one shot if disabled).
+
+    Gaps in a folder's numbering start a new shot in a detected list: the frames on either
+    side may be far apart in time.
+    """
     if shot_file is not None:
         return parse_shot_file(shot_file, source.count)
     if not settings.shot_detection:
-        return [Shot(1, 0, source.count - 1)]
-    sigs = [frame_signature(f) for _, f in io.iter_frames(source)]
-    return detect_shots(sigs, cut_threshold=settings.cut_threshold, gradual_threshold=settings.gradual_threshold)
+        found = [Shot(1, 0, source.count - 1)]
+    else:
+        sigs = [frame_signature(f) for _, f in io.iter_frames(source)]
+        found = detect_shots(sigs, cut_threshold=settings.cut_threshold, gradual_threshold=settings.gradual_threshold)
+    after_gaps = [i for i, (a, b) in enumerate(zip(source.numbers, source.numbers[1:]), 1) if b > a + 1]
+    return shots_from_boundaries(sorted({s.start for s in found} | set(after_gaps)), source.count)
 
 
 def solver_params(settings: Settings) -> SolverParams:
@@ -185,70 +281,95 @@ def shot_look(net: FeatureNet, source: io.FrameSource, settings: Settings, shot:
 
 # --- one shot -------------------------------------------------------------------------------
 
+def render_shot(plan: Plan, index: int, progress: Progress = no_progress, wait: bool = True) -> ShotSummary | None:
+    """Render shot ``index`` of a planned render, continuing its temporal chain where it stopped.
+
+    Returns None (without ``wait``) if another process is rendering the shot. Frames already
+    finished are never rewritten. Where the chain cannot continue from kept state (the state
+    of the frames it needs is gone or damaged), the shot is solved again from its first
+    frame, writing only the frames that are not finished.
+    """
+    shot = plan.shots[index - 1]
+    settings = plan.settings.for_shot(index)
+    with Store(plan.out).shot(index, wait) as work:
+        if work is None:
+            return None
+        names = plan.names
+        for problem in work.reconcile(names[shot.start:shot.end + 1]):
+            progress("warning", message=problem)
+            work.store.log(problem)
+        finished = work.record["frames"]
+        todo = [i for i in range(shot.start, shot.end + 1) if names[i] not in finished]
+        if todo:
+            _ShotRender(plan, work, settings, shot).run(todo, progress)
+        elif work.has_state():  # a process killed as it finished the shot left its state
+            work.prune_state(None)
+        summary = ShotSummary.from_record(shot, work.record["frames"])
+    progress("shot", summary=summary)
+    return summary
+
+
 class _ShotRender:
-    """Render one shot, skipping its finished frames and continuing its temporal chain."""
+    """The frames of one shot, in order, each from its warped predecessors."""
 
-    def __init__(self, source, store, settings, net, shot, names, manifest):
-        self.source, self.store, self.settings, self.net, self.shot = source, store, settings, net, shot
-        self.names, self.manifest = names, manifest
-        self.size = working_size(source.width, source.height, settings.width, net.min_side)
+    def __init__(self, plan: Plan, work, settings: Settings, shot: Shot):
+        self.plan, self.work, self.settings, self.shot = plan, work, settings, shot
+        self.source, self.names = plan.source, plan.names
+        self.net = network(settings.network, settings.network_weights)
+        self.size = working_size(self.source.width, self.source.height, settings.width, self.net.min_side)
         self.params = solver_params(settings)
-        self.status = manifest["shot_status"].setdefault(str(shot.index), {"warp_error_sum": 0.0, "pairs": 0})
+        self.offsets = sorted(settings.long_term) if settings.temporal else []
 
-    def run(self, progress: Progress) -> ShotSummary:
-        shot, settings, names, recorded = self.shot, self.settings, self.names, self.manifest["frames"]
-        todo = [i for i in range(shot.start, shot.end + 1) if names[i] not in recorded]
-        if not todo:
-            return self._summary()
+    def run(self, todo: list[int], progress: Progress) -> None:
+        shot, settings, finished = self.shot, self.settings, self.work.record["frames"]
+        begin = self._resume_point(todo[0])
         look = shot_look(self.net, self.source, settings, shot)
         mattes = Mattes(self.source, settings.matte)
-        progress("shot_start", shot=shot.index, frames=shot.length)
-        reach = max(settings.long_term) if settings.temporal else 0
+        progress("shot_start", shot=shot.index, frames=shot.length, done=shot.length - len(todo))
+        reach = max(self.offsets, default=0)
         history: deque[tuple[int, np.ndarray]] = deque(maxlen=reach + 1)  # (index, working content)
-        for index, raw in io.iter_frames(self.source, max(shot.start, todo[0] - reach), shot.end + 1):
+        for index, raw in io.iter_frames(self.source, max(shot.start, begin - reach), shot.end + 1):
             frame = prepare_frame(raw, self.size, settings, self.source.linear)
-            if index >= todo[0] and names[index] not in recorded:
-                self._frame(index, frame, look, mattes, dict(history), progress)
-            else:
-                progress("frame", index=index, shot=shot.index, skipped=True)
+            if index >= begin:
+                self._frame(index, frame, look, mattes, dict(history), progress, rebuild=self.names[index] in finished)
             history.append((index, frame.content))
-        self.store.prune_state(shot.index, None)
-        self.store.write_manifest(self.manifest)
-        summary = self._summary()
-        self.store.log.info("shot %d done: %d frames, %.1f s, %.1f iterations/frame, warping error %.5f",
-                            shot.index, summary.frames_done, summary.seconds,
-                            summary.iterations / max(1, summary.frames_done), summary.warp_error)
-        return summary
+        self.work.prune_state(None)
+        summary = ShotSummary.from_record(shot, finished)
+        self.work.store.log(f"shot {shot.index} done: {summary.frames_done} frames, {summary.seconds:.1f} s, "
+                            f"{summary.iterations / max(1, summary.frames_done):.1f} iterations/frame, "
+                            f"warping error {summary.warp_error:.5f}")
 
-    def _frame(self, index: int, frame: Frame, look: Look, mattes: Mattes, sources: dict, progress: Progress) -> None:
+    def _resume_point(self, first_todo: int) -> int:
+        """The frame to solve from: the first unfinished one if the state its temporal terms
+        need is kept, else the shot's first frame (the chain is then rebuilt)."""
+        needed = [first_todo - j for j in self.offsets if first_todo - j >= self.shot.start]
+        if all(self.work.load_state(k) is not None for k in needed):
+            return first_todo
+        self.work.store.log(f"shot {self.shot.index}: kept state missing, solving again from its first frame")
+        return self.shot.start
+
+    def _frame(self, index: int, frame: Frame, look: Look, mattes: Mattes, sources: dict, progress: Progress,
+               rebuild: bool) -> None:
         t0 = time.perf_counter()
-        settings, shot = self.settings, self.shot.index
-        offsets = [j for j in sorted(settings.long_term) if settings.temporal and index - j in sources]
+        settings, name = self.settings, self.names[index]
         earlier = [(FlowPair.between(frame.content, sources[index - j], settings.flow_preset),
-                    self.store.load_state(shot, index - j)) for j in offsets]
+                    self.work.load_state(index - j)) for j in self.offsets if index - j in sources]
         result, stats = stylise(look, frame.content, index, earlier, self.params, settings.seed, settings.temporal)
-        if earlier:  # the warping error of this pair reuses the flows of the temporal loss
-            self.status["warp_error_sum"] += flow_warping_error(earlier[0][1], result, earlier[0][0])
-            self.status["pairs"] += 1
-        self.store.save_state(shot, index, result)
-        name = self.names[index]
-        if not self.store.has_frame(name):  # a frame whose record was lost is not rewritten
+        self.work.save_state(index, result)
+        if not rebuild:  # a frame solved only to rebuild the chain stays as it was finished
             matte = mattes(index, settings.matte_softness)
-            self.store.write_frame(name, deliver(result, frame, settings, matte, self.source.linear),
-                                   16 if self.source.bit_depth in (16, 32) else 8)
-        seconds = time.perf_counter() - t0
-        self.manifest["frames"][name] = {"shot": shot, "iterations": stats.iterations, "seconds": round(seconds, 3)}
-        self.store.write_manifest(self.manifest)
-        self.store.prune_state(shot, index - max(settings.long_term))
-        self.store.log.info("frame %s shot %d: %d iterations, %.1f s, style %.4f content %.4f temporal %.5f",
-                            name, shot, stats.iterations, seconds, stats.style, stats.content, stats.temporal)
-        progress("frame", index=index, shot=shot, iterations=stats.iterations, seconds=seconds, skipped=False)
-
-    def _summary(self) -> ShotSummary:
-        shot, recorded = self.shot, self.manifest["frames"]
-        entries = [recorded[self.names[i]] for i in range(shot.start, shot.end + 1) if self.names[i] in recorded]
-        return ShotSummary(shot, len(entries), sum(e["seconds"] for e in entries),
-                           sum(e["iterations"] for e in entries), self.status["warp_error_sum"], self.status["pairs"])
+            self.work.write_frame(name, deliver(result, frame, settings, matte, self.source.linear),
+                                  16 if self.source.bit_depth in (16, 32) else 8)
+            # the warping error of this frame and its predecessor reuses the flows of the temporal loss
+            error = flow_warping_error(earlier[0][1], result, earlier[0][0]) if earlier else None
+            seconds = time.perf_counter() - t0
+            self.work.finish_frame(name, {"iterations": stats.iterations, "seconds": round(seconds, 3),
+                                          "style": stats.style, "content": stats.content, "warp_error": error})
+            self.work.store.log(f"frame {name} shot {self.shot.index}: {stats.iterations} iterations, "
+                                f"{seconds:.1f} s, style {stats.style:.4f} content {stats.content:.4f} "
+                                f"temporal {stats.temporal:.5f}")
+            progress("frame", index=index, shot=self.shot.index, iterations=stats.iterations, seconds=seconds)
+        self.work.prune_state(index + 1 - max(self.offsets, default=0))  # what the next frame needs stays
 
 
 def stylise(
@@ -312,7 +433,7 @@ def preview(input_path: Path, out: Path, settings: Settings, every: int, *, widt
     progress("start", frames=len(chosen), shots=len(wanted), done=0, size=size)
     tiles: dict[int, list] = {n: [] for n in wanted}
     looks: dict[int, tuple[Settings, Look, Mattes]] = {}
-    with Store(out) as store:
+    with Store(out).preview() as folder:
         for index, raw in io.iter_frames(source):
             if index not in chosen:
                 continue
@@ -328,8 +449,8 @@ def preview(input_path: Path, out: Path, settings: Settings, every: int, *, widt
             result, stats = stylise(look, frame.content, index, [], solver_params(shot_settings),
                                     shot_settings.seed, temporal=False)
             delivered = deliver(result, frame, shot_settings, mattes(index, shot_settings.matte_softness), False)
-            store.write_preview(io.frame_name(source, index), delivered)
+            folder.write(io.frame_name(source, index), delivered)
             tiles[shot.index].append((source.names[index], frame.display, delivered))
             progress("frame", index=index, shot=shot.index, iterations=stats.iterations,
                      seconds=time.perf_counter() - t0, skipped=False)
-        return [store.write_preview(f"contact_shot{n:03d}.png", contact_sheet(tiles[n])) for n in wanted]
+        return [folder.write(f"contact_shot{n:03d}.png", contact_sheet(tiles[n])) for n in wanted]

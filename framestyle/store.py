@@ -3,29 +3,40 @@
 Layout of an output folder::
 
     OUT/
-      <frame>.png ...          finished frames (written atomically, never rewritten)
-      <clip>_framestyle.mp4    for video input: the frames with the source's audio
-      framestyle.json          manifest: settings, input fingerprints, shots, per-frame status
-      render.log               a line per frame and per shot
-      .state/shot_NNN/*.npy    full-precision stylised frames the temporal losses still need
-      .lock                    who renders here now (pid, host)
-      preview/                 preview frames and contact sheets
+      <frame>.png ...             finished frames (written atomically, never rewritten)
+      <clip>_framestyle.mp4       for video input: the frames with the source's audio
+      framestyle.json             manifest: settings, inputs, shot list, environment
+      render.log                  a line per frame, per shot and per event, from every process
+      preview/                    preview frames and contact sheets
+      .framestyle/
+        locks/folder.lock         held briefly to create, check or restart the render
+        locks/shot_NNN.lock       held while a process renders shot NNN
+        locks/preview.lock        held while a preview writes preview/
+        shots/shot_NNN.json       shot NNN's record: its finished frames and their figures
+        state/shot_NNN/*.npy      full-precision stylised frames the temporal losses still need
+        restarting                marks a restart in progress (finished by the next run)
+        trash/                    what a restart is discarding
 
 Every file is written atomically (:mod:`framestyle.atomic`), and a frame counts as finished
-only once the manifest says so, which is written after the frame itself; so a render killed
-at any moment resumes from a consistent state.
+only once its shot's record says so, which is written after the frame itself; so a render
+killed at any moment resumes from a consistent state. Several processes (or machines
+sharing the folder) can render different shots at once: locks are ``fcntl.flock`` locks
+on files that are never deleted, released by the kernel when their process ends however
+it ends, and each shot's record is its own file, merged when read.
 """
 
 from __future__ import annotations
 
+import contextlib
+import fcntl
 import hashlib
 import json
-import logging
 import os
 import socket
 import time
+import uuid
 from pathlib import Path
-from typing import Sequence
+from typing import Callable, Iterator, Sequence
 
 import numpy as np
 
@@ -35,124 +46,325 @@ from framestyle.settings import Settings
 
 MANIFEST = "framestyle.json"
 FORMAT = 2  # manifest format version
+LOG = "render.log"
 PREVIEW = "preview"
+VIDEO_SUFFIX = "_framestyle"
+_PRIVATE = ".framestyle"
 
+
+# --- locks ------------------------------------------------------------------------------------
+
+class Lock:
+    """An exclusive ``flock`` on a lock file that names its holder (pid, host, start time).
+
+    The kernel releases the lock when the holding process ends, killed or not, so there is
+    no stale lock to take over. On a network file system ``flock`` is emulated with POSIX
+    record locks (Linux NFS v4), and the server releases a dead client's lock when its lease
+    expires.
+    """
+
+    def __init__(self, path: Path, what: str):
+        self.path, self.what, self._fd = Path(path), what, None
+
+    def acquire(self, wait: bool) -> bool:
+        """Take the lock; with ``wait`` False return False at once if another process holds it."""
+        self.path.parent.mkdir(parents=True, exist_ok=True)
+        fd = os.open(self.path, os.O_RDWR | os.O_CREAT, 0o644)
+        try:
+            fcntl.flock(fd, fcntl.LOCK_EX | (0 if wait else fcntl.LOCK_NB))
+        except BlockingIOError:
+            os.close(fd)
+            return False
+        os.ftruncate(fd, 0)
+        os.pwrite(fd, json.dumps({"pid": os.getpid(), "host": socket.gethostname(), "since": time.time()}).encode(), 0)
+        self._fd = fd
+        return True
+
+    def release(self) -> None:
+        if self._fd is not None:
+            os.close(self._fd)  # closing the descriptor releases the flock
+            self._fd = None
+
+    def holder(self) -> str:
+        """Who holds the lock, in words, with a way out."""
+        try:
+            who = json.loads(self.path.read_text() or "{}")
+        except (OSError, ValueError):
+            who = {}
+        if not who:
+            return f"another process holds {self.what}"
+        since = time.strftime("%H:%M:%S", time.localtime(who.get("since", 0)))
+        text = f"{self.what} is held by pid {who.get('pid')} on {who.get('host')} since {since}"
+        if who.get("host") == socket.gethostname():
+            return f"{text}; wait for it to finish or stop that process (its lock goes with it)"
+        return (f"{text} (another machine); stop it there, or if that machine is gone its lock "
+                f"is released when the shared file system's lease on it expires")
+
+
+@contextlib.contextmanager
+def _locked(lock: Lock, out: Path, wait: bool) -> Iterator[None]:
+    if not lock.acquire(wait):
+        raise FramestyleError(f"{out}: {lock.holder()}")
+    try:
+        yield
+    finally:
+        lock.release()
+
+
+# --- the store ---------------------------------------------------------------------------------
 
 class Store:
-    """One output folder. Create with :func:`open_store`; use as a context manager to hold
-    its lock while rendering.
+    """One output folder.
 
-    Attributes
+    Parameters
     ----------
-    out : the folder
-    log : the render log (a :class:`logging.Logger` writing ``render.log``) while locked
+    out : the folder; created when a render starts
     """
 
     def __init__(self, out: Path):
         self.out = Path(out)
-        self.log: logging.Logger | None = None
-        self._lock = FolderLock(self.out)
+        self._private = self.out / _PRIVATE
 
-    def __enter__(self) -> "Store":
-        self.out.mkdir(parents=True, exist_ok=True)
-        self._lock.__enter__()
-        self.log = _open_log(self.out)
-        return self
+    # --- the render as a whole (under the folder lock) -----------------------------------------
 
-    def __exit__(self, *exc) -> None:
-        for handler in list(self.log.handlers):
-            handler.close()
-            self.log.removeHandler(handler)
-        self._lock.__exit__(*exc)
+    @contextlib.contextmanager
+    def folder_lock(self) -> Iterator["Store"]:
+        """Hold the folder lock (waiting for it) to create, check, restart or finish a render.
 
-    # --- manifest -----------------------------------------------------------------------------
+        Also finishes a restart a killed process left half done and removes the store's own
+        temporary files from the folder's records.
+        """
+        if self.out.exists() and not self.out.is_dir():
+            raise FramestyleError(f"{self.out}: output path is a file, not a folder")
+        try:
+            self.out.mkdir(parents=True, exist_ok=True)
+        except OSError as exc:
+            raise FramestyleError(f"{self.out}: cannot create the output folder ({exc.strerror})") from exc
+        with _locked(self._lock("folder"), self.out, wait=True):
+            if (self._private / "restarting").exists():
+                self._discard(self._recorded_names())
+            if (self._private / "trash").exists():
+                atomic.remove(self._private / "trash")
+            _remove_temporary(self._private / "shots")
+            _remove_temporary(self.out, lambda target: target == MANIFEST or f"{VIDEO_SUFFIX}." in target)
+            yield self
 
-    def read_manifest(self) -> dict | None:
+    def manifest(self) -> dict | None:
         """The manifest, or None if this folder holds no render yet."""
-        return read_manifest(self.out)
+        path = self.out / MANIFEST
+        if not path.exists():
+            return None
+        try:
+            manifest = json.loads(path.read_text())
+        except (OSError, ValueError) as exc:
+            raise FramestyleError(f"{path}: unreadable manifest ({exc}); use --restart to start over") from None
+        if not isinstance(manifest, dict) or manifest.get("format") != FORMAT:
+            raise FramestyleError(f"{path}: not a manifest of this framestyle version; use --restart to start over")
+        return manifest
 
-    def write_manifest(self, manifest: dict) -> None:
-        """Atomically replace the manifest."""
+    def create(self, manifest: dict) -> None:
+        """Write the manifest of a new render."""
         atomic.write_json(self.out / MANIFEST, {**manifest, "format": FORMAT})
 
-    def restart(self, manifest: dict | None) -> None:
-        """Delete a previous render's frames, state and manifest (explicit --restart only)."""
-        if manifest:
-            for name in manifest.get("frames", {}):
-                (self.out / name).unlink(missing_ok=True)
-            for shot in manifest.get("shots", []):
-                self.prune_state(shot["shot"], None)
-        (self.out / MANIFEST).unlink(missing_ok=True)
+    def restart(self, names: Sequence[str]) -> None:
+        """Discard everything a previous render left: frames, state, video, previews, records.
 
-    # --- frames, state, video -----------------------------------------------------------------
+        Works when the manifest is unreadable. Refused while another process renders a shot
+        or writes a preview here. Everything is first moved into a trash folder, then
+        deleted; a kill in the middle leaves a marker, and the next run finishes the job.
+        """
+        locks = [Lock(path, f"shot {path.stem[5:]}") for path in sorted((self._private / "locks").glob("shot_*.lock"))]
+        locks.append(self._lock("preview"))
+        held = []
+        try:
+            for lock in locks:
+                if not lock.acquire(wait=False):
+                    raise FramestyleError(f"{self.out}: cannot restart: {lock.holder()}")
+                held.append(lock)
+            atomic.write_bytes(self._private / "restarting", b"")
+            self._discard([*names, *self._recorded_names()])
+        finally:
+            for lock in held:
+                lock.release()
 
-    def has_frame(self, name: str) -> bool:
-        """Whether the frame file exists (recorded or not)."""
-        return (self.out / name).exists()
+    def _discard(self, names: Sequence[str]) -> None:
+        trash = self._private / "trash" / uuid.uuid4().hex
+        for name in ("shots", "state"):
+            if (self._private / name).exists():
+                atomic.move(self._private / name, trash / name)
+        if (self.out / PREVIEW).exists():
+            atomic.move(self.out / PREVIEW, trash / PREVIEW)
+        products = [p for p in self.out.glob(f"*{VIDEO_SUFFIX}.*") if p.is_file()]
+        products += [self.out / name for name in dict.fromkeys(names) if (self.out / name).exists()]
+        for path in products:
+            atomic.move(path, trash / "frames" / path.name)
+        if (self.out / MANIFEST).exists():
+            atomic.move(self.out / MANIFEST, trash / MANIFEST)
+        atomic.remove(self._private / "restarting")
+        atomic.remove(self._private / "trash")
 
-    def write_frame(self, name: str, image: np.ndarray, bit_depth: int) -> None:
-        """Atomically write a delivered frame."""
-        io.write_image(self.out / name, image, bit_depth)
+    def _recorded_names(self) -> list[str]:
+        names = []
+        for path in (self._private / "shots").glob("shot_*.json"):
+            try:
+                names += list(json.loads(path.read_text()).get("frames", {}))
+            except (OSError, ValueError, AttributeError):
+                continue
+        return names
+
+    # --- records -----------------------------------------------------------------------------
+
+    def records(self) -> dict[int, dict]:
+        """Every shot's record (finished frames and their figures), merged; shot → record."""
+        merged = {}
+        for path in sorted((self._private / "shots").glob("shot_*.json")):
+            record = _read_record(path)
+            if record is not None:
+                merged[int(path.stem[5:])] = record
+        return merged
+
+    def finished(self) -> dict[str, dict]:
+        """Finished frames of every shot: frame name → its entry."""
+        return {name: entry for record in self.records().values() for name, entry in record["frames"].items()}
+
+    # --- one shot (under its lock) -----------------------------------------------------------
+
+    @contextlib.contextmanager
+    def shot(self, shot: int, wait: bool) -> Iterator["ShotStore | None"]:
+        """Hold shot ``shot``'s lock while rendering it; yields None (without ``wait``) if
+        another process holds it."""
+        lock = Lock(self._private / "locks" / f"shot_{shot:03d}.lock", f"shot {shot}")
+        if not lock.acquire(wait):
+            yield None
+            return
+        try:
+            yield ShotStore(self, shot)
+        finally:
+            lock.release()
+
+    def shot_holder(self, shot: int) -> str:
+        """Who renders shot ``shot`` now, in words."""
+        return Lock(self._private / "locks" / f"shot_{shot:03d}.lock", f"shot {shot}").holder()
+
+    # --- products ----------------------------------------------------------------------------
 
     def frame_paths(self, names: Sequence[str]) -> list[Path]:
         """Paths of frames by name."""
         return [self.out / name for name in names]
 
-    def save_state(self, shot: int, frame: int, image: np.ndarray) -> None:
-        """Keep the full-precision stylised ``frame`` (H, W, 3 float32) for the temporal losses."""
-        with atomic.atomic_path(_state_dir(self.out, shot) / f"{frame:07d}.npy") as tmp:
-            np.save(tmp, image.astype(np.float32), allow_pickle=False)
-
-    def load_state(self, shot: int, frame: int) -> np.ndarray | None:
-        """The kept full-precision stylised ``frame``, or None if it is not kept."""
-        path = _state_dir(self.out, shot) / f"{frame:07d}.npy"
-        return np.load(path, allow_pickle=False) if path.exists() else None
-
-    def prune_state(self, shot: int, keep_from: int | None) -> None:
-        """Delete kept frames older than ``keep_from`` (all of the shot's state if None)."""
-        folder = _state_dir(self.out, shot)
-        if not folder.exists():
-            return
-        for path in folder.glob("*.npy"):
-            if keep_from is None or int(path.stem) < keep_from:
-                path.unlink()
-        if keep_from is None:
-            folder.rmdir()
-
     def write_video(self, source: io.FrameSource, names: Sequence[str]) -> Path:
-        """Encode the finished frames of a video input, with its audio, unless already there."""
-        video = self.out / f"{source.path.stem}_framestyle.mp4"
+        """Encode the finished frames of a video input, with its audio, unless already there.
+
+        Call under :meth:`folder_lock`, so that two processes finishing at once encode it once.
+        """
+        video = self.out / f"{source.path.stem}{VIDEO_SUFFIX}.mp4"
         if not video.exists():
             io.write_video(self.frame_paths(names), source.fps, video, audio_from=source.path)
-            self.log.info("wrote %s", video)
+            self.log(f"wrote {video.name}")
         return video
 
-    # --- previews -----------------------------------------------------------------------------
+    @contextlib.contextmanager
+    def preview(self) -> Iterator["PreviewStore"]:
+        """Hold the preview lock while a preview writes ``preview/``; refused if one already does."""
+        self.out.mkdir(parents=True, exist_ok=True)
+        with _locked(self._lock("preview"), self.out, wait=False):
+            _remove_temporary(self.out / PREVIEW)
+            yield PreviewStore(self.out / PREVIEW)
 
-    def preview_path(self, name: str) -> Path:
-        """Where a preview file goes."""
-        return self.out / PREVIEW / name
+    def log(self, message: str) -> None:
+        """Append a line to ``render.log``."""
+        atomic.append_line(self.out / LOG, f"{time.strftime('%Y-%m-%d %H:%M:%S')} {message}")
 
-    def write_preview(self, name: str, image: np.ndarray) -> Path:
+    def _lock(self, name: str) -> Lock:
+        return Lock(self._private / "locks" / f"{name}.lock", f"the {name} lock" if name == "folder" else name)
+
+
+class ShotStore:
+    """One shot's share of the output folder, while its lock is held: its record, frames and
+    kept state."""
+
+    def __init__(self, store: Store, shot: int):
+        self.store, self.shot = store, shot
+        self._record_path = store._private / "shots" / f"shot_{shot:03d}.json"
+        self._state = store._private / "state" / f"shot_{shot:03d}"
+        self.record = _read_record(self._record_path) or {"shot": shot, "frames": {}}
+
+    def reconcile(self, names: Sequence[str]) -> list[str]:
+        """Check the shot's files before rendering it; return what was found wrong, in words.
+
+        Removes the store's temporary files left by a killed process; forgets recorded frames
+        that are missing or do not read back (they are rendered again); removes kept state
+        that does not read back; names frames on disk that the record does not know (they
+        are rendered again and replaced).
+        """
+        _remove_temporary(self._state)
+        _remove_temporary(self.store.out, set(names).__contains__)
+        problems = []
+        for name in list(self.record["frames"]):
+            path = self.store.out / name
+            if not _reads_back(path):
+                del self.record["frames"][name]
+                problems.append(f"{name} is recorded but {'missing' if not path.exists() else 'unreadable'}; "
+                                f"rendering it again")
+        unknown = [n for n in names if n not in self.record["frames"] and (self.store.out / n).exists()]
+        if unknown:
+            problems.append(f"{len(unknown)} frame(s) of shot {self.shot} on disk are not in its record "
+                            f"({unknown[0]}{', ...' if len(unknown) > 1 else ''}); rendering them again")
+        return problems
+
+    def write_frame(self, name: str, image: np.ndarray, bit_depth: int) -> None:
+        """Atomically write a delivered frame (not yet finished: see :meth:`finish_frame`)."""
+        io.write_image(self.store.out / name, image, bit_depth)
+
+    def finish_frame(self, name: str, entry: dict) -> None:
+        """Record a written frame as finished, with its figures (iterations, seconds ...)."""
+        self.record["frames"][name] = entry
+        atomic.write_json(self._record_path, self.record)
+
+    def save_state(self, frame: int, image: np.ndarray) -> None:
+        """Keep the full-precision stylised ``frame`` (H, W, 3 float32) for the temporal losses."""
+        with atomic.atomic_path(self._state / f"{frame:07d}.npy") as tmp:
+            np.save(tmp, image.astype(np.float32), allow_pickle=False)
+
+    def load_state(self, frame: int) -> np.ndarray | None:
+        """The kept stylised ``frame``, or None if it is not kept or does not read back."""
+        path = self._state / f"{frame:07d}.npy"
+        try:
+            return np.load(path, allow_pickle=False)
+        except FileNotFoundError:
+            return None
+        except (OSError, ValueError, EOFError):
+            atomic.remove(path)  # a truncated or damaged file: the frame is solved again
+            return None
+
+    def has_state(self) -> bool:
+        """Whether any state of the shot is kept."""
+        return self._state.exists()
+
+    def prune_state(self, keep_from: int | None) -> None:
+        """Delete kept frames older than ``keep_from`` (all of the shot's state if None)."""
+        if keep_from is None:
+            atomic.remove(self._state)
+            return
+        for path in self._state.glob("*.npy"):
+            if int(path.stem) < keep_from:
+                atomic.remove(path)
+
+
+class PreviewStore:
+    """The ``preview/`` folder while the preview lock is held."""
+
+    def __init__(self, folder: Path):
+        self.folder = folder
+
+    def write(self, name: str, image: np.ndarray) -> Path:
         """Atomically write an 8-bit preview image (frame or contact sheet)."""
-        path = self.preview_path(name)
+        path = self.folder / name
         io.write_image(path, image)
         return path
 
 
-def read_manifest(out: Path) -> dict | None:
-    """The manifest of output folder ``out``, or None if there is none."""
-    path = Path(out) / MANIFEST
-    if not path.exists():
-        return None
-    try:
-        manifest = json.loads(path.read_text())
-    except (OSError, ValueError) as exc:
-        raise FramestyleError(f"{path}: unreadable manifest ({exc}); use --restart to start over")
-    if manifest.get("format") != FORMAT:
-        raise FramestyleError(f"{path}: manifest format {manifest.get('format')} is not {FORMAT}")
-    return manifest
-
+# --- what a render is checked against ----------------------------------------------------------
 
 def input_fingerprints(source: io.FrameSource, settings: Settings) -> dict:
     """Fingerprints of everything a render reads: input frames, style images, mattes."""
@@ -160,15 +372,25 @@ def input_fingerprints(source: io.FrameSource, settings: Settings) -> dict:
     styles = {p for v in variants for p in v.styles}
     mattes = {v.matte for v in variants if v.matte and v.matte != "alpha"}
     return {
-        "input": str(source.path),
+        "input": str(Path(source.path).resolve()),
         "input_fingerprint": io.fingerprint(source),
-        "styles": {p: _file_hash(Path(p)) for p in sorted(styles)},
+        "styles": {p: file_hash(Path(p)) for p in sorted(styles)},
         "mattes": {m: io.fingerprint(io.open_source(Path(m))) for m in sorted(mattes)},
     }
 
 
-def check_resume(manifest: dict, settings: Settings, inputs: dict, out: Path) -> None:
-    """Refuse to continue a render whose settings or inputs changed, naming what changed."""
+def shot_list_fingerprint(shot_file: Path | None) -> dict:
+    """Which shot list a render follows: a file (absolute path and content hash) or detection."""
+    if shot_file is None:
+        return {"file": None, "sha256": None}
+    return {"file": str(Path(shot_file).resolve()), "sha256": file_hash(Path(shot_file))}
+
+
+def check_resume(manifest: dict, settings: Settings, inputs: dict, shot_list: dict | None, out: Path) -> None:
+    """Refuse to continue a render whose settings, inputs or shot list changed, naming what.
+
+    ``shot_list`` None means "whatever the render was started with" (``framestyle resume``).
+    """
     old = Settings.from_dict(manifest["settings"], str(out / MANIFEST))
     changed = old.differences(settings)
     if changed:
@@ -178,9 +400,18 @@ def check_resume(manifest: dict, settings: Settings, inputs: dict, out: Path) ->
         )
     for key, what in (("input_fingerprint", "input frames"), ("styles", "style image(s)"), ("mattes", "mattes")):
         if manifest["inputs"][key] != inputs[key]:
-            raise FramestyleError(
-                f"{out}: the {what} changed since this render started; use --restart to start over"
-            )
+            raise FramestyleError(f"{out}: the {what} changed since this render started; use --restart to start over")
+    if shot_list is not None and shot_list != manifest["shot_list"]:
+        was = manifest["shot_list"]["file"] or "detected shots"
+        raise FramestyleError(f"{out}: was rendered with another shot list ({was}); give the same --shot-list, "
+                              f"a new --out, or --restart to start over")
+
+
+def environment_changes(manifest: dict, environment: dict) -> list[str]:
+    """What differs between the environment a render started in and this one (library
+    versions, thread count): results may then differ in the last bits."""
+    old = manifest.get("environment", {})
+    return [f"{key} {environment[key]} (was {old.get(key)})" for key in environment if old.get(key) != environment[key]]
 
 
 def output_names(source: io.FrameSource) -> list[str]:
@@ -189,72 +420,45 @@ def output_names(source: io.FrameSource) -> list[str]:
     return [io.frame_name(source, i, ext) for i in range(source.count)]
 
 
-def _state_dir(out: Path, shot: int) -> Path:
-    return Path(out) / ".state" / f"shot_{shot:03d}"
-
-
-def _file_hash(path: Path) -> str:
+def file_hash(path: Path) -> str:
+    """Short SHA-256 of a file's content."""
     return hashlib.sha256(Path(path).read_bytes()).hexdigest()[:16]
 
 
-def _open_log(out: Path) -> logging.Logger:
-    log = logging.getLogger(f"framestyle.render.{out.resolve()}")
-    log.setLevel(logging.INFO)
-    log.propagate = False
-    handler = logging.FileHandler(out / "render.log")
-    handler.setFormatter(logging.Formatter("%(asctime)s %(message)s"))
-    log.addHandler(handler)
-    return log
+def read_manifest(out: Path) -> dict | None:
+    """The manifest of output folder ``out``, or None if there is none."""
+    return Store(out).manifest()
 
 
-class FolderLock:
-    """An exclusive lock on an output folder, taken over if its owner process is gone.
+# --- helpers ------------------------------------------------------------------------------------
 
-    The lock file holds the owner's pid and host name. Another live process on this host
-    holding it is a user error; a lock whose process no longer exists (killed render) is
-    stale and taken over.
-    """
-
-    def __init__(self, out: Path):
-        self.path = Path(out) / ".lock"
-
-    def __enter__(self) -> "FolderLock":
-        self.path.parent.mkdir(parents=True, exist_ok=True)
-        me = {"pid": os.getpid(), "host": socket.gethostname(), "started": time.time()}
-        for _ in range(2):
-            try:
-                fd = os.open(self.path, os.O_CREAT | os.O_EXCL | os.O_WRONLY)
-            except FileExistsError:
-                owner = self._owner()
-                if owner is not None and _alive(owner):
-                    raise FramestyleError(
-                        f"{self.path.parent}: another render (pid {owner['pid']} on "
-                        f"{owner['host']}) is writing to this folder"
-                    )
-                self.path.unlink(missing_ok=True)  # stale: its process is gone
-                continue
-            with os.fdopen(fd, "w") as f:
-                json.dump(me, f)
-            return self
-        raise FramestyleError(f"{self.path}: could not take the folder lock")
-
-    def __exit__(self, *exc) -> None:
-        self.path.unlink(missing_ok=True)
-
-    def _owner(self) -> dict | None:
-        try:
-            return json.loads(self.path.read_text())
-        except (OSError, ValueError):
-            return None  # torn or vanished lock file: treat as stale
-
-
-def _alive(owner: dict) -> bool:
-    if owner.get("host") != socket.gethostname():
-        return True  # cannot check another machine's processes: assume it is running
+def _read_record(path: Path) -> dict | None:
+    """A shot record, or None if missing; a damaged record is treated as missing (its shot is
+    checked frame by frame again when it is next rendered)."""
     try:
-        os.kill(int(owner["pid"]), 0)
-    except ProcessLookupError:
+        record = json.loads(path.read_text())
+    except FileNotFoundError:
+        return None
+    except (OSError, ValueError):
+        return None
+    return record if isinstance(record, dict) and isinstance(record.get("frames"), dict) else None
+
+
+def _reads_back(path: Path) -> bool:
+    """Whether a finished frame exists and decodes."""
+    try:
+        io.read_image(path)
+    except (FramestyleError, OSError):
         return False
-    except PermissionError:
-        return True
     return True
+
+
+def _remove_temporary(folder: Path, owned: Callable[[str], bool] = lambda target: True) -> None:
+    """Remove :mod:`framestyle.atomic`'s temporary files in ``folder`` whose target file name
+    satisfies ``owned`` (all of them by default)."""
+    if not folder.is_dir():
+        return
+    with os.scandir(folder) as entries:
+        for entry in entries:
+            if atomic.is_temporary(entry.name) and owned(atomic.temporary_target(entry.name)):
+                atomic.remove(entry.path)

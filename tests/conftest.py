@@ -47,17 +47,13 @@ def kill_and_resume(clip: Path, tmp_path: Path, options: list[str]) -> None:
     cmd = [sys.executable, "-m", "framestyle", "stylise", str(clip), "-q", *options, "--out"]
     env = {**os.environ, "PYTHONPATH": str(ROOT)}
     proc = subprocess.Popen([*cmd, str(killed)], env=env, stdout=subprocess.DEVNULL, stderr=subprocess.PIPE)
-    manifest = killed / store.MANIFEST
     deadline, done = time.time() + 300, 0
     while time.time() < deadline and done < 4 and proc.poll() is None:
-        try:
-            done = len(json.loads(manifest.read_text())["frames"])
-        except (OSError, ValueError):
-            pass
+        done = len(store.Store(killed).finished())
         time.sleep(0.05)
     os.kill(proc.pid, signal.SIGKILL)
     proc.wait()
-    finished = json.loads(manifest.read_text())["frames"]
+    finished = store.Store(killed).finished()
     assert 4 <= len(finished) < 10, "the kill should land inside shot 1"
     for path in killed.glob("*.png"):
         assert cv2.imread(str(path)) is not None, f"{path.name} is not a valid PNG"

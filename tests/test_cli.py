@@ -9,6 +9,7 @@ import numpy as np
 import pytest
 from typer.testing import CliRunner
 
+from framestyle import store
 from framestyle.cli import app
 
 from conftest import SAMPLE, STYLE
@@ -42,8 +43,7 @@ def test_resume_renders_the_remaining_shots_from_the_manifest_alone(small_clip, 
     assert code == 0, err
     assert len(list(out.glob("take_*.png"))) == 20
     assert "shot" in stdout and "all" in stdout  # the summary table
-    manifest = json.loads((out / "framestyle.json").read_text())
-    assert len(manifest["frames"]) == 20
+    assert len(store.Store(out).finished()) == 20
 
 
 def test_preview_writes_every_nth_frame_and_a_contact_sheet_per_shot(small_clip, tmp_path):

@@ -151,7 +151,7 @@ def test_coarse_to_fine_solves_a_coarse_level_first_on_a_shots_first_frame(tmp_p
         image = cv2.imread(str(SAMPLE / "frames" / f"drift_{n:04d}.png"))
         cv2.imwrite(str(clip / f"big_{n}.png"), cv2.resize(image, (256, 144), interpolation=cv2.INTER_AREA))
     render(clip, tmp_path / "out", fast_settings(width=256, levels=2, iterations=4, tolerance=0.0))
-    done = json.loads((tmp_path / "out" / store.MANIFEST).read_text())["frames"]
+    done = store.Store(tmp_path / "out").finished()
     assert done["big_1.png"]["iterations"] == 8  # 4 at 128×72, then 4 at 256×144
     assert done["big_2.png"]["iterations"] == 4
 

@@ -19,7 +19,7 @@ from pathlib import Path
 import numpy as np
 import OpenImageIO as oiio
 
-from framestyle.atomic import atomic_path
+from framestyle import atomic
 from framestyle.errors import FramestyleError
 
 IMAGE_EXTS = frozenset({".png", ".jpg", ".jpeg", ".tif", ".tiff", ".exr", ".dpx"})
@@ -92,7 +92,7 @@ def write_image(path: Path, image: np.ndarray, bit_depth: int = 8) -> None:
     if ext == ".exr":
         spec.attribute("compression", "zip")
     samples = np.ascontiguousarray(quantise(image, 32 if ext == ".exr" else bit_depth))
-    with atomic_path(path) as tmp:
+    with atomic.atomic_path(path) as tmp:
         out = oiio.ImageOutput.create(str(tmp))
         if out is None or not out.open(str(tmp), spec):
             raise FramestyleError(f"{path}: cannot write the image ({_last_error()})")

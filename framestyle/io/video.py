@@ -23,7 +23,7 @@ from typing import Iterator, Sequence
 import imageio_ffmpeg
 import numpy as np
 
-from framestyle.atomic import atomic_path
+from framestyle import atomic
 from framestyle.errors import FramestyleError
 from framestyle.timecode import ntsc_nominal
 
@@ -143,7 +143,7 @@ def write_video(
         # when the audio is the shorter stream.
         audio += ["-t", f"{float(len(paths) / rate) + 1e-6:.6f}"]
     cmd += streams + ["-vf", _ENCODE_FILTER] + _ENCODE_VIDEO + audio + ["-movflags", "+faststart"]
-    with atomic_path(out_path) as tmp, tempfile.TemporaryFile() as errors:
+    with atomic.atomic_path(out_path) as tmp, tempfile.TemporaryFile() as errors:
         process = subprocess.Popen(cmd + [str(tmp)], stdin=subprocess.PIPE, stderr=errors, bufsize=0)
         try:
             try:

@@ -17,7 +17,7 @@ from matplotlib.backends.backend_agg import FigureCanvasAgg
 from matplotlib.figure import Figure
 from matplotlib.ticker import FuncFormatter
 
-from framestyle.atomic import atomic_path
+from framestyle import atomic
 from framestyle.qc.flashes import AREA_LIMIT, KINDS, MAX_FLASHES, FlashReport
 
 _COLOURS = {"general": "#1f4e9c", "red": "#c0392b"}
@@ -101,5 +101,5 @@ def plot_flash_timeline(reports: Mapping[str, FlashReport], path: str | os.PathL
         area_axis.sharex(flash_axis)
         flash_axis.tick_params(labelbottom=False)
         _draw(report, label, flash_axis, area_axis)
-    with atomic_path(path) as tmp:
+    with atomic.atomic_path(path) as tmp:
         fig.savefig(tmp, format="png")

@@ -1,0 +1,265 @@
+"""The output store: survives any kill, any leftover and any restart; several processes share it.
+
+The crash and I/O-error loops follow SQLite's method (sqlite.org, "How SQLite Is Tested":
+crash testing and I/O error testing): count every file-system write of a small render, then
+stop (or fail) the render at each one in turn and check that the next run finishes it with
+frames equal, bit for bit, to an uninterrupted render's.
+"""
+
+import os
+import shutil
+import subprocess
+import sys
+from pathlib import Path
+
+import cv2
+import imageio_ffmpeg
+import numpy as np
+import pytest
+
+from framestyle import pipeline, store
+from framestyle.settings import Settings
+
+from conftest import ROOT, STYLE, fast_settings
+from faults import CRASH, EACCES, ENOSPC, Hook, frames_of, prepare_parent, run_cli, start_cli
+
+
+@pytest.fixture(scope="module")
+def clip(small_clip, tmp_path_factory) -> tuple[Path, Path]:
+    """A 6-frame H.264 clip (so the render also writes a video) and its two-shot list."""
+    folder = tmp_path_factory.mktemp("video")
+    video = folder / "cut.mp4"
+    frames = [str(small_clip / f"take_{n:03d}.png") for n in range(8, 14)]  # the cut is at take_011
+    listing = folder / "frames.txt"
+    listing.write_text("".join(f"file '{f}'\nduration 0.04\n" for f in frames))
+    subprocess.run([imageio_ffmpeg.get_ffmpeg_exe(), "-v", "error", "-f", "concat", "-safe", "0", "-i", str(listing),
+                    "-frames:v", "6", "-r", "25", "-c:v", "libx264", "-pix_fmt", "yuv420p", str(video)], check=True)
+    shots = folder / "shots.txt"
+    shots.write_text("0\n3\n")
+    prepare_parent()
+    pipeline.network(Settings.network, None)  # loaded once here, shared by every forked render
+    return video, shots
+
+
+def _args(clip, out, *extra):
+    video, shots = clip
+    return ["stylise", video, "--style", STYLE, "--out", out, "--width", "128", "--iterations", "2",
+            "--tolerance", "0", "--shot-list", shots, "-q", *extra]
+
+
+@pytest.fixture(scope="module")
+def reference(clip, tmp_path_factory):
+    """An uninterrupted render, and how many writes it makes."""
+    out = tmp_path_factory.mktemp("reference") / "out"
+    code, err, writes = run_cli(_args(clip, out))
+    assert code == 0, err
+    assert len(frames_of(out)) == 6 and (out / "cut_framestyle.mp4").exists()
+    return out, writes
+
+
+def _finished_stamps(out: Path) -> dict[str, int]:
+    return {name: (out / name).stat().st_mtime_ns for name in store.Store(out).finished()}
+
+
+def _no_leftovers(out: Path) -> None:
+    assert not [p for p in out.rglob("*") if ".tmp-" in p.name], "temporary files left behind"
+    assert not list(out.rglob("*.npy")), "kept state left behind"
+
+
+def test_a_crash_at_every_write_then_the_same_command_finishes_bit_identical(clip, reference, tmp_path):
+    ref, writes = reference
+    assert writes > 20  # frames, state, records, manifest, log lines, video
+    for n in range(1, writes + 1):
+        out = tmp_path / f"crash_{n}"
+        code, err, _ = run_cli(_args(clip, out), Hook(n))
+        assert code == 99, f"write {n}: {err}"
+        stamps = _finished_stamps(out) if (out / store.MANIFEST).exists() else {}
+        code, err, _ = run_cli(_args(clip, out))
+        assert code == 0 and "Traceback" not in err, f"after a crash at write {n}: {err}"
+        assert frames_of(out) == frames_of(ref), f"after a crash at write {n}"
+        assert (out / "cut_framestyle.mp4").read_bytes() == (ref / "cut_framestyle.mp4").read_bytes()
+        assert {k: v for k, v in _finished_stamps(out).items() if k in stamps} == stamps, "a finished frame was rewritten"
+        _no_leftovers(out)
+        shutil.rmtree(out)
+
+
+@pytest.mark.parametrize("fault", [ENOSPC, EACCES], ids=["disk-full", "permission-denied"])
+def test_an_io_error_at_every_write_is_one_line_and_loses_nothing(clip, reference, tmp_path, fault):
+    ref, writes = reference
+    for n in range(1, writes + 1):
+        out = tmp_path / f"fault_{n}"
+        code, err, _ = run_cli(_args(clip, out), Hook(n, fault))
+        lines = err.strip().splitlines()
+        assert code == 2 and len(lines) == 1 and "Traceback" not in err, f"write {n}: {err}"
+        assert os.strerror(fault) in lines[0] and str(out) in lines[0]
+        for name in store.Store(out).finished():  # what was finished is intact
+            assert (out / name).read_bytes() == (ref / name).read_bytes()
+        code, err, _ = run_cli(_args(clip, out))
+        assert code == 0, f"after an I/O error at write {n}: {err}"
+        assert frames_of(out) == frames_of(ref)
+        _no_leftovers(out)
+        shutil.rmtree(out)
+
+
+def test_a_crash_at_every_write_of_a_restart_leaves_nothing_of_the_old_render(clip, reference, tmp_path):
+    ref, _ = reference
+    new_ref = tmp_path / "new_ref"
+    assert run_cli(_args(clip, new_ref, "--iterations", "3"))[0] == 0
+    base = tmp_path / "base"
+    shutil.copytree(ref, base)
+    (base / store.PREVIEW).mkdir()
+    (base / store.PREVIEW / "contact_shot001.png").write_bytes(b"an old preview")
+    _, _, writes = run_cli(_args(clip, tmp_path / "count", "--iterations", "3", "--restart"))
+    for n in range(1, writes + 1, 2):  # every other write: the restart's moves and the new render
+        out = tmp_path / f"restart_{n}"
+        shutil.copytree(base, out)
+        code, err, _ = run_cli(_args(clip, out, "--iterations", "3", "--restart"), Hook(n))
+        assert code == 99, err
+        code, err, _ = run_cli(_args(clip, out, "--iterations", "3"))  # the same options, without --restart
+        lines = err.strip().splitlines()
+        if code == 2:  # killed before the old manifest went: refused by name, nothing touched
+            assert len(lines) == 1 and "different settings (iterations)" in lines[0]
+            code, err, _ = run_cli(_args(clip, out, "--iterations", "3", "--restart"))
+        assert code == 0, err
+        assert frames_of(out) == frames_of(new_ref)
+        assert (out / "cut_framestyle.mp4").read_bytes() == (new_ref / "cut_framestyle.mp4").read_bytes()
+        assert not (out / store.PREVIEW).exists()
+        _no_leftovers(out)
+        shutil.rmtree(out)
+
+
+def test_restart_works_when_the_manifest_is_unreadable(clip, reference, tmp_path):
+    ref, _ = reference
+    out = tmp_path / "out"
+    shutil.copytree(ref, out)
+    (out / store.MANIFEST).write_text("{ not json")
+    code, err, _ = run_cli(_args(clip, out))
+    assert code == 2 and "unreadable manifest" in err and "--restart" in err
+    assert run_cli(_args(clip, out, "--restart"))[0] == 0
+    assert frames_of(out) == frames_of(ref)
+
+
+def test_planted_leftovers_are_cleaned_and_the_render_finishes(clip, reference, tmp_path):
+    ref, writes = reference
+    out = tmp_path / "out"
+    code, _, _ = run_cli(_args(clip, out), Hook(writes // 3))  # killed inside shot 1
+    assert code == 99
+    state = out / ".framestyle" / "state" / "shot_001"
+    kept = sorted(state.glob("*.npy"))
+    assert kept, "the kill should leave kept state"
+    (state / f".{kept[-1].name}.tmp-x1y2z3.npy").write_bytes(b"\x93NUMPY half")  # a torn temp beside state
+    kept[-1].write_bytes(kept[-1].read_bytes()[:40])  # a truncated state file
+    (out / ".frame_000005.png.tmp-q9w8e7.png").write_bytes(b"")  # a zero-byte temp beside the frames
+    code, err, _ = run_cli(_args(clip, out))
+    assert code == 0 and "Traceback" not in err, err
+    assert frames_of(out) == frames_of(ref)
+    _no_leftovers(out)
+
+
+def test_a_missing_or_damaged_finished_frame_is_rendered_again(clip, reference, tmp_path):
+    ref, _ = reference
+    out = tmp_path / "out"
+    shutil.copytree(ref, out)
+    (out / "frame_000001.png").unlink()
+    (out / "frame_000004.png").write_bytes(b"not a png any more")
+    code, err, _ = run_cli(_args(clip, out))
+    assert code == 0, err
+    assert "frame_000001.png is recorded but missing" in err and "frame_000004.png is recorded but unreadable" in err
+    assert frames_of(out) == frames_of(ref)
+
+
+def test_two_processes_on_one_folder_each_shot_is_rendered_by_exactly_one_of_them(clip, reference, tmp_path):
+    # 50 races: both processes want every shot; each takes the shots it can lock first and
+    # waits for the others, so both finish and no frame is solved twice.
+    ref, _ = reference
+    for k in range(50):
+        out = tmp_path / f"race_{k}"
+        first, second = start_cli(_args(clip, out)), start_cli(_args(clip, out))
+        results = [first.wait(), second.wait()]
+        assert [code for code, _, _ in results] == [0, 0], results
+        log = (out / store.LOG).read_text()
+        for name in frames_of(ref):
+            assert log.count(f"frame {name} ") == 1, f"race {k}: {name} solved more than once"
+        assert frames_of(out) == frames_of(ref)
+        shutil.rmtree(out)
+
+
+def test_two_framestyle_processes_render_different_shots_of_one_folder_at_once(small_clip, tmp_path):
+    # Separate interpreters, as on a render farm: the result equals a one-process render.
+    env = {**os.environ, "PYTHONPATH": str(ROOT)}
+    common = [sys.executable, "-m", "framestyle", "stylise", str(small_clip), "--style", str(STYLE), "-q",
+              "--width", "128", "--iterations", "4"]
+    whole, shared = tmp_path / "whole", tmp_path / "shared"
+    procs = [subprocess.Popen([*common, "--out", str(shared), "--shots", n], env=env, stderr=subprocess.PIPE)
+             for n in ("1", "2")]
+    for proc in procs:
+        assert proc.wait(timeout=600) == 0, proc.stderr.read().decode()
+    subprocess.run([*common, "--out", str(whole)], env=env, check=True, timeout=600)
+    pngs = sorted(p.name for p in whole.glob("take_*.png"))
+    assert len(pngs) == 20
+    for name in pngs:
+        assert (shared / name).read_bytes() == (whole / name).read_bytes()
+
+
+def test_resume_from_another_folder_uses_the_absolute_input_path(small_clip, tmp_path, monkeypatch):
+    out = tmp_path / "out"
+    monkeypatch.chdir(small_clip.parent)
+    pipeline.render(Path(small_clip.name), out, fast_settings(iterations=2), shots="1")
+    monkeypatch.chdir(tmp_path)
+    from typer.testing import CliRunner
+
+    from framestyle.cli import app
+
+    result = CliRunner().invoke(app, ["resume", str(out), "--shots", "2", "-q"])
+    assert result.exit_code == 0, result.stderr
+    assert len(store.Store(out).finished()) == 20
+
+
+def test_a_changed_shot_list_on_resume_is_refused_by_name(small_clip, tmp_path):
+    out = tmp_path / "out"
+    listing = tmp_path / "shots.txt"
+    listing.write_text("0\n10\n")
+    pipeline.render(small_clip, out, fast_settings(iterations=2), shot_file=listing, shots="1")
+    listing.write_text("0\n5\n")
+    with pytest.raises(store.FramestyleError, match="another shot list"):
+        pipeline.render(small_clip, out, fast_settings(iterations=2), shot_file=listing)
+    with pytest.raises(store.FramestyleError, match="another shot list"):
+        pipeline.render(small_clip, out, fast_settings(iterations=2))  # detection instead of the list
+
+
+def test_a_gap_in_the_numbering_is_reported_and_starts_a_new_shot(small_clip, tmp_path):
+    clip = tmp_path / "gappy"
+    clip.mkdir()
+    for k, p in enumerate(sorted(small_clip.glob("take_*.png"))[:8]):
+        shutil.copy(p, clip / f"plate_{1001 + k + (2 if k >= 4 else 0)}.png")  # 1005 and 1006 missing
+    events = []
+    pipeline.render(clip, tmp_path / "out", fast_settings(iterations=2),
+                    progress=lambda e, **i: events.append((e, i)))
+    warnings = [i["message"] for e, i in events if e == "warning"]
+    assert any("frame numbers missing (1005-1006)" in w for w in warnings)
+    assert store.read_manifest(tmp_path / "out")["shots"][1]["start"] == 4
+
+
+def test_progress_on_resume_starts_from_the_frames_already_done(small_clip, tmp_path):
+    out = tmp_path / "out"
+    pipeline.render(small_clip, out, fast_settings(iterations=2), shots="1")
+    events = []
+    pipeline.render(small_clip, out, fast_settings(iterations=2), progress=lambda e, **i: events.append((e, i)))
+    start = next(i for e, i in events if e == "start")
+    assert (start["frames"], start["done"]) == (20, 10)
+    assert sum(1 for e, _ in events if e == "frame") == 10
+
+
+def test_a_preview_takes_the_preview_lock(small_clip, tmp_path):
+    out = tmp_path / "out"
+    lock = store.Lock(out / ".framestyle" / "locks" / "preview.lock", "preview")
+    assert lock.acquire(wait=False)
+    try:
+        child = subprocess.run(
+            [sys.executable, "-m", "framestyle", "preview", str(small_clip), "--style", str(STYLE), "--out", str(out),
+             "--every", "5", "--width", "128", "--iterations", "2", "-q"],
+            env={**os.environ, "PYTHONPATH": str(ROOT)}, capture_output=True, text=True, timeout=300)
+    finally:
+        lock.release()
+    assert child.returncode == 2 and "preview is held by pid" in child.stderr
+    assert len(child.stderr.strip().splitlines()) == 1
