@@ -282,31 +282,46 @@ def _summary_table(shots) -> str:
 def shots_command(
     input: Annotated[Path, typer.Argument(help="Folder of numbered frames, or a video file.")],
     json_out: Annotated[bool, typer.Option("--json", help="Print the shot list as JSON.")] = False,
-    fps: Annotated[Optional[float], typer.Option(help="Frame rate for timecode (default: the video's, or 24).")] = None,
+    fps: Annotated[Optional[float], typer.Option(help="Frame rate for timecode (default: the video's; 24 for folders).")] = None,
+    start_timecode: Annotated[Optional[str], typer.Option(help="Timecode of the first frame, HH:MM:SS:FF or HH:MM:SS;FF for drop-frame (default: the video's timecode, else 00:00:00:00).")] = None,
+    shot_list: Annotated[Optional[Path], typer.Option(help="Take the shots from this file instead of detecting them: a list of shot starts, the JSON --json prints, an EDL or an .otio file.")] = None,
     cut_threshold: Annotated[float, typer.Option(help="Colour distance (0..1) that makes a cut.")] = Settings.cut_threshold,
     gradual_threshold: Annotated[float, typer.Option(help="End-to-end colour distance that makes a fade or dissolve.")] = Settings.gradual_threshold,
-    add_cut: Annotated[Optional[list[int]], typer.Option(help="Frame (0-based) that starts a shot; repeatable.")] = None,
-    remove_cut: Annotated[Optional[list[int]], typer.Option(help="Shot start (0-based) to join to the shot before; repeatable.")] = None,
+    add_cut: Annotated[Optional[list[int]], typer.Option(help="Frame number (the source's) that starts a shot; repeatable.")] = None,
+    remove_cut: Annotated[Optional[list[int]], typer.Option(help="Shot start (the source's frame number) to join to the shot before; repeatable.")] = None,
+    edl: Annotated[Optional[Path], typer.Option(help="Also write the shots as a CMX 3600 EDL for editing software.")] = None,
+    otio_file: Annotated[Optional[Path], typer.Option("--otio", help="Also write the shots as an OpenTimelineIO (.otio) file.")] = None,
 ) -> None:
-    """List the shots of INPUT with first/last frame and SMPTE timecode.
+    """List the shots of INPUT by the source's frame numbers and timecode.
 
-    With --add-cut/--remove-cut and --json the corrected list can be saved and given to
-    `framestyle stylise --shot-list`.
+    Frame numbers are the files' numbers for a folder (1001... for plates) and the 0-based
+    index for a video. With --add-cut/--remove-cut and --json the corrected list can be
+    saved and given to `framestyle stylise --shot-list`; --edl and --otio hand the shots to
+    editing software, which can hand its own cut back through --shot-list.
     """
     from framestyle import io
     from framestyle.pipeline import find_shots
-    from framestyle.shots.lists import apply_overrides, format_shot_table
+    from framestyle.shots.cutlists import write_cut_list
+    from framestyle.shots.lists import apply_overrides, format_shot_table, parse_shot_file, shot_entries
 
     _check_path(input, "input")
     source = _run(io.open_source, input)
-    settings = _run(Settings.from_dict, {"cut_threshold": cut_threshold, "gradual_threshold": gradual_threshold},
-                    "options")
-    found = _run(find_shots, source, settings, None)
-    found = _run(apply_overrides, found, add_cut or (), remove_cut or ())
-    if json_out:
-        typer.echo(json.dumps([s.to_dict() for s in found]))
+    timecode = _run(io.source_timecode, source, fps, start_timecode)
+    if shot_list:
+        found = _run(parse_shot_file, _check_path(shot_list, "file"), source.numbers, timecode)
     else:
-        typer.echo(format_shot_table(found, fps or source.fps or 24.0))
+        settings = _run(Settings.from_dict, {"cut_threshold": cut_threshold, "gradual_threshold": gradual_threshold},
+                        "options")
+        found = _run(find_shots, source, settings, None)
+    found = _run(apply_overrides, found, source.numbers, add_cut or (), remove_cut or ())
+    name = source.path.resolve().stem if source.kind == "video" else source.path.resolve().name
+    for path in filter(None, (edl, otio_file)):
+        _run(write_cut_list, path, found, timecode, name, str(source.path.resolve()))
+        typer.echo(f"wrote {path}", err=True)
+    if json_out:
+        typer.echo(json.dumps(shot_entries(found, source.numbers, timecode)))
+    else:
+        typer.echo(format_shot_table(found, source.numbers, timecode))
 
 
 @app.command("stability")
