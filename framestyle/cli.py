@@ -301,14 +301,17 @@ def shots_command(
     """
     from framestyle import io
     from framestyle.pipeline import find_shots
-    from framestyle.shots.cutlists import write_cut_list
+    from framestyle.shots.cutlists import cut_list_adapter, cut_list_timecode, write_cut_list
     from framestyle.shots.lists import apply_overrides, format_shot_table, parse_shot_file, shot_entries
 
     _check_path(input, "input")
     source = _run(io.open_source, input)
     timecode = _run(io.source_timecode, source, fps, start_timecode)
     if shot_list:
-        found = _run(parse_shot_file, _check_path(shot_list, "file"), source.numbers, timecode)
+        _check_path(shot_list, "file")
+        if cut_list_adapter(shot_list):
+            timecode = _run(cut_list_timecode, shot_list, timecode)
+        found = _run(parse_shot_file, shot_list, source.numbers, timecode)
     else:
         settings = _run(Settings.from_dict, {"cut_threshold": cut_threshold, "gradual_threshold": gradual_threshold},
                         "options")

@@ -501,6 +501,10 @@ def test_prores_hand_off_is_422_hq_10_bit_with_audio_and_timecode(tc_clip, tmp_p
     assert "Audio: pcm_s24le" in report and "48000 Hz" in report
     assert "timecode        : 01:00:00;00" in report
     assert "major_brand     : qt" in report  # a QuickTime file
+    # SMPTE RDD 36 frame header (from memory): "icpf", header size, reserved, version, then
+    # the 4-byte encoder identifier, here Apple's "apl0".
+    data = out.read_bytes()
+    assert data[data.index(b"icpf") + 8:][:4] == b"apl0"
     result = open_source(out)
     assert (result.count, result.fps, result.start_timecode) == (30, 30000 / 1001, "01:00:00;00")
     assert result.bit_depth == 16  # 10-bit samples, read at 16-bit precision

@@ -63,8 +63,9 @@ def read_cut_list(path: str | os.PathLike, timecode: ClipTimecode, count: int) -
     """Read an EDL or OpenTimelineIO cut of a clip; return the shot starts as 0-based positions.
 
     Each event (clip) of the cut's one video track is a shot; transitions count as cuts at
-    their edit point. An event's record range is placed on the clip through ``timecode``
-    (see the module notes); an EDL is read at the clip's rate, as EDLs do not state one.
+    their edit point. An event's record range is placed on the clip through the clip's
+    timecode, or through :func:`cut_list_timecode` when the clip has none (see the module
+    notes); an EDL is read at the clip's rate, as EDLs do not state one.
 
     Parameters
     ----------
@@ -92,6 +93,38 @@ def read_cut_list(path: str | os.PathLike, timecode: ClipTimecode, count: int) -
     CMX 3600 EDL layout (event, reel, channel, transition, source in/out, record in/out);
     OpenTimelineIO 0.18 documentation, "Timeline Structure" and "Time Ranges".
     """
+    events = _record_ranges(path, timecode)
+    first = events[0][0] if timecode.start is None else timecode.first
+    clip = f"{_label(first, timecode)}-{_label(first + count - 1, timecode)}, {count} frames"
+    if events[0][0] != first:
+        raise FramestyleError(f"{path}: the cut starts at {_label(events[0][0], timecode)} but the clip's first"
+                              f" frame is {_label(first, timecode)} (clip {clip})")
+    if events[-1][1] != first + count:
+        longer = "longer" if events[-1][1] > first + count else "shorter"
+        raise FramestyleError(f"{path}: the cut ({events[-1][1] - first} frames, to"
+                              f" {_label(events[-1][1] - 1, timecode)}) is {longer} than the clip ({clip})")
+    return [record_in - first for record_in, _ in events]
+
+
+def cut_list_timecode(path: str | os.PathLike, timecode: ClipTimecode) -> ClipTimecode:
+    """The clip's timecode as a cut list places it: its own, or from the cut's first record timecode.
+
+    A clip without a start timecode of its own (``timecode.start`` None) is read as the cut
+    exported, starting at the first event's record timecode (often 01:00:00:00), so tables
+    and cut lists written back label its frames as the editor's timeline does.
+
+    Raises
+    ------
+    FramestyleError
+        As :func:`read_cut_list`, for a cut list that cannot be read.
+    """
+    if timecode.start is not None:
+        return timecode
+    return ClipTimecode(timecode.fps, _label(_record_ranges(path, timecode)[0][0], timecode))
+
+
+def _record_ranges(path: str | os.PathLike, timecode: ClipTimecode) -> list[tuple[int, int]]:
+    """The events' record ranges (in, out exclusive) as frame counts from 00:00:00:00, checked."""
     adapter = cut_list_adapter(path) or "otio_json"
     rate = exact_rate(timecode.fps)
     kind = _KIND[adapter]
@@ -105,10 +138,12 @@ def read_cut_list(path: str | os.PathLike, timecode: ClipTimecode, count: int) -
     if not isinstance(timeline, otio.schema.Timeline):
         raise FramestyleError(f"{path}: holds a {type(timeline).__name__}, not a timeline")
     tracks = timeline.video_tracks()
-    if len(tracks) != 1:
+    if not tracks:
+        raise FramestyleError(f"{path}: the cut list has no video events")
+    if len(tracks) > 1:
         raise FramestyleError(f"{path}: has {len(tracks)} video tracks; give a cut with one")
     offset = _frames(timeline.global_start_time, rate) if timeline.global_start_time is not None else 0
-    events: list[tuple[int, int]] = []  # record (in, out exclusive) as frame counts
+    events: list[tuple[int, int]] = []
     for item in tracks[0]:
         if isinstance(item, otio.schema.Transition):
             continue
@@ -125,16 +160,7 @@ def read_cut_list(path: str | os.PathLike, timecode: ClipTimecode, count: int) -
             events.append((record_in, record_out))
     if not events:
         raise FramestyleError(f"{path}: the cut list has no video events")
-    first = timecode.first if timecode.start is not None else events[0][0]
-    clip = f"{_label(first, timecode)}-{_label(first + count - 1, timecode)}, {count} frames"
-    if events[0][0] != first:
-        raise FramestyleError(f"{path}: the cut starts at {_label(events[0][0], timecode)} but the clip's first"
-                              f" frame is {_label(first, timecode)} (clip {clip})")
-    if events[-1][1] != first + count:
-        longer = "longer" if events[-1][1] > first + count else "shorter"
-        raise FramestyleError(f"{path}: the cut ({events[-1][1] - first} frames, to"
-                              f" {_label(events[-1][1] - 1, timecode)}) is {longer} than the clip ({clip})")
-    return [record_in - first for record_in, _ in events]
+    return events
 
 
 def shots_timeline(shots: Sequence[Shot], timecode: ClipTimecode, name: str, media: str) -> otio.schema.Timeline:
@@ -158,15 +184,16 @@ def shots_timeline(shots: Sequence[Shot], timecode: ClipTimecode, name: str, med
     rate = float(exact_rate(timecode.fps))
     first = timecode.first
     count = shots[-1].end + 1
+    def frames(start: int, length: int) -> otio.opentime.TimeRange:
+        return otio.opentime.TimeRange(otio.opentime.RationalTime(start, rate), otio.opentime.RationalTime(length, rate))
+
     timeline = otio.schema.Timeline(name=name, global_start_time=otio.opentime.RationalTime(first, rate))
     track = otio.schema.Track(name="V1", kind=otio.schema.TrackKind.Video)
-    available = otio.opentime.TimeRange(otio.opentime.RationalTime(first, rate), otio.opentime.RationalTime(count, rate))
     for shot in shots:
         track.append(otio.schema.Clip(
             name=name,
-            media_reference=otio.schema.ExternalReference(target_url=media, available_range=available),
-            source_range=otio.opentime.TimeRange(otio.opentime.RationalTime(first + shot.start, rate),
-                                                 otio.opentime.RationalTime(shot.length, rate)),
+            media_reference=otio.schema.ExternalReference(target_url=media, available_range=frames(first, count)),
+            source_range=frames(first + shot.start, shot.length),
             metadata={"framestyle": {"shot": shot.index}},
         ))
     timeline.tracks.append(track)
