@@ -67,6 +67,9 @@ def _settings_options(
     temporal_weight: Annotated[Optional[float], typer.Option(help=f"Weight of the temporal consistency loss (default {Settings.temporal_weight}).")] = None,
     flow_preset: Annotated[Optional[str], typer.Option(help=f"Optical flow quality: ultrafast, fast or medium (default {Settings.flow_preset}).")] = None,
     tolerance: Annotated[Optional[float], typer.Option(help=f"Stop a frame when the loss falls by less than this fraction per 10 iterations (default {Settings.tolerance}).")] = None,
+    fps: Annotated[Optional[float], typer.Option(help="Frame rate of a folder of frames, for timecode and videos (default 24; a video has its own).")] = None,
+    start_timecode: Annotated[Optional[str], typer.Option(help="Timecode of the first frame, HH:MM:SS:FF or HH:MM:SS;FF drop-frame (default: the video's own, else 00:00:00:00).")] = None,
+    prores: Annotated[bool, typer.Option("--prores", help="Also write an edit-ready Apple ProRes 422 HQ .mov with the source's audio and timecode.")] = False,
 ) -> dict:
     """The settings given on the command line (None where not given), paths checked."""
     given = dict(locals())
@@ -80,6 +83,7 @@ def _settings_options(
         matte=str(Path(matte).resolve()) if matte and matte != "alpha" else matte,
         network_weights=str(network_weights.resolve()) if network_weights else None,
         temporal=False if no_temporal else None,
+        prores=True if prores else None,
     )
     for name in ("style", "look", "no_temporal"):
         del given[name]
@@ -167,7 +171,7 @@ class _Bars:
         elif event == "shot":
             s = info["summary"]
             self.progress.console.print(
-                f"shot {s.shot.index}: frames {s.shot.start}-{s.shot.end} ({s.shot.length}), "
+                f"shot {s.shot.index}: frames {s.frames} ({s.shot.length}), "
                 f"{s.seconds:.0f} s, {s.iterations / max(1, s.frames_done):.0f} iterations/frame, "
                 f"warping error {s.warp_error:.5f}"
             )
@@ -186,7 +190,7 @@ def stylise(
     out: Annotated[Path, typer.Option("--out", "-o", help="Output folder for the stylised frames.")],
     options: dict,
     shots: Annotated[Optional[str], typer.Option(help="Render only these shots, e.g. 2,4-5.")] = None,
-    shot_list: Annotated[Optional[Path], typer.Option(help="File of shot start frames replacing shot detection.")] = None,
+    shot_list: Annotated[Optional[Path], typer.Option(help="Shots from this file instead of detection: shot starts in the source's frame numbers, the JSON of `framestyle shots --json`, an EDL or an .otio file.")] = None,
     restart: Annotated[bool, typer.Option("--restart", help="Discard a previous render in --out and start over.")] = False,
     quiet: Annotated[bool, typer.Option("--quiet", "-q", help="No progress display.")] = False,
 ) -> None:
@@ -213,7 +217,7 @@ def preview(
     options: dict,
     every: Annotated[int, typer.Option(help="Stylise every Nth frame of each shot, from its first.")] = 10,
     shots: Annotated[Optional[str], typer.Option(help="Preview only these shots, e.g. 2,4-5.")] = None,
-    shot_list: Annotated[Optional[Path], typer.Option(help="File of shot start frames replacing shot detection.")] = None,
+    shot_list: Annotated[Optional[Path], typer.Option(help="Shots from this file instead of detection: shot starts in the source's frame numbers, the JSON of `framestyle shots --json`, an EDL or an .otio file.")] = None,
     quiet: Annotated[bool, typer.Option("--quiet", "-q", help="No progress display.")] = False,
 ) -> None:
     """Quick look: stylise every Nth frame of each shot on its own and lay out contact sheets.
@@ -270,8 +274,9 @@ def _report(result, quiet: bool) -> None:
     if not quiet and result.shots:
         typer.echo(_summary_table(result.shots))
     typer.echo(f"{len(result.frames)} stylised frames in {result.out}")
-    if result.video:
-        typer.echo(f"video with the source's audio: {result.video}")
+    for video in result.videos:
+        typer.echo(f"{'edit-ready ProRes' if video.suffix == '.mov' else 'preview video'} with the source's audio "
+                   f"and timecode: {video}")
     if not quiet:
         typer.echo(_CAUTION, err=True)
 
@@ -280,7 +285,7 @@ def _summary_table(shots) -> str:
     """The end-of-render table: one row per shot rendered now, and a total."""
     rows = [f"{'shot':>4}  {'frames':>9}  {'done':>4}  {'time':>8}  {'it/frame':>8}  {'warp error':>10}"]
     for s in shots:
-        rows.append(f"{s.shot.index:>4}  {f'{s.shot.start}-{s.shot.end}':>9}  {s.frames_done:>4}  "
+        rows.append(f"{s.shot.index:>4}  {s.frames:>9}  {s.frames_done:>4}  "
                     f"{s.seconds:>7.0f}s  {s.iterations / max(1, s.frames_done):>8.1f}  {s.warp_error:>10.5f}")
     done = sum(s.frames_done for s in shots)
     rows.append(f"{'all':>4}  {'':>9}  {done:>4}  {sum(s.seconds for s in shots):>7.0f}s  "
@@ -292,31 +297,48 @@ def _summary_table(shots) -> str:
 def shots_command(
     input: Annotated[Path, typer.Argument(help="Folder of numbered frames, or a video file.")],
     json_out: Annotated[bool, typer.Option("--json", help="Print the shot list as JSON.")] = False,
-    fps: Annotated[Optional[float], typer.Option(help="Frame rate for timecode (default: the video's, or 24).")] = None,
+    fps: Annotated[Optional[float], typer.Option(help="Frame rate for timecode (default: the video's; 24 for folders).")] = None,
+    start_timecode: Annotated[Optional[str], typer.Option(help="Timecode of the first frame, HH:MM:SS:FF or HH:MM:SS;FF for drop-frame (default: the video's timecode, else 00:00:00:00).")] = None,
+    shot_list: Annotated[Optional[Path], typer.Option(help="Take the shots from this file instead of detecting them: a list of shot starts, the JSON --json prints, an EDL or an .otio file.")] = None,
     cut_threshold: Annotated[float, typer.Option(help="Colour distance (0..1) that makes a cut.")] = Settings.cut_threshold,
     gradual_threshold: Annotated[float, typer.Option(help="End-to-end colour distance that makes a fade or dissolve.")] = Settings.gradual_threshold,
-    add_cut: Annotated[Optional[list[int]], typer.Option(help="Frame (0-based) that starts a shot; repeatable.")] = None,
-    remove_cut: Annotated[Optional[list[int]], typer.Option(help="Shot start (0-based) to join to the shot before; repeatable.")] = None,
+    add_cut: Annotated[Optional[list[int]], typer.Option(help="Frame number (the source's) that starts a shot; repeatable.")] = None,
+    remove_cut: Annotated[Optional[list[int]], typer.Option(help="Shot start (the source's frame number) to join to the shot before; repeatable.")] = None,
+    edl: Annotated[Optional[Path], typer.Option(help="Also write the shots as a CMX 3600 EDL for editing software.")] = None,
+    otio_file: Annotated[Optional[Path], typer.Option("--otio", help="Also write the shots as an OpenTimelineIO (.otio) file.")] = None,
 ) -> None:
-    """List the shots of INPUT with first/last frame and SMPTE timecode.
+    """List the shots of INPUT by the source's frame numbers and timecode.
 
-    With --add-cut/--remove-cut and --json the corrected list can be saved and given to
-    `framestyle stylise --shot-list`.
+    Frame numbers are the files' numbers for a folder (1001... for plates) and the 0-based
+    index for a video. With --add-cut/--remove-cut and --json the corrected list can be
+    saved and given to `framestyle stylise --shot-list`; --edl and --otio hand the shots to
+    editing software, which can hand its own cut back through --shot-list.
     """
     from framestyle import io
-    from framestyle.pipeline import find_shots
-    from framestyle.shots.lists import apply_overrides, format_shot_table
+    from framestyle.pipeline import clip_timecode, find_shots
+    from framestyle.shots.cutlists import write_cut_list
+    from framestyle.shots.lists import apply_overrides, format_shot_table, shot_entries
 
     _check_path(input, "input")
+    if shot_list:
+        _check_path(shot_list, "file")
     source = _run(io.open_source, input)
-    settings = _run(Settings.from_dict, {"cut_threshold": cut_threshold, "gradual_threshold": gradual_threshold},
-                    "options")
-    found = _run(find_shots, source, settings, None)
-    found = _run(apply_overrides, found, add_cut or (), remove_cut or ())
+    given = {"cut_threshold": cut_threshold, "gradual_threshold": gradual_threshold, "fps": fps,
+             "start_timecode": start_timecode}
+    settings = _run(Settings.from_dict, {k: v for k, v in given.items() if v is not None}, "options")
+    timecode = _run(clip_timecode, source, settings, shot_list)
+    found = _run(find_shots, source, settings, shot_list)
+    if io.gap_warning(source):
+        typer.echo(f"framestyle: warning: {io.gap_warning(source)}", err=True)
+    found = _run(apply_overrides, found, source.numbers, add_cut or (), remove_cut or ())
+    name = source.path.resolve().stem if source.kind == "video" else source.path.resolve().name
+    for path in filter(None, (edl, otio_file)):
+        _run(write_cut_list, path, found, timecode, name, str(source.path.resolve()))
+        typer.echo(f"wrote {path}", err=True)
     if json_out:
-        typer.echo(json.dumps([s.to_dict() for s in found]))
+        typer.echo(json.dumps(shot_entries(found, source.numbers, timecode)))
     else:
-        typer.echo(format_shot_table(found, fps or source.fps or 24.0))
+        typer.echo(format_shot_table(found, source.numbers, timecode))
 
 
 @app.command("stability")
@@ -334,13 +356,13 @@ def stability_command(
     rows = _run(stability, out, source, flow_preset)
     if json_out:
         typer.echo(json.dumps({
-            "shots": [{**r.shot.to_dict(), "render": r.render, "source": r.source} for r in rows],
+            "shots": [{"shot": r.shot.index, "frames": r.frames, "render": r.render, "source": r.source} for r in rows],
             "overall": {"render": overall(rows, "render"), "source": overall(rows, "source")},
         }))
         return
     typer.echo(f"{'shot':>4}  {'frames':>11}  {'render':>10}  {'source':>10}")
     for r in rows:
-        typer.echo(f"{r.shot.index:>4}  {f'{r.shot.start}-{r.shot.end}':>11}  {r.render:>10.5f}  {r.source:>10.5f}")
+        typer.echo(f"{r.shot.index:>4}  {r.frames:>11}  {r.render:>10.5f}  {r.source:>10.5f}")
     typer.echo(f"{'all':>4}  {'':>11}  {overall(rows, 'render'):>10.5f}  {overall(rows, 'source'):>10.5f}")
     typer.echo("warping error: mean squared RGB change along the optical flow (Lai et al. 2018)")
 

@@ -36,12 +36,14 @@ from framestyle.qc.stability import flow_warping_error
 from framestyle.settings import Settings
 from framestyle.shots import Shot, shots_from_boundaries
 from framestyle.shots.detect import detect_shots, frame_signature
-from framestyle.shots.lists import parse_shot_file, parse_shot_selection
+from framestyle.shots.cutlists import cut_list_adapter, cut_list_timecode
+from framestyle.shots.lists import frame_range, parse_shot_file, parse_shot_selection
 from framestyle.store import (Store, check_resume, environment_changes, input_fingerprints, output_names,
                               shot_list_fingerprint)
 from framestyle.style.look import Look, build_look
 from framestyle.style.network import FeatureNet, load_network
 from framestyle.style.solver import SolverParams, SolveStats, solve, solve_coarse_to_fine
+from framestyle.timecode import ClipTimecode
 from framestyle.temporal import fresh_problem, start_noise, temporal_problem
 from framestyle.working import Frame, deliver, prepare_frame, working_size
 
@@ -58,6 +60,7 @@ class ShotSummary:
     """How a shot's render went, from its record: frames done, seconds, iterations, warping error."""
 
     shot: Shot
+    frames: str  # the shot's first and last frame in the source's numbers, "1001-1047"
     frames_done: int = 0
     seconds: float = 0.0
     iterations: int = 0
@@ -65,9 +68,9 @@ class ShotSummary:
     warp_error_pairs: int = 0
 
     @classmethod
-    def from_record(cls, shot: Shot, frames: dict[str, dict]) -> "ShotSummary":
+    def from_record(cls, shot: Shot, frames: dict[str, dict], numbers: Sequence[int]) -> "ShotSummary":
         errors = [e["warp_error"] for e in frames.values() if e.get("warp_error") is not None]
-        return cls(shot, len(frames), sum(e["seconds"] for e in frames.values()),
+        return cls(shot, frame_range(shot, numbers), len(frames), sum(e["seconds"] for e in frames.values()),
                    sum(e["iterations"] for e in frames.values()), sum(errors), len(errors))
 
     @property
@@ -80,7 +83,7 @@ class RenderResult:
     out: Path
     frames: list[Path]
     shots: list[ShotSummary] = field(default_factory=list)
-    video: Path | None = None
+    videos: list[Path] = field(default_factory=list)  # the H.264 preview (video input) and the ProRes hand-off
 
 
 @dataclass(frozen=True)
@@ -96,6 +99,7 @@ class Plan:
     settings: Settings
     shots: tuple[Shot, ...]
     wanted: tuple[int, ...]  # the shots to render now
+    timecode: ClipTimecode  # how the source's frames are labelled
 
     @property
     def names(self) -> list[str]:
@@ -162,19 +166,21 @@ def plan_render(
             store.log(f"resuming render of {source.path}")
         else:
             shot_list_ = tuple(find_shots(source, settings, shot_file))
+            store.log(f"frames numbered {source.numbers[0]}-{source.numbers[-1]}, first frame at timecode "
+                      f"{clip_timecode(source, settings, shot_file).label(0)}")
             store.create({"settings": settings.to_dict(), "inputs": inputs, "shot_list": shot_list,
                           "shots": [s.to_dict() for s in shot_list_], "environment": environment(),
                           "created": time.strftime("%Y-%m-%dT%H:%M:%S%z")})
             store.log(f"new render of {source.path}, settings {settings.digest()}, "
-                      f"shots {', '.join(f'{s.index}:{s.start}-{s.end}' for s in shot_list_)}")
+                      f"shots {', '.join(f'{s.index}:{frame_range(s, source.numbers)}' for s in shot_list_)}")
         finished = store.finished()
-    if source.gaps:
-        missing = ", ".join(f"{a}-{b}" if b > a else f"{a}" for a, b in source.gaps[:5])
-        progress("warning", message=f"{source.path}: frame numbers missing ({missing}"
-                                    f"{', ...' if len(source.gaps) > 5 else ''}); each gap starts a new "
-                                    f"shot in detected shot lists, a shot list of yours is warped over it")
+    if io.gap_warning(source):
+        progress("warning", message=io.gap_warning(source))
     wanted = parse_shot_selection(shots, len(shot_list_)) if shots else [s.index for s in shot_list_]
-    plan = Plan(source, store.out, settings, shot_list_, tuple(wanted))
+    if keep_shot_list and manifest is not None and manifest["shot_list"]["file"]:
+        shot_file = Path(manifest["shot_list"]["file"])  # resumed: the list it was started with
+    timecode = clip_timecode(source, settings, shot_file)
+    plan = Plan(source, store.out, settings, shot_list_, tuple(wanted), timecode)
     chosen = [s for s in shot_list_ if s.index in wanted]
     names = plan.names
     done = sum(1 for s in chosen for i in range(s.start, s.end + 1) if names[i] in finished)
@@ -192,11 +198,12 @@ def finish_render(plan: Plan, progress: Progress = no_progress) -> RenderResult:
         finished = {name for record in records.values() for name in record["frames"]}
         done = [name for name in names if name in finished]
         result = RenderResult(store.out, store.frame_paths(done))
-        if plan.source.kind == "video" and len(done) == plan.source.count:
-            result.video = store.write_video(plan.source, done)
-            progress("video", path=result.video)
-    result.shots = [ShotSummary.from_record(shot, records.get(shot.index, {"frames": {}})["frames"])
-                    for shot in plan.shots if shot.index in plan.wanted]
+        if len(done) == plan.source.count:
+            for video in store.write_videos(plan.source, done, plan.timecode, plan.settings.prores):
+                result.videos.append(video)
+                progress("video", path=video)
+    result.shots = [ShotSummary.from_record(shot, records.get(shot.index, {"frames": {}})["frames"],
+                                            plan.source.numbers) for shot in plan.shots if shot.index in plan.wanted]
     return result
 
 
@@ -226,6 +233,10 @@ def open_render(input_path: Path, out: Path, settings: Settings) -> tuple[io.Fra
 def check_render(source: io.FrameSource, settings: Settings) -> FeatureNet:
     """Check every setting (and every shot's overrides) against ``source``; return the network."""
     net = network(settings.network, settings.network_weights)
+    clip_timecode(source, settings)
+    if settings.prores and source.linear:
+        raise FramestyleError(f"{source.path}: the ProRes hand-off is made from display-referred frames; "
+                              f"a float (EXR) render is delivered as EXR frames, without --prores")
     first = io.read_frame(source, 0)
     variants = [settings] + [settings.for_shot(int(n)) for n in settings.shot_looks]
     for variant in variants:
@@ -251,7 +262,7 @@ def find_shots(source: io.FrameSource, settings: Settings, shot_file: Path | Non
     side may be far apart in time.
     """
     if shot_file is not None:
-        return parse_shot_file(shot_file, source.count)
+        return parse_shot_file(shot_file, source.numbers, clip_timecode(source, settings, shot_file))
     if not settings.shot_detection:
         found = [Shot(1, 0, source.count - 1)]
     else:
@@ -259,6 +270,15 @@ def find_shots(source: io.FrameSource, settings: Settings, shot_file: Path | Non
         found = detect_shots(sigs, cut_threshold=settings.cut_threshold, gradual_threshold=settings.gradual_threshold)
     after_gaps = [i for i, (a, b) in enumerate(zip(source.numbers, source.numbers[1:]), 1) if b > a + 1]
     return shots_from_boundaries(sorted({s.start for s in found} | set(after_gaps)), source.count)
+
+
+def clip_timecode(source: io.FrameSource, settings: Settings, shot_file: Path | None = None) -> ClipTimecode:
+    """How the source's frames are labelled: the settings' rate and start timecode, else the
+    video's; an editor's cut list places a clip without timecode of its own."""
+    timecode = io.source_timecode(source, settings.fps, settings.start_timecode)
+    if shot_file is not None and cut_list_adapter(shot_file):
+        timecode = cut_list_timecode(shot_file, timecode)
+    return timecode
 
 
 def solver_params(settings: Settings) -> SolverParams:
@@ -304,7 +324,7 @@ def render_shot(plan: Plan, index: int, progress: Progress = no_progress, wait: 
             _ShotRender(plan, work, settings, shot).run(todo, progress)
         elif work.has_state():  # a process killed as it finished the shot left its state
             work.prune_state(None)
-        summary = ShotSummary.from_record(shot, work.record["frames"])
+        summary = ShotSummary.from_record(shot, work.record["frames"], plan.source.numbers)
     progress("shot", summary=summary)
     return summary
 
@@ -334,8 +354,8 @@ class _ShotRender:
                 self._frame(index, frame, look, mattes, dict(history), progress, rebuild=self.names[index] in finished)
             history.append((index, frame.content))
         self.work.prune_state(None)
-        summary = ShotSummary.from_record(shot, finished)
-        self.work.store.log(f"shot {shot.index} done: {summary.frames_done} frames, {summary.seconds:.1f} s, "
+        summary = ShotSummary.from_record(shot, finished, self.source.numbers)
+        self.work.store.log(f"shot {shot.index} ({summary.frames}) done: {summary.frames_done} frames, {summary.seconds:.1f} s, "
                             f"{summary.iterations / max(1, summary.frames_done):.1f} iterations/frame, "
                             f"warping error {summary.warp_error:.5f}")
 

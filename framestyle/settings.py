@@ -66,6 +66,10 @@ class Settings:
     shot_detection: bool = True  # restart the temporal chain at detected cuts
     cut_threshold: _Fraction = 0.4  # colour-histogram distance (0..1] above which a frame is a cut
     gradual_threshold: _Fraction = 0.4  # end-to-end distance that makes a fade or dissolve a boundary
+    # --- delivery -----------------------------------------------------------------------------
+    fps: Annotated[float, Field(gt=0)] | None = None  # frame rate of a frame folder (default 24); labels timecode
+    start_timecode: str | None = None  # the first frame's timecode (default: a video's own, else 00:00:00:00)
+    prores: bool = False  # also write an edit-ready Apple ProRes 422 HQ .mov with the source's audio
 
     def __post_init__(self) -> None:
         if 1 not in self.long_term:

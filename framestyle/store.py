@@ -43,6 +43,7 @@ import numpy as np
 from framestyle import atomic, io
 from framestyle.errors import FramestyleError
 from framestyle.settings import Settings
+from framestyle.timecode import ClipTimecode
 
 MANIFEST = "framestyle.json"
 FORMAT = 2  # manifest format version
@@ -252,16 +253,27 @@ class Store:
         """Paths of frames by name."""
         return [self.out / name for name in names]
 
-    def write_video(self, source: io.FrameSource, names: Sequence[str]) -> Path:
-        """Encode the finished frames of a video input, with its audio, unless already there.
+    def write_videos(self, source: io.FrameSource, names: Sequence[str], timecode: ClipTimecode,
+                     prores: bool) -> list[Path]:
+        """Encode the finished frames, unless already there: for a video input an H.264 preview
+        with its audio, and with ``prores`` an edit-ready ProRes 422 HQ .mov (folders too), both
+        at the clip's rate and start timecode.
 
-        Call under :meth:`folder_lock`, so that two processes finishing at once encode it once.
+        Call under :meth:`folder_lock`, so that two processes finishing at once encode them once.
         """
-        video = self.out / f"{source.path.stem}{VIDEO_SUFFIX}.mp4"
-        if not video.exists():
-            io.write_video(self.frame_paths(names), source.fps, video, audio_from=source.path)
-            self.log(f"wrote {video.name}")
-        return video
+        stem = source.path.stem if source.kind == "video" else source.path.name
+        audio = source.path if source.kind == "video" else None
+        made = []
+        for wanted, suffix, encode in ((source.kind == "video", ".mp4", io.write_video),
+                                       (prores, ".mov", io.write_prores)):
+            video = self.out / f"{stem}{VIDEO_SUFFIX}{suffix}"
+            if wanted and not video.exists():
+                encode(self.frame_paths(names), timecode.fps, video, audio_from=audio,
+                       start_timecode=timecode.label(0))
+                self.log(f"wrote {video.name}")
+            if wanted:
+                made.append(video)
+        return made
 
     @contextlib.contextmanager
     def preview(self) -> Iterator["PreviewStore"]:

@@ -69,7 +69,7 @@ def test_video_input_gives_png_frames_and_an_mp4_with_the_source_audio(tmp_path)
     pngs = sorted((tmp_path / "o").glob("frame_*.png"))
     assert len(pngs) == 6
     result = tmp_path / "o" / "clip_framestyle.mp4"
-    assert f"video with the source's audio: {result}" in out
+    assert f"preview video with the source's audio and timecode: {result}" in out
     probe = subprocess.run([ffmpeg, "-i", str(result)], capture_output=True, text=True).stderr
     assert "Audio:" in probe and "Video:" in probe
     assert imageio_ffmpeg.count_frames_and_secs(str(result))[0] == 6
@@ -78,19 +78,95 @@ def test_video_input_gives_png_frames_and_an_mp4_with_the_source_audio(tmp_path)
 def test_shots_command_finds_the_sample_clip_cut():
     code, out, _ = _run("shots", SAMPLE / "frames", "--json")
     assert code == 0
-    assert json.loads(out) == [{"shot": 1, "start": 0, "end": 27}, {"shot": 2, "start": 28, "end": 47}]
+    # The sample's files are numbered from 1: drift_0001.png ... drift_0048.png.
+    assert [(s["shot"], s["start"], s["end"]) for s in json.loads(out)] == [(1, 1, 28), (2, 29, 48)]
     code, out, _ = _run("shots", SAMPLE / "frames")
-    assert "00:00:01:04" in out  # frame 28 at the 24 fps default (SMPTE ST 12-1 non-drop)
+    assert "00:00:01:04" in out  # its 29th frame at the 24 fps default (SMPTE ST 12-1 non-drop)
 
 
 def test_shots_command_edits_cuts_into_a_list_stylise_accepts(small_clip, tmp_path):
-    code, out, _ = _run("shots", small_clip, "--json", "--add-cut", "5", "--remove-cut", "10")
-    assert code == 0 and json.loads(out) == [{"shot": 1, "start": 0, "end": 4}, {"shot": 2, "start": 5, "end": 19}]
+    # small_clip's files are take_001 ... take_020: cuts are given by those numbers.
+    code, out, _ = _run("shots", small_clip, "--json", "--add-cut", "6", "--remove-cut", "11")
+    assert code == 0
+    assert [(s["shot"], s["start"], s["end"]) for s in json.loads(out)] == [(1, 1, 5), (2, 6, 20)]
     (tmp_path / "shots.json").write_text(out)
     code, _, err = _run("stylise", small_clip, "--style", STYLE, "--out", tmp_path / "o", "-q", *FAST,
                         "--shot-list", tmp_path / "shots.json", "--shots", "1")
     assert code == 0, err
     assert len(list((tmp_path / "o").glob("take_*.png"))) == 5
+
+
+@pytest.fixture(scope="module")
+def plate(tmp_path_factory):
+    """The sample clip as a plate numbered from 1001 (plate_1001.png ... plate_1048.png)."""
+    folder = tmp_path_factory.mktemp("plate") / "harbour_plate"
+    folder.mkdir()
+    for k in range(48):
+        (folder / f"plate_{1001 + k}.png").write_bytes((SAMPLE / "frames" / f"drift_{k + 1:04d}.png").read_bytes())
+    return folder
+
+
+def test_shots_command_speaks_source_frame_numbers_and_source_timecode(plate, tmp_path):
+    code, out, err = _run("shots", plate, "--start-timecode", "01:00:00:00", "--add-cut", "1040")
+    assert code == 0, err
+    # 24 fps non-drop from 01:00:00:00 (SMPTE ST 12-1): the 29th frame is 01:00:01:04.
+    assert [line.split() for line in out.splitlines()] == [
+        ["shot", "first", "last", "frames", "start", "end"],
+        ["1", "1001", "1028", "28", "01:00:00:00", "01:00:01:03"],
+        ["2", "1029", "1039", "11", "01:00:01:04", "01:00:01:14"],
+        ["3", "1040", "1048", "9", "01:00:01:15", "01:00:01:23"],
+    ]
+
+
+def test_shots_command_hands_the_cut_to_editing_software_and_reads_it_back(plate, tmp_path):
+    edl, cut = tmp_path / "harbour.edl", tmp_path / "harbour.otio"
+    code, out, err = _run("shots", plate, "--fps", "25", "--start-timecode", "10:00:00:00", "--edl", edl,
+                          "--otio", cut, "--json")
+    assert code == 0, err
+    assert f"wrote {edl}" in err and f"wrote {cut}" in err
+    shots = json.loads(out)
+    assert shots[1] == {"shot": 2, "start": 1029, "end": 1048, "frames": 20,
+                        "start_timecode": "10:00:01:03", "end_timecode": "10:00:01:22"}
+    assert "002  harbourp V     C        10:00:01:03 10:00:01:23 10:00:01:03 10:00:01:23" in edl.read_text()
+    for cut_list in (edl, cut):
+        code, again, err = _run("shots", plate, "--fps", "25", "--start-timecode", "10:00:00:00",
+                                "--shot-list", cut_list, "--json")
+        assert code == 0, err
+        assert json.loads(again) == shots
+
+
+def test_shots_command_reads_an_editors_edl(plate, tmp_path):
+    edl = tmp_path / "from_editorial.edl"
+    edl.write_text("TITLE: harbour v3\nFCM: NON-DROP FRAME\n\n"
+                   "001  A001C003 V     C        14:22:05:10 14:22:05:22 01:00:00:00 01:00:00:12\n"
+                   "002  A001C007 V     C        14:31:40:00 14:31:41:12 01:00:00:12 01:00:02:00\n", encoding="utf-8")
+    # The plate has no timecode of its own: it takes the cut's record start, 01:00:00:00.
+    code, out, err = _run("shots", plate, "--shot-list", edl)
+    assert code == 0, err
+    rows = [line.split() for line in out.splitlines()[1:]]
+    assert rows == [["1", "1001", "1012", "12", "01:00:00:00", "01:00:00:11"],
+                    ["2", "1013", "1048", "36", "01:00:00:12", "01:00:01:23"]]
+
+
+@pytest.mark.parametrize(
+    "options, words",
+    [(["--add-cut", "1049"], "frame 1049 is outside the clip (frames 1001..1048)"),
+     (["--remove-cut", "1001"], "cannot remove the cut at frame 1001"),
+     (["--start-timecode", "01:00:00:24"], "'01:00:00:24' is not a timecode at 24"),
+     (["--start-timecode", "01:00:00;00"], "drop-frame"),
+     (["--edl", "cut.xml"], "cut.xml: a cut list is written as .edl")],
+)
+def test_shots_command_bad_options_are_one_line_errors(plate, options, words):
+    code, _, err = _run("shots", plate, *options)
+    _one_line_error(code, err, words)
+
+
+def test_shots_command_cut_list_longer_than_the_clip_is_one_line_error(plate, tmp_path):
+    edl = tmp_path / "long.edl"
+    edl.write_text("TITLE: long\n001  A001C003 V     C        14:22:05:00 14:22:07:01 01:00:00:00 01:00:02:01\n",
+                   encoding="utf-8")
+    code, _, err = _run("shots", plate, "--shot-list", edl)
+    _one_line_error(code, err, "long.edl: the cut (49 frames, to 01:00:02:00) is longer than the clip")
 
 
 def test_stability_command_reports_render_and_source(small_clip, tmp_path):
@@ -166,3 +242,27 @@ def test_bad_input_never_touches_a_finished_render(small_clip, tmp_path):
     code, _, err = _run("stylise", small_clip, "--style", STYLE, "--out", out, "--width", "100", "--iterations", "4")
     _one_line_error(code, err, "width")  # a changed setting is refused by name
     assert {p.name: p.read_bytes() for p in out.iterdir() if p.is_file()} == before
+
+
+def test_an_edl_in_gives_a_render_that_follows_it_and_a_prores_hand_off_out(small_clip, tmp_path):
+    # A 1001-numbered plate folder, an editor's cut as a CMX 3600 EDL (written by `shots
+    # --edl` after moving the cut to 1006), a render that follows it, and an edit-ready .mov.
+    plates = tmp_path / "plate"
+    plates.mkdir()
+    for k, p in enumerate(sorted(small_clip.glob("take_*.png"))):
+        (plates / f"plate_{1001 + k}.png").write_bytes(p.read_bytes())
+    edl = tmp_path / "cut.edl"
+    code, out, err = _run("shots", plates, "--start-timecode", "01:00:00:00", "--add-cut", "1006",
+                          "--remove-cut", "1011", "--edl", edl)
+    assert code == 0, err
+    assert "1001" in out and "01:00:00:00" in out
+    code, out, err = _run("stylise", plates, "--style", STYLE, "--out", tmp_path / "o", *FAST, "--iterations", "2",
+                          "--shot-list", edl, "--prores", "--fps", "25")
+    assert code == 0, err
+    assert "1001-1005" in out and "1006-1020" in out  # the summary speaks the plates' numbers
+    assert [s["start"] for s in store.read_manifest(tmp_path / "o")["shots"]] == [0, 5]
+    mov = tmp_path / "o" / "plate_framestyle.mov"
+    report = subprocess.run([imageio_ffmpeg.get_ffmpeg_exe(), "-i", str(mov)], capture_output=True, text=True).stderr
+    # ffmpeg's own stream report: Apple ProRes 422 HQ (fourcc apch), 10-bit 4:2:2, timecode
+    assert "prores (HQ)" in report and "yuv422p10le" in report and "01:00:00:00" in report
+    assert imageio_ffmpeg.count_frames_and_secs(str(mov))[0] == 20

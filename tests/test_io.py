@@ -8,6 +8,7 @@ fixtures are generated here, in temporary folders.
 from __future__ import annotations
 
 import os
+import re
 import shutil
 import struct
 import subprocess
@@ -27,7 +28,9 @@ from framestyle.io import (
     read_alpha,
     read_frame,
     read_image,
+    source_timecode,
     write_image,
+    write_prores,
     write_video,
 )
 
@@ -369,7 +372,8 @@ def test_write_video_keeps_saturated_colours_and_tags_them_bt709(tmp_path):
         write_image(path, quadrants)
     out = tmp_path / "out.mp4"
     write_video(paths, 24, out)
-    assert "bt709" in probe(out)
+    # ffmpeg reports "(tv, bt709, progressive)" when matrix, primaries and transfer are all BT.709.
+    assert "yuv420p(tv, bt709, progressive)" in probe(out)
     decoded = read_frame(open_source(out), 1)
     # Flat fields survive 4:2:0 and CRF 18 nearly exactly; a BT.601/BT.709 matrix mix-up
     # would shift these primaries by several percent (ITU-R BT.601 vs BT.709 luma weights).
@@ -417,6 +421,135 @@ def test_write_video_failure_names_the_output_and_leaves_nothing(tmp_path):
 def test_write_video_names_a_missing_frame(tmp_path):
     with pytest.raises(FramestyleError, match="gone_7.png"):
         write_video([tmp_path / "gone_7.png"], 24, tmp_path / "out.mp4")
+
+
+# ----- timecode and the ProRes hand-off -------------------------------------------------
+
+
+@pytest.fixture(scope="module")
+def tc_clip(tmp_path_factory) -> Path:
+    """1 s at 29.97 fps (30 frames), 64x48 H.264 + AAC tone, tagged 01:00:00;00 drop-frame by ffmpeg."""
+    path = tmp_path_factory.mktemp("tc") / "tagged.mp4"
+    ffmpeg("-f", "lavfi", "-i", "testsrc2=size=64x48:rate=30000/1001,hue=H=0.25*n", "-f", "lavfi",
+           "-i", "sine=frequency=440:sample_rate=48000", "-frames:v", "30", "-t", "1.001", "-c:v", "libx264",
+           "-pix_fmt", "yuv420p", "-c:a", "aac", "-timecode", "01:00:00;00", str(path))
+    return path
+
+
+def frame_files(source, folder: Path) -> list[Path]:
+    paths = []
+    for index, frame in iter_frames(source):
+        paths.append(folder / frame_name(source, index))
+        write_image(paths[-1], frame)
+    return paths
+
+
+def test_timecode_tag_written_by_ffmpeg_is_read_back(tc_clip, tmp_path):
+    # ffmpeg writes -timecode as a QuickTime tmcd track in .mp4/.mov and a TIMECODE tag in .mkv.
+    source = open_source(tc_clip)
+    assert source.start_timecode == "01:00:00;00"
+    clock = source_timecode(source)
+    assert clock.fps == 30000 / 1001 and clock.drop_frame
+    assert clock.label(29) == "01:00:00;29"
+    mkv = tmp_path / "tagged.mkv"
+    ffmpeg("-f", "lavfi", "-i", "testsrc2=size=32x24:rate=25", "-frames:v", "3", "-c:v", "ffv1",
+           "-timecode", "10:00:00:00", str(mkv))
+    assert source_timecode(open_source(mkv)).label(2) == "10:00:00:02"
+
+
+def test_drop_frame_tag_runs_across_a_minute_boundary(tmp_path):
+    # SMPTE ST 12-1 drop-frame: 00:00:59;28 + 2 frames is 00:01:00;02 (numbers 00, 01 skipped).
+    path = tmp_path / "minute.mov"
+    ffmpeg("-f", "lavfi", "-i", "testsrc2=size=32x24:rate=30000/1001", "-frames:v", "4", "-c:v", "libx264",
+           "-timecode", "00:00:59;28", str(path))
+    clock = source_timecode(open_source(path))
+    assert [clock.label(k) for k in range(4)] == ["00:00:59;28", "00:00:59;29", "00:01:00;02", "00:01:00;03"]
+
+
+def test_start_timecode_option_overrides_the_tag_and_labels_folders(tc_clip, tmp_path):
+    assert source_timecode(open_source(tc_clip), start_timecode="00:59:59;00").label(30) == "01:00:00;00"
+    for n in (1001, 1002):
+        write_uint(tmp_path / f"plate_{n}.png", np.zeros((4, 4, 3), np.uint8))
+    folder = open_source(tmp_path)
+    assert folder.start_timecode is None and folder.numbers == (1001, 1002)
+    assert source_timecode(folder).label(1) == "00:00:00:01"  # 24 fps, from zero
+    assert source_timecode(folder, fps=25, start_timecode="01:00:00:24").label(1) == "01:00:01:00"
+    with pytest.raises(FramestyleError, match="start timecode: '01:00:00:24' is not a timecode at 24"):
+        source_timecode(folder, start_timecode="01:00:00:24")
+
+
+def test_impossible_timecode_tag_is_named(tmp_path):
+    path = tmp_path / "odd_tag.mkv"
+    ffmpeg("-f", "lavfi", "-i", "testsrc2=size=32x24:rate=25", "-frames:v", "2", "-c:v", "ffv1",
+           "-metadata", "timecode=01:00:00:30", str(path))
+    with pytest.raises(FramestyleError, match=r"odd_tag.mkv: timecode tag: '01:00:00:30' is not a timecode at 25"):
+        source_timecode(open_source(path))
+    assert source_timecode(open_source(path), start_timecode="01:00:00:00").label(0) == "01:00:00:00"
+
+
+def test_prores_hand_off_is_422_hq_10_bit_with_audio_and_timecode(tc_clip, tmp_path):
+    source = open_source(tc_clip)
+    out = tmp_path / "hand_off.mov"
+    write_prores(frame_files(source, tmp_path), source.fps, out, audio_from=tc_clip,
+                 start_timecode=source.start_timecode)
+    report = probe(out)
+    # ffmpeg's own probe of the file (the binary imageio-ffmpeg ships). Apple ProRes white
+    # paper: ProRes 422 HQ is fourcc "apch", 10-bit 4:2:2.
+    video = next(line for line in report.splitlines() if "Video:" in line)
+    assert "prores (HQ) (apch" in video and "yuv422p10le(tv, bt709, progressive)" in video
+    assert "29.97 fps" in video
+    assert "Audio: pcm_s24le" in report and "48000 Hz" in report
+    assert "timecode        : 01:00:00;00" in report
+    assert "major_brand     : qt" in report  # a QuickTime file
+    # SMPTE RDD 36 frame header (from memory): "icpf", header size, reserved, version, then
+    # the 4-byte encoder identifier, here Apple's "apl0".
+    data = out.read_bytes()
+    assert data[data.index(b"icpf") + 8:][:4] == b"apl0"
+    result = open_source(out)
+    assert (result.count, result.fps, result.start_timecode) == (30, 30000 / 1001, "01:00:00;00")
+    assert result.bit_depth == 16  # 10-bit samples, read at 16-bit precision
+    # A busy 64x48 pattern comes back close; most of the error is 4:2:2 chroma on sharp edges.
+    assert np.abs(read_frame(result, 7) - read_frame(source, 7)).mean() < 0.02
+    # The audio is cut at the last frame's end: 30 frames at 30000/1001 = 1.001 s.
+    seconds = float(re.search(r"Duration: 00:00:(\d+\.\d+)", report)[1])
+    assert seconds == pytest.approx(1.001, abs=0.02)
+    assert [p.name for p in tmp_path.iterdir() if p.name.startswith(".")] == []
+
+
+def test_prores_keeps_every_frame_and_saturated_colours_of_an_odd_sized_folder(tmp_path):
+    quadrants = np.zeros((47, 63, 3), np.float32)
+    quadrants[:24, :32], quadrants[:24, 32:] = (1, 0, 0), (0, 1, 0)
+    quadrants[24:, :32], quadrants[24:, 32:] = (0, 0, 1), (1, 1, 0)
+    paths = [tmp_path / f"f_{n}.png" for n in range(5)]
+    for path in paths:
+        write_image(path, quadrants)
+    out = tmp_path / "plate.mov"
+    write_prores(paths, 24, out, start_timecode="00:59:58:00")
+    result = open_source(out)
+    assert (result.count, result.width, result.height, result.fps) == (5, 62, 47, 24.0)
+    assert result.start_timecode == "00:59:58:00" and "Audio:" not in probe(out)
+    # Flat fields survive 10-bit 4:2:2 nearly exactly; a BT.601/BT.709 matrix mix-up would
+    # shift these primaries by several percent (ITU-R BT.601 vs BT.709 luma weights).
+    decoded = read_frame(result, 2)
+    for y, x in [(10, 12), (10, 50), (36, 12), (36, 50)]:
+        np.testing.assert_allclose(decoded[y, x], quadrants[y, x], atol=2 / 255)
+
+
+def test_prores_refuses_other_containers_and_bad_timecode_leaving_nothing(tmp_path):
+    frame = tmp_path / "f_1.png"
+    write_uint(frame, np.zeros((4, 4, 3), np.uint8))
+    with pytest.raises(FramestyleError, match=r"hand_off.mp4: a ProRes hand-off is a QuickTime file"):
+        write_prores([frame], 24, tmp_path / "hand_off.mp4")
+    with pytest.raises(FramestyleError, match=r"hand_off.mov: start timecode: '01:00:00;00' is drop-frame"):
+        write_prores([frame], 24, tmp_path / "hand_off.mov", start_timecode="01:00:00;00")
+    assert sorted(p.name for p in tmp_path.iterdir()) == ["f_1.png"]
+
+
+def test_h264_preview_carries_the_start_timecode_too(tmp_path):
+    frame = tmp_path / "f_1.png"
+    write_uint(frame, np.zeros((4, 4, 3), np.uint8))
+    write_video([frame, frame], 25, tmp_path / "preview.mp4", start_timecode="10:00:00:00")
+    assert open_source(tmp_path / "preview.mp4").start_timecode == "10:00:00:00"
 
 
 # ----- bad inputs -----------------------------------------------------------------------

@@ -1,4 +1,5 @@
 import json
+import re
 
 import cv2
 import numpy as np
@@ -8,6 +9,8 @@ from framestyle.errors import FramestyleError
 from framestyle.shots import Shot, shots_from_boundaries
 from framestyle.shots.detect import HISTOGRAM_BINS, SIGNATURE_WIDTH, detect_shots, frame_signature
 from framestyle.shots.lists import apply_overrides, format_shot_table, parse_shot_file
+from framestyle.shots.lists import shot_entries
+from framestyle.timecode import ClipTimecode
 
 # --- synthetic footage: smooth procedural textures, one palette per shot -----------------
 
@@ -226,18 +229,31 @@ def test_shots_from_boundaries_adds_frame_zero_and_ends_at_the_last_frame():
             shots_from_boundaries(bad, 40)
 
 
+FIFTY = range(50)  # the frame numbers of a 50-frame video (or a folder numbered from 0)
+PLATE = range(1001, 1051)  # a 50-frame plate numbered from 1001
+TC24 = ClipTimecode(24)
+
+
 def test_text_shot_file_with_comments_and_blank_lines(tmp_path):
     path = tmp_path / "cuts.txt"
     path.write_text("# harbour clip\n\n12   # close-up\n  30\n", encoding="utf-8")
-    assert parse_shot_file(path, 50) == [Shot(1, 0, 11), Shot(2, 12, 29), Shot(3, 30, 49)]
+    assert parse_shot_file(path, FIFTY, TC24) == [Shot(1, 0, 11), Shot(2, 12, 29), Shot(3, 30, 49)]
+
+
+def test_text_shot_file_speaks_the_source_frame_numbers(tmp_path):
+    path = tmp_path / "cuts.txt"
+    path.write_text("1001\n1013\n1031\n", encoding="utf-8")
+    assert parse_shot_file(path, PLATE, TC24) == [Shot(1, 0, 11), Shot(2, 12, 29), Shot(3, 30, 49)]
 
 
 def test_json_shot_file_as_printed_by_the_shots_command_round_trips(tmp_path):
     shots = [Shot(1, 0, 11), Shot(2, 12, 29), Shot(3, 30, 49)]
+    entries = shot_entries(shots, PLATE, ClipTimecode(25, "10:00:00:00"))
+    assert entries[1] == {"shot": 2, "start": 1013, "end": 1030, "frames": 18,
+                          "start_timecode": "10:00:00:12", "end_timecode": "10:00:01:04"}
     path = tmp_path / "shots.json"
-    path.write_text(json.dumps([s.to_dict() for s in shots], indent=2), encoding="utf-8")
-    assert parse_shot_file(path, 50) == shots
-    assert shots[1].to_dict() == {"shot": 2, "start": 12, "end": 29}
+    path.write_text(json.dumps(entries, indent=2), encoding="utf-8")
+    assert parse_shot_file(path, PLATE, TC24) == shots
 
 
 @pytest.mark.parametrize(
@@ -245,7 +261,7 @@ def test_json_shot_file_as_printed_by_the_shots_command_round_trips(tmp_path):
     [
         ("0\n12\nabc\n", 3, "frame number"),
         ("0\n-4\n", 2, "frame number"),
-        ("0\n60\n", 2, "outside the clip"),
+        ("0\n60\n", 2, "frame 60 is outside the clip (frames 0..49)"),
         ("0\n20\n# x\n10\n", 4, "does not come after"),
         ("0\n20\n20\n", 3, "does not come after"),
         ('[\n {"shot": 1, "start": 10, "end": 19},\n {"shot": 2, "start": 5, "end": 49}\n]', 3, "does not come after"),
@@ -259,29 +275,44 @@ def test_bad_shot_files_name_the_file_and_line(tmp_path, content, line, words):
     path = tmp_path / "list.txt"
     path.write_text(content, encoding="utf-8")
     with pytest.raises(FramestyleError) as error:
-        parse_shot_file(path, 50)
+        parse_shot_file(path, FIFTY, TC24)
     assert f"{path}:{line}:" in str(error.value)
     assert words in str(error.value)
 
 
-@pytest.mark.parametrize("content", ["# only a comment\n", "[]"])
-def test_shot_file_without_any_shot_is_rejected(tmp_path, content):
-    path = tmp_path / "empty.txt"
+def test_shot_file_frame_in_a_gap_of_the_numbering_is_named(tmp_path):
+    path = tmp_path / "cuts.txt"
+    path.write_text("1001\n1005\n", encoding="utf-8")
+    numbers = (1001, 1002, 1003, 1007, 1008)
+    with pytest.raises(FramestyleError, match=r"cuts.txt:2: frame 1005 is not in the clip \(frames 1004..1006 are"):
+        parse_shot_file(path, numbers, TC24)
+
+
+@pytest.mark.parametrize("content, words", [("# only a comment\n", "the shot list names no shot start (write 1001"),
+                                            ("[]", "the shot list is empty")])
+def test_shot_file_without_any_shot_is_rejected(tmp_path, content, words):
+    path = tmp_path / "list.txt"
     path.write_text(content, encoding="utf-8")
-    with pytest.raises(FramestyleError, match="empty"):
-        parse_shot_file(path, 50)
+    with pytest.raises(FramestyleError, match=re.escape(f"{path}: {words}")):
+        parse_shot_file(path, PLATE, TC24)
 
 
 def test_missing_shot_file_is_a_user_error(tmp_path):
     with pytest.raises(FramestyleError, match="missing.txt"):
-        parse_shot_file(tmp_path / "missing.txt", 50)
+        parse_shot_file(tmp_path / "missing.txt", FIFTY, TC24)
 
 
 def test_overrides_add_and_remove_cuts_and_renumber():
     shots = shots_from_boundaries([20, 40], 60)
-    changed = apply_overrides(shots, add_cuts=[10], remove_cuts=[40])
+    changed = apply_overrides(shots, range(60), add_cuts=[10], remove_cuts=[40])
     assert changed == [Shot(1, 0, 9), Shot(2, 10, 19), Shot(3, 20, 59)]
-    assert apply_overrides(shots, add_cuts=[20]) == shots
+    assert apply_overrides(shots, range(60), add_cuts=[20]) == shots
+
+
+def test_overrides_speak_the_source_frame_numbers():
+    shots = shots_from_boundaries([20, 40], 60)
+    changed = apply_overrides(shots, range(1001, 1061), add_cuts=[1011], remove_cuts=[1041])
+    assert changed == [Shot(1, 0, 9), Shot(2, 10, 19), Shot(3, 20, 59)]
 
 
 @pytest.mark.parametrize(
@@ -290,14 +321,36 @@ def test_overrides_add_and_remove_cuts_and_renumber():
 )
 def test_bad_overrides_are_user_errors(add, remove, words):
     with pytest.raises(FramestyleError, match=words):
-        apply_overrides(shots_from_boundaries([20, 40], 60), add_cuts=add, remove_cuts=remove)
+        apply_overrides(shots_from_boundaries([20, 40], 60), range(60), add_cuts=add, remove_cuts=remove)
+
+
+@pytest.mark.parametrize(
+    "add, remove, words",
+    [((1000,), (), "frame 1000 is outside the clip (frames 1001..1060)"),
+     ((1030,), (), "frame 1030 is not in the clip (frames 1026..1035 are missing)"),
+     ((), (1001,), "cannot remove the cut at frame 1001: it starts the clip"),
+     ((), (1025,), "no shot starts there (shot starts: 1001, 1021, 1046)")],
+)
+def test_bad_overrides_name_source_frame_numbers(add, remove, words):
+    numbers = [*range(1001, 1026), *range(1036, 1061)]  # files 1026-1035 are missing
+    shots = shots_from_boundaries([20, 35], 50)
+    with pytest.raises(FramestyleError, match=re.escape(words)):
+        apply_overrides(shots, numbers, add_cuts=add, remove_cuts=remove)
 
 
 def test_shot_table_lists_frames_and_smpte_timecodes_of_first_and_last_frame():
-    table = format_shot_table(shots_from_boundaries([48], 100), fps=25)
+    table = format_shot_table(shots_from_boundaries([48], 100), range(100), ClipTimecode(25))
     lines = table.splitlines()
     assert lines[0].split() == ["shot", "first", "last", "frames", "start", "end"]
     # Non-drop 25 fps timecodes (SMPTE ST 12-1): frame 47 is 00:00:01:22, 99 is 00:00:03:24.
     assert lines[1].split() == ["1", "0", "47", "48", "00:00:00:00", "00:00:01:22"]
     assert lines[2].split() == ["2", "48", "99", "52", "00:00:01:23", "00:00:03:24"]
-    assert "00:01:00;02" in format_shot_table(shots_from_boundaries([1800], 1900), fps=29.97)
+    assert "00:01:00;02" in format_shot_table(shots_from_boundaries([1800], 1900), range(1900), ClipTimecode(29.97))
+
+
+def test_shot_table_shows_source_numbers_and_the_source_timecode():
+    table = format_shot_table(shots_from_boundaries([48], 100), range(1001, 1101), ClipTimecode(25, "01:00:00:00"))
+    lines = table.splitlines()
+    # 25 fps non-drop (SMPTE ST 12-1): position 48 is 01:00:00:00 + 48 frames = 01:00:01:23.
+    assert lines[1].split() == ["1", "1001", "1048", "48", "01:00:00:00", "01:00:01:22"]
+    assert lines[2].split() == ["2", "1049", "1100", "52", "01:00:01:23", "01:00:03:24"]

@@ -1,6 +1,6 @@
 import pytest
 
-from framestyle.timecode import frame_to_timecode
+from framestyle.timecode import ClipTimecode, frame_to_timecode, timecode_to_frame
 
 
 def _fields(label: str) -> tuple[int, int, int, int]:
@@ -92,3 +92,101 @@ def test_drop_frame_labels_increase_by_one_and_skip_only_the_dropped_numbers(fps
 def test_invalid_frame_or_rate_raises_value_error(frame, fps):
     with pytest.raises(ValueError):
         frame_to_timecode(frame, fps)
+
+
+# ----- labels back to frames, and a clip's start timecode ---------------------------------
+
+
+@pytest.mark.parametrize(
+    "label, fps, frame",
+    [
+        # Worked drop-frame values, SMPTE ST 12-1: the label after 00:00:59;29 is 00:01:00;02.
+        ("00:00:59;29", 29.97, 1799),
+        ("00:01:00;02", 29.97, 1800),
+        ("00:10:00;00", 29.97, 17982),  # minute 10 keeps its 00 and 01
+        ("01:00:00;00", 29.97, 107892),  # one wall-clock hour
+        ("00:01:00;04", 59.94, 3600),
+        ("01:00:00:00", 25, 90000),
+        ("01:00:00:00", 23.976, 86400),  # nominal 24, non-drop
+        ("00:01:00:00", 29.97, 1800),  # 29.97 non-drop counts at nominal 30
+    ],
+)
+def test_labels_read_back_to_the_frames_smpte_gives_them(label, fps, frame):
+    assert timecode_to_frame(label, fps) == frame
+
+
+@pytest.mark.parametrize("fps", [23.976, 24, 25, 29.97, 30, 50, 59.94])
+def test_labels_and_frames_round_trip(fps):
+    for frame in [*range(0, 20000, 7), 107891, 107892, 107893, 24 * 3600 * 24 - 1]:
+        assert timecode_to_frame(frame_to_timecode(frame, fps), fps) == frame
+
+
+@pytest.mark.parametrize("fps", [24000 / 1001, 25, 30000 / 1001, 60000 / 1001])
+def test_labels_match_opentimelineio_at_every_minute_boundary(fps):
+    # Reference library: OpenTimelineIO's opentime (drop-frame inferred from the rate, as here).
+    from opentimelineio import opentime
+
+    for minute in range(0, 70):
+        for frame in (round(minute * 60 * fps) + k for k in (-1, 0, 1, 2, 3)):
+            if frame >= 0:
+                assert frame_to_timecode(frame, fps) == opentime.to_timecode(opentime.RationalTime(frame, fps), fps)
+
+
+@pytest.mark.parametrize(
+    "label, fps, words",
+    [
+        ("00:01:00;00", 29.97, "skipped"),  # SMPTE ST 12-1: 00 and 01 do not exist at minute 1
+        ("00:01:00;03", 59.94, "skipped"),
+        ("00:00:00;00", 25, "drop-frame timecode exists only at 29.97 and 59.94"),
+        ("00:00:00:25", 25, "frames run 00-24"),
+        ("24:00:00:00", 25, "not a timecode at 25"),
+        ("00:60:00:00", 25, "not a timecode at 25"),
+        ("1:00:00:00", 25, "not a timecode like"),
+        ("01:00:00", 25, "not a timecode like"),
+    ],
+)
+def test_impossible_labels_raise_value_error(label, fps, words):
+    with pytest.raises(ValueError, match=words):
+        timecode_to_frame(label, fps)
+
+
+def test_drop_frame_can_be_chosen_at_ntsc_rates_only():
+    assert frame_to_timecode(1800, 29.97, drop_frame=False) == "00:01:00:00"
+    assert frame_to_timecode(1800, 29.97, drop_frame=True) == "00:01:00;02"
+    with pytest.raises(ValueError, match="drop-frame"):
+        frame_to_timecode(0, 25, drop_frame=True)
+
+
+def test_a_clip_labels_its_frames_from_its_start_timecode():
+    clock = ClipTimecode(25, "10:00:00:00")
+    assert (clock.label(0), clock.label(26), clock.first) == ("10:00:00:00", "10:00:01:01", 900000)
+    assert clock.position("10:00:01:01") == 26
+    assert not clock.drop_frame
+
+
+def test_a_drop_frame_start_keeps_dropping_across_minutes():
+    # 00:00:59;28 + 2 frames = 00:01:00;02 (SMPTE ST 12-1 drop-frame).
+    clock = ClipTimecode(29.97, "00:00:59;28")
+    assert [clock.label(k) for k in range(4)] == ["00:00:59;28", "00:00:59;29", "00:01:00;02", "00:01:00;03"]
+    assert clock.position("00:01:00;02") == 2 and clock.drop_frame
+
+
+def test_a_non_drop_start_at_29_97_labels_non_drop():
+    clock = ClipTimecode(30000 / 1001, "00:00:59:29")
+    assert (clock.label(1), clock.drop_frame) == ("00:01:00:00", False)
+
+
+def test_a_clip_without_start_timecode_counts_from_zero():
+    assert ClipTimecode(29.97).label(1800) == "00:01:00;02"
+    assert ClipTimecode(24).label(0) == "00:00:00:00"
+
+
+def test_a_clip_running_past_midnight_wraps_like_the_clock():
+    clock = ClipTimecode(24, "23:59:59:23")
+    assert clock.label(1) == "00:00:00:00" and clock.position("00:00:00:00") == 1
+
+
+@pytest.mark.parametrize("fps, start", [(25, "00:00:00;00"), (25, "00:00:00:25"), (0, None), (24, "noon")])
+def test_a_bad_clip_timecode_raises_value_error(fps, start):
+    with pytest.raises(ValueError):
+        ClipTimecode(fps, start)

@@ -4,6 +4,10 @@ Everything inside framestyle sees frames as float32 ``(H, W, 3)`` RGB in [0, 1] 
 sources: as stored); the conversions from what files hold happen in :mod:`.stills` and
 :mod:`.video`. Video frames are named ``frame_000000``, ``frame_000001`` ... numbered from 0,
 so a video frame's number, index and name agree.
+
+Users and editors speak of frames by the source's own numbers (``numbers``: the files'
+numbers for folders, 1001-based plates say; the index for video) and timecode
+(:func:`source_timecode`); inside, frames are 0-based positions.
 """
 
 from __future__ import annotations
@@ -19,6 +23,10 @@ from framestyle.errors import FramestyleError
 from framestyle.io.sequence import read_sequence_frame, scan_folder
 from framestyle.io.stills import IMAGE_EXTS, check_not_empty, load_image, to_alpha, to_rgb
 from framestyle.io.video import VideoInfo, iter_video, probe_video
+from framestyle.timecode import ClipTimecode
+
+# The rate a folder of frames is labelled at when none is given: film's 24 frames/s (common practice).
+FOLDER_FPS = 24.0
 
 
 @dataclass(frozen=True)
@@ -39,6 +47,8 @@ class FrameSource:
     has_alpha : whether the first frame carries an alpha channel
     files : the frame file names in frame order (folders only)
     video : what the video reader needs (videos only)
+    start_timecode : the first frame's SMPTE label from the video's timecode tag; None when
+        the file has none, and for folders
     """
 
     path: Path
@@ -54,6 +64,7 @@ class FrameSource:
     has_alpha: bool
     files: tuple[str, ...] = ()
     video: VideoInfo | None = field(default=None, repr=False)
+    start_timecode: str | None = None
 
     @property
     def linear(self) -> bool:
@@ -84,7 +95,43 @@ def open_source(path: str | Path) -> FrameSource:
     digits = max(6, len(str(info.count - 1)))
     return FrameSource(path, "video", info.count, info.width, info.height, info.fps,
                        tuple(f"frame_{i:0{digits}d}" for i in range(info.count)), tuple(range(info.count)),
-                       (), info.bit_depth, info.has_alpha, video=info)
+                       (), info.bit_depth, info.has_alpha, video=info, start_timecode=info.timecode)
+
+
+def source_timecode(source: FrameSource, fps: float | None = None, start_timecode: str | None = None) -> ClipTimecode:
+    """How ``source``'s frames are labelled: frame k (0-based position) is the start label + k.
+
+    Parameters
+    ----------
+    source : the opened input
+    fps : the rate to label at (default: the video's rate; :data:`FOLDER_FPS` for folders)
+    start_timecode : the first frame's label, ``HH:MM:SS:FF`` (``HH:MM:SS;FF`` drop-frame),
+        replacing the video's timecode tag (default: the tag; none for folders or a video
+        without one, and labels count from 00:00:00:00)
+
+    Raises
+    ------
+    FramestyleError
+        A start label that is no timecode at the rate (naming the video file when it is
+        the file's tag).
+    """
+    rate = fps or source.fps or FOLDER_FPS
+    label = start_timecode or source.start_timecode
+    try:
+        return ClipTimecode(rate, label)
+    except ValueError as exc:
+        where = "start timecode" if start_timecode else f"{source.path}: timecode tag"
+        raise FramestyleError(f"{where}: {exc}") from None
+
+
+def gap_warning(source: FrameSource) -> str | None:
+    """A line saying which frame numbers are missing from a folder's numbering, or None."""
+    if not source.gaps:
+        return None
+    shown = ", ".join(f"{a}-{b}" if b > a else f"{a}" for a, b in source.gaps[:5])
+    more = ", ..." if len(source.gaps) > 5 else ""
+    return (f"{source.path}: frame numbers missing ({shown}{more}); each gap starts a new shot in "
+            f"detected shot lists, a shot list of yours is warped over it")
 
 
 def read_frame(source: FrameSource, index: int) -> np.ndarray:

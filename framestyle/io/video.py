@@ -7,6 +7,10 @@ or dropping frames, which would break "one output frame per input frame". Starti
 uses ffmpeg's ``trim=start_frame=N`` filter: it decodes and discards the first N frames
 (about 600 frames/s for 720p H.264 on two cores), exact for any clip, where a time-based
 ``-ss`` seek is only exact for constant-frame-rate clips.
+
+Two encodings come out: an H.264 preview (:func:`write_video`) and an edit-ready Apple
+ProRes 422 HQ hand-off (:func:`write_prores`); both carry the source's audio and start
+timecode.
 """
 
 from __future__ import annotations
@@ -16,36 +20,50 @@ import re
 import subprocess
 import tempfile
 from dataclasses import dataclass
-from fractions import Fraction
 from pathlib import Path
-from typing import Iterator, Sequence
+from typing import Callable, Iterator, Sequence
 
 import imageio_ffmpeg
 import numpy as np
 
 from framestyle import atomic
 from framestyle.errors import FramestyleError
-from framestyle.timecode import ntsc_nominal
+from framestyle.timecode import ClipTimecode, exact_rate
 
 # The first real video stream (capital V skips cover-art pictures), one frame per decoded frame.
 _VIDEO_STREAM = ["-map", "0:V:0", "-fps_mode", "passthrough"]
 _HIGH_DEPTH_PIX = re.compile(r"(9|10|12|14|16|48|64)(le|be)$")  # e.g. yuv420p10le, rgb48le
 _ALPHA_PIX = re.compile(r"^(yuva|gbrap|ya|rgba|bgra|argb|abgr)")
+# ffmpeg's stream report shows a file's start timecode as "timecode : 01:00:00:00" (or
+# ";00" for drop-frame), from a QuickTime/MP4 timecode (tmcd) track or a container tag.
+_TIMECODE_TAG = re.compile(r"^\s*timecode\s*:\s*(\d{2}:\d{2}:\d{2}[:;]\d{2})\s*$", re.IGNORECASE | re.MULTILINE)
 
-# H.264 4:2:0 needs even dimensions: drop a trailing odd row/column rather than resample.
-# BT.709 matrix and matching stream tags so players decode the colours as they were
-# (ITU-R BT.709; common practice). The ffmpeg 9 bundled here derives either from the
-# other; older builds that imageio-ffmpeg>=0.4.9 allows need both spelled out.
-_ENCODE_FILTER = "crop=trunc(iw/2)*2:trunc(ih/2)*2:0:0,scale=out_color_matrix=bt709:out_range=tv,format=yuv420p"
-_ENCODE_VIDEO = [
-    "-c:v", "libx264", "-preset", "medium", "-crf", "18", "-pix_fmt", "yuv420p",
-    "-colorspace", "bt709", "-color_primaries", "bt709", "-color_trc", "bt709", "-color_range", "tv",
-]
+# BT.709 matrix, and frame tags (primaries, transfer, matrix, range) that the encoders copy
+# into the stream, so players and editing software decode the colours as they were
+# (ITU-R BT.709; common practice).
+_BT709 = ("scale=out_color_matrix=bt709:out_range=tv,format={},"
+          "setparams=color_primaries=bt709:color_trc=bt709:colorspace=bt709:range=tv")
+
+# H.264 preview, 4:2:0: chroma is halved both ways, so even sizes are needed; a trailing odd
+# row/column is dropped rather than resampled.
+_H264_FILTER = "crop=trunc(iw/2)*2:trunc(ih/2)*2:0:0," + _BT709.format("yuv420p")
+_H264_VIDEO = ["-c:v", "libx264", "-preset", "medium", "-crf", "18", "-pix_fmt", "yuv420p", "-movflags", "+faststart"]
+
+# Apple ProRes 422 HQ hand-off: ffmpeg's prores_ks encoder at profile 3 = HQ (fourcc apch),
+# 10-bit 4:2:2 (chroma halved across only: an odd width loses its last column). Vendor
+# "apl0" marks the frames as Apple-made, which some editing software checks (common
+# practice; from memory).
+_PRORES_FILTER = "crop=trunc(iw/2)*2:ih:0:0," + _BT709.format("yuv422p10le")
+_PRORES_VIDEO = ["-c:v", "prores_ks", "-profile:v", "3", "-vendor", "apl0", "-pix_fmt", "yuv422p10le"]
+# Uncompressed 24-bit PCM, the usual audio of an edit hand-off .mov (common practice): it
+# holds 16- and 24-bit sources exactly and decoded AAC at better than 16-bit precision; the
+# source's sample rate and channels are kept (no resampling).
+_PRORES_AUDIO = ["-c:a", "pcm_s24le"]
 
 
 @dataclass(frozen=True)
 class VideoInfo:
-    """What a video file holds: frame count, size, rate and sample layout."""
+    """What a video file holds: frame count, size, rate, sample layout and start timecode."""
 
     count: int
     width: int
@@ -53,10 +71,11 @@ class VideoInfo:
     fps: float
     bit_depth: int  # 8, or 16 for high-bit-depth pixel formats (10-bit and up)
     has_alpha: bool
+    timecode: str | None = None  # the first frame's label, from the file's timecode tag
 
 
 def probe_video(path: Path) -> VideoInfo:
-    """Decode ``path`` once to count its frames exactly and read its size, rate and format."""
+    """Decode ``path`` once to count its frames exactly; read its size, rate, format and timecode."""
     meta = _video_meta(path)
     progress = run_ffmpeg(
         ["-i", str(path), *_VIDEO_STREAM, "-f", "null", "-progress", "pipe:1", "-"], path, "not a readable video"
@@ -69,8 +88,22 @@ def probe_video(path: Path) -> VideoInfo:
         raise FramestyleError(f"{path}: video frame rate is unknown")
     pix_fmt = meta["pix_fmt"].split("(", 1)[0]
     width, height = meta["size"]
-    return VideoInfo(count, width, height, float(rational_rate(meta["fps"])),
-                     16 if _HIGH_DEPTH_PIX.search(pix_fmt) else 8, bool(_ALPHA_PIX.match(pix_fmt)))
+    return VideoInfo(count, width, height, float(exact_rate(meta["fps"])),
+                     16 if _HIGH_DEPTH_PIX.search(pix_fmt) else 8, bool(_ALPHA_PIX.match(pix_fmt)),
+                     timecode_tag(path))
+
+
+def timecode_tag(path: Path) -> str | None:
+    """The start timecode label a video file carries in its timecode tag, or None.
+
+    Read from the bundled ffmpeg's stream report, which lists the tag of a QuickTime/MP4
+    timecode (tmcd) track or a container's TIMECODE tag; the first one listed is taken.
+    """
+    cmd = [imageio_ffmpeg.get_ffmpeg_exe(), "-hide_banner", "-i", str(path)]
+    # With no output file ffmpeg prints the report and exits with status 1.
+    report = subprocess.run(cmd, stdin=subprocess.DEVNULL, capture_output=True).stderr
+    match = _TIMECODE_TAG.search(report.decode(errors="replace"))
+    return match[1] if match else None
 
 
 def iter_video(path: Path, info: VideoInfo, start: int, stop: int) -> Iterator[tuple[int, np.ndarray]]:
@@ -102,10 +135,9 @@ def iter_video(path: Path, info: VideoInfo, start: int, stop: int) -> Iterator[t
             process.wait()
 
 
-def write_video(
-    frames_paths: Sequence[Path], fps: float, out_path: Path, audio_from: Path | None = None
-) -> None:
-    """Encode image files, in the given order, into an H.264 video, atomically.
+def write_video(frames_paths: Sequence[Path], fps: float, out_path: Path, audio_from: Path | None = None,
+                start_timecode: str | None = None) -> None:
+    """Encode image files, in the given order, into an H.264 preview video, atomically.
 
     The files are streamed to the bundled ffmpeg as they are (no decoding in Python) and
     encoded with libx264, CRF 18, yuv420p, BT.709. An odd width or height loses its last
@@ -119,6 +151,51 @@ def write_video(
     fps : frame rate; 23.976-style rates become the exact NTSC ratios (24000/1001 ...)
     out_path : video file to write; its extension chooses the container (``.mp4`` usual)
     audio_from : the source video whose first audio stream, if any, is carried over
+    start_timecode : the first frame's SMPTE label (``HH:MM:SS:FF``, ``HH:MM:SS;FF``
+        drop-frame), written as the file's timecode track; None writes none
+    """
+    def audio(codec: str) -> list[str]:
+        return ["-c:a", "copy"] if codec == "aac" else ["-c:a", "aac", "-b:a", "192k"]
+
+    _encode(frames_paths, fps, out_path, _H264_FILTER, _H264_VIDEO, audio, audio_from, start_timecode)
+
+
+def write_prores(frames_paths: Sequence[Path], fps: float, out_path: Path, audio_from: Path | None = None,
+                 start_timecode: str | None = None) -> None:
+    """Encode image files into an edit-ready Apple ProRes 422 HQ QuickTime file, atomically.
+
+    The hand-off counterpart of :func:`write_video`: ffmpeg's ``prores_ks`` at profile HQ
+    (fourcc ``apch``), 10-bit 4:2:2 (``yuv422p10le``) tagged BT.709, the source's audio as
+    24-bit PCM at its own sample rate (cut at the video's end), the start timecode as a
+    QuickTime timecode track, and exactly one frame per file at ``fps``. An odd width loses
+    its last column (4:2:2 chroma is halved across).
+
+    Parameters
+    ----------
+    frames_paths : PNG (8- or 16-bit) or other ffmpeg-readable still image files, one per frame
+    fps : the source's frame rate; 23.976-style rates become the exact NTSC ratios
+    out_path : the ``.mov`` file to write
+    audio_from : the source video whose first audio stream, if any, is carried over
+    start_timecode : the first frame's SMPTE label (``HH:MM:SS:FF``, ``HH:MM:SS;FF``
+        drop-frame), written as the file's timecode track; None writes none
+
+    References
+    ----------
+    SMPTE RDD 36:2015, Apple ProRes Bitstream Syntax and Decoding Process (profiles,
+    4:2:2 10-bit). Apple, "Apple ProRes" white paper (2022): ProRes 422 HQ, fourcc apch.
+    """
+    out_path = Path(out_path)
+    if out_path.suffix.lower() != ".mov":
+        raise FramestyleError(f"{out_path}: a ProRes hand-off is a QuickTime file; name it .mov")
+    _encode(frames_paths, fps, out_path, _PRORES_FILTER, _PRORES_VIDEO, lambda codec: _PRORES_AUDIO,
+            audio_from, start_timecode)
+
+
+def _encode(frames_paths: Sequence[Path], fps: float, out_path: Path, video_filter: str, video: list[str],
+            audio: Callable[[str], list[str]], audio_from: Path | None, start_timecode: str | None) -> None:
+    """Stream image files through the bundled ffmpeg into ``out_path`` (see :func:`write_video`).
+
+    ``audio(codec)`` gives the audio encoding options for the source's audio codec.
     """
     paths = [Path(p) for p in frames_paths]
     out_path = Path(out_path)
@@ -129,20 +206,26 @@ def write_video(
             raise FramestyleError(f"{p}: frame to encode is missing")
     if not (math.isfinite(fps) and fps > 0):
         raise FramestyleError(f"{out_path}: frame rate must be a positive number, got {fps}")
-    rate = rational_rate(fps)
+    timecode: list[str] = []
+    if start_timecode is not None:
+        try:
+            ClipTimecode(fps, start_timecode)
+        except ValueError as exc:
+            raise FramestyleError(f"{out_path}: start timecode: {exc}") from None
+        timecode = ["-timecode", start_timecode]
+    rate = exact_rate(fps)
     cmd = [imageio_ffmpeg.get_ffmpeg_exe(), "-hide_banner", "-loglevel", "error", "-y"]
     cmd += ["-f", "image2pipe", "-framerate", str(rate), "-i", "-"]
     streams = ["-map", "0:v:0"]
-    audio: list[str] = []
+    audio_options: list[str] = []
     audio_codec = _video_meta(Path(audio_from)).get("audio_codec") if audio_from is not None else None
     if audio_codec is not None:
         cmd += ["-i", str(audio_from)]
         streams += ["-map", "1:a:0"]
-        audio = ["-c:a", "copy"] if audio_codec == "aac" else ["-c:a", "aac", "-b:a", "192k"]
         # Cut at the last frame's end instead of -shortest, which would also cut the video
         # when the audio is the shorter stream.
-        audio += ["-t", f"{float(len(paths) / rate) + 1e-6:.6f}"]
-    cmd += streams + ["-vf", _ENCODE_FILTER] + _ENCODE_VIDEO + audio + ["-movflags", "+faststart"]
+        audio_options = audio(audio_codec) + ["-t", f"{float(len(paths) / rate) + 1e-6:.6f}"]
+    cmd += streams + ["-vf", video_filter] + video + audio_options + timecode
     with atomic.atomic_path(out_path) as tmp, tempfile.TemporaryFile() as errors:
         process = subprocess.Popen(cmd + [str(tmp)], stdin=subprocess.PIPE, stderr=errors, bufsize=0)
         try:
@@ -160,14 +243,6 @@ def write_video(
         if status != 0:
             errors.seek(0)
             raise FramestyleError(f"{out_path}: video encoding failed ({last_line(errors.read())})")
-
-
-def rational_rate(fps: float) -> Fraction:
-    """The frame rate as a fraction; ffmpeg reports 23.976 as '23.98', so snap NTSC rates."""
-    nominal = ntsc_nominal(fps)
-    if nominal is not None:
-        return Fraction(nominal * 1000, 1001)
-    return Fraction(fps).limit_denominator(1001)
 
 
 def run_ffmpeg(args: list[str], file: Path, problem: str, stdin: bytes | None = None) -> bytes:

@@ -25,6 +25,7 @@ from framestyle import io, store
 from framestyle.errors import FramestyleError
 from framestyle.shots import Shot
 from framestyle.shots.detect import detect_shots, frame_signature
+from framestyle.shots.lists import frame_range
 
 from framestyle.imaging import resize
 from framestyle.motion import FlowPair, check_rgb, warp
@@ -150,6 +151,7 @@ def sequence_warping_error(
 @dataclass
 class ShotStability:
     shot: Shot
+    frames: str  # first and last frame in the source's numbers
     render: float  # mean warping error of the stylised frames
     source: float  # the same for the source footage
 
@@ -177,7 +179,7 @@ def stability(out: Path, source_path: Path, preset: str = "medium") -> list[Shot
             return (f for _, f in io.iter_frames(clip, shot.start, shot.end + 1))
 
         result.append(ShotStability(
-            shot,
+            shot, frame_range(shot, source.numbers),
             sequence_warping_error(stream(rendered), stream(source), preset),
             sequence_warping_error(stream(source), stream(source), preset),
         ))

@@ -1,0 +1,250 @@
+"""Editors' cut lists in and out: CMX 3600 EDLs and OpenTimelineIO files.
+
+An editor who already has the cut hands it over as an EDL or an OpenTimelineIO (``.otio``)
+file from their editing software; framestyle reads each event as one shot and writes its
+own shots back the same way for the editing software. Both formats are read and written
+with the ``opentimelineio`` library (its ``otio_json`` adapter and the ``cmx_3600`` adapter
+plugin), never parsed by hand here.
+
+Reading: an event's *record* range (where it sits in the edit) is laid on the clip's
+frames through the clip's timecode (:class:`~framestyle.timecode.ClipTimecode`): the frame
+at position k carries the label ``start + k``. A clip with no start timecode of its own
+(a folder of frames, a video without a timecode tag) starts at the cut's first record
+timecode, so a cut whose record starts at 01:00:00:00 fits a clip that was exported from
+it. The events must then cover the clip's frames exactly, without gaps.
+
+Writing: one event per shot, its source range the shot's frames labelled by the clip's
+timecode and its record range the same (the shots laid end to end from the clip's start
+timecode), the clip and reel named after the input.
+"""
+
+from __future__ import annotations
+
+import copy
+import os
+from pathlib import Path
+from typing import Sequence
+
+import opentimelineio as otio
+
+from framestyle.atomic import write_bytes
+from framestyle.errors import FramestyleError
+from framestyle.shots.shot import Shot, check_contiguous
+from framestyle.timecode import ClipTimecode, exact_rate, frame_to_timecode, ntsc_nominal
+
+# OpenTimelineIO adapters by file extension; an EDL is CMX 3600, the common interchange
+# layout (the cmx_3600 adapter is a plugin package since OpenTimelineIO 0.16).
+_ADAPTERS = {".edl": "cmx_3600", ".otio": "otio_json"}
+_KIND = {"cmx_3600": "CMX 3600 EDL", "otio_json": "OpenTimelineIO file"}
+
+
+def cut_list_adapter(path: str | os.PathLike) -> str | None:
+    """The OpenTimelineIO adapter that reads ``path``, or None if it is not a cut list.
+
+    By extension (``.edl``, ``.otio``), else by content: an EDL starts with its ``TITLE:``
+    line (CMX 3600), an OpenTimelineIO file is JSON naming an ``OTIO_SCHEMA``.
+    """
+    path = Path(path)
+    if path.suffix.lower() in _ADAPTERS:
+        return _ADAPTERS[path.suffix.lower()]
+    try:
+        with open(path, encoding="utf-8-sig", errors="replace") as handle:
+            head = handle.read(4096).lstrip()
+    except OSError:
+        return None  # the shot-list reader reports the file it cannot read
+    if head.startswith("TITLE:"):
+        return "cmx_3600"
+    if head.startswith("{") and '"OTIO_SCHEMA"' in head:
+        return "otio_json"
+    return None
+
+
+def read_cut_list(path: str | os.PathLike, timecode: ClipTimecode, count: int) -> list[int]:
+    """Read an EDL or OpenTimelineIO cut of a clip; return the shot starts as 0-based positions.
+
+    Each event (clip) of the cut's one video track is a shot; transitions count as cuts at
+    their edit point. An event's record range is placed on the clip through the clip's
+    timecode, or through :func:`cut_list_timecode` when the clip has none (see the module
+    notes); an EDL is read at the clip's rate, as EDLs do not state one.
+
+    Parameters
+    ----------
+    path : str or os.PathLike
+        The ``.edl`` (CMX 3600) or ``.otio`` file.
+    timecode : ClipTimecode
+        The clip's rate and start timecode.
+    count : int
+        The clip's number of frames.
+
+    Returns
+    -------
+    list[int]
+        Strictly increasing shot starts, the first 0.
+
+    Raises
+    ------
+    FramestyleError
+        One line naming the file: unreadable, not one video track, no events, a gap
+        between events, a rate other than the clip's, or events that start before or
+        after the clip's first frame or end before or after its last.
+
+    References
+    ----------
+    CMX 3600 EDL layout (event, reel, channel, transition, source in/out, record in/out);
+    OpenTimelineIO 0.18 documentation, "Timeline Structure" and "Time Ranges".
+    """
+    events = _record_ranges(path, timecode)
+    first = events[0][0] if timecode.start is None else timecode.first
+    clip = f"{_label(first, timecode)}-{_label(first + count - 1, timecode)}, {count} frames"
+    if events[0][0] != first:
+        raise FramestyleError(f"{path}: the cut starts at {_label(events[0][0], timecode)} but the clip's first"
+                              f" frame is {_label(first, timecode)} (clip {clip})")
+    if events[-1][1] != first + count:
+        longer = "longer" if events[-1][1] > first + count else "shorter"
+        raise FramestyleError(f"{path}: the cut ({events[-1][1] - first} frames, to"
+                              f" {_label(events[-1][1] - 1, timecode)}) is {longer} than the clip ({clip})")
+    return [record_in - first for record_in, _ in events]
+
+
+def cut_list_timecode(path: str | os.PathLike, timecode: ClipTimecode) -> ClipTimecode:
+    """The clip's timecode as a cut list places it: its own, or from the cut's first record timecode.
+
+    A clip without a start timecode of its own (``timecode.start`` None) is read as the cut
+    exported, starting at the first event's record timecode (often 01:00:00:00), so tables
+    and cut lists written back label its frames as the editor's timeline does.
+
+    Raises
+    ------
+    FramestyleError
+        As :func:`read_cut_list`, for a cut list that cannot be read.
+    """
+    if timecode.start is not None:
+        return timecode
+    return ClipTimecode(timecode.fps, _label(_record_ranges(path, timecode)[0][0], timecode))
+
+
+def _record_ranges(path: str | os.PathLike, timecode: ClipTimecode) -> list[tuple[int, int]]:
+    """The events' record ranges (in, out exclusive) as frame counts from 00:00:00:00, checked."""
+    adapter = cut_list_adapter(path) or "otio_json"
+    rate = exact_rate(timecode.fps)
+    kind = _KIND[adapter]
+    options = {"rate": float(rate)} if adapter == "cmx_3600" else {}
+    try:
+        timeline = otio.adapters.read_from_file(str(path), adapter_name=adapter, **options)
+    except OSError as exc:
+        raise FramestyleError(f"{path}: cannot read the cut list ({exc.strerror or exc})") from None
+    except (otio.exceptions.OTIOError, ValueError, KeyError) as exc:
+        raise FramestyleError(f"{path}: not a readable {kind} at {timecode.fps:g} frames/s ({exc})") from None
+    if not isinstance(timeline, otio.schema.Timeline):
+        raise FramestyleError(f"{path}: holds a {type(timeline).__name__}, not a timeline")
+    tracks = timeline.video_tracks()
+    if not tracks:
+        raise FramestyleError(f"{path}: the cut list has no video events")
+    if len(tracks) > 1:
+        raise FramestyleError(f"{path}: has {len(tracks)} video tracks; give a cut with one")
+    offset = _frames(timeline.global_start_time, rate) if timeline.global_start_time is not None else 0
+    events: list[tuple[int, int]] = []
+    for item in tracks[0]:
+        if isinstance(item, otio.schema.Transition):
+            continue
+        record = item.transformed_time_range(item.trimmed_range(), timeline.tracks)
+        if exact_rate(record.duration.rate) != rate:
+            raise FramestyleError(f"{path}: the cut is at {record.duration.rate:g} frames/s but the clip is at"
+                                  f" {timecode.fps:g}")
+        record_in = offset + _frames(record.start_time, rate)
+        record_out = offset + _frames(record.end_time_exclusive(), rate)
+        if isinstance(item, otio.schema.Gap):
+            raise FramestyleError(f"{path}: no event from {_label(record_in, timecode)} to"
+                                  f" {_label(record_out - 1, timecode)}; a cut list for shots has no gaps")
+        if record_out > record_in:
+            events.append((record_in, record_out))
+    if not events:
+        raise FramestyleError(f"{path}: the cut list has no video events")
+    return events
+
+
+def shots_timeline(shots: Sequence[Shot], timecode: ClipTimecode, name: str, media: str) -> otio.schema.Timeline:
+    """The shots as an OpenTimelineIO timeline: one clip per shot on one video track.
+
+    Each clip's source range is the shot's frames at the clip's timecode (first frame =
+    ``timecode.start``), and the timeline starts at that timecode too, so source and record
+    timecodes agree. The clips are named ``name`` and refer to ``media``; each carries its
+    shot number in ``metadata["framestyle"]["shot"]``.
+
+    Parameters
+    ----------
+    shots : contiguous shots in 0-based positions
+    timecode : the clip's rate and start timecode
+    name : the input's name (the timeline's, the clips' and, shortened, the EDL reel name)
+    media : the input's path, as the clips' media reference
+    """
+    check_contiguous(shots)
+    if not name:
+        raise ValueError("a cut list needs a name (its EDL TITLE)")
+    rate = float(exact_rate(timecode.fps))
+    first = timecode.first
+    count = shots[-1].end + 1
+    def frames(start: int, length: int) -> otio.opentime.TimeRange:
+        return otio.opentime.TimeRange(otio.opentime.RationalTime(start, rate), otio.opentime.RationalTime(length, rate))
+
+    timeline = otio.schema.Timeline(name=name, global_start_time=otio.opentime.RationalTime(first, rate))
+    track = otio.schema.Track(name="V1", kind=otio.schema.TrackKind.Video)
+    for shot in shots:
+        track.append(otio.schema.Clip(
+            name=name,
+            media_reference=otio.schema.ExternalReference(target_url=media, available_range=frames(first, count)),
+            source_range=frames(first + shot.start, shot.length),
+            metadata={"framestyle": {"shot": shot.index}},
+        ))
+    timeline.tracks.append(track)
+    return timeline
+
+
+def write_cut_list(path: str | os.PathLike, shots: Sequence[Shot], timecode: ClipTimecode, name: str,
+                   media: str) -> None:
+    """Write the shots (see :func:`shots_timeline`) as a CMX 3600 EDL or an OpenTimelineIO file, atomically.
+
+    The extension chooses: ``.edl`` or ``.otio``. The EDL header gets the frame-count mode
+    line (``FCM: DROP FRAME`` or ``FCM: NON-DROP FRAME``) that the cmx_3600 adapter leaves
+    out. That adapter labels 29.97 and 59.94 frames/s as drop-frame, so a clip with
+    non-drop timecode at those rates is refused for EDL (OpenTimelineIO stores frames).
+
+    Raises
+    ------
+    FramestyleError
+        Another extension, or an EDL of a non-drop 29.97/59.94 clip.
+
+    References
+    ----------
+    CMX 3600 EDL layout: header lines ``TITLE:`` and ``FCM:``, then the events.
+    """
+    adapter = _ADAPTERS.get(Path(path).suffix.lower())
+    if adapter is None:
+        raise FramestyleError(f"{path}: a cut list is written as .edl (CMX 3600) or .otio (OpenTimelineIO)")
+    timeline = shots_timeline(shots, timecode, name, media)
+    if adapter == "otio_json":
+        write_bytes(path, otio.adapters.write_to_string(timeline, adapter_name=adapter).encode())
+        return
+    if ntsc_nominal(timecode.fps) in (30, 60) and not timecode.drop_frame:
+        raise FramestyleError(f"{path}: the EDL writer labels {timecode.fps:g} frames/s as drop-frame but this clip's"
+                              " timecode is non-drop; write an .otio file instead")
+    # The adapter places events on the record timeline through the track's own range
+    # (its reader stores a record start of 01:00:00:00 as a track starting at -01:00:00:00),
+    # not through the timeline's global start time: give it the record start that way.
+    edl = copy.deepcopy(timeline)
+    track = edl.tracks[0]
+    track.source_range = otio.opentime.TimeRange(-timeline.global_start_time, track.duration())
+    text = otio.adapters.write_to_string(edl, adapter_name=adapter, rate=float(exact_rate(timecode.fps)))
+    title, _, events = text.partition("\n")
+    fcm = "FCM: DROP FRAME" if timecode.drop_frame else "FCM: NON-DROP FRAME"
+    write_bytes(path, f"{title}\n{fcm}\n{events}".encode())
+
+
+def _frames(time: otio.opentime.RationalTime, rate) -> int:
+    """A time as a whole number of frames at ``rate``."""
+    return round(time.value_rescaled_to(float(rate)))
+
+
+def _label(count: int, timecode: ClipTimecode) -> str:
+    """The SMPTE label of a frame count in the clip's counting mode."""
+    return frame_to_timecode(max(0, count), timecode.fps, timecode.drop_frame)
