@@ -283,8 +283,8 @@ def shots_command(
     input: Annotated[Path, typer.Argument(help="Folder of numbered frames, or a video file.")],
     json_out: Annotated[bool, typer.Option("--json", help="Print the shot list as JSON.")] = False,
     fps: Annotated[Optional[float], typer.Option(help="Frame rate for timecode (default: the video's, or 24).")] = None,
-    cut_threshold: Annotated[float, typer.Option(help="Colour distance (0..1) that makes a cut.")] = Settings.cut_threshold,
-    gradual_threshold: Annotated[float, typer.Option(help="End-to-end colour distance that makes a fade or dissolve.")] = Settings.gradual_threshold,
+    cut_threshold: Annotated[float, typer.Option(help="Least frame-to-frame distance (0..1) of a cut; a cut must also stand out from the frames around it.")] = Settings.cut_threshold,
+    gradual_threshold: Annotated[float, typer.Option(help="Least distance (0..1) between the two ends of a fade or dissolve.")] = Settings.gradual_threshold,
     add_cut: Annotated[Optional[list[int]], typer.Option(help="Frame (0-based) that starts a shot; repeatable.")] = None,
     remove_cut: Annotated[Optional[list[int]], typer.Option(help="Shot start (0-based) to join to the shot before; repeatable.")] = None,
 ) -> None:
