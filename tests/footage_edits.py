@@ -294,11 +294,13 @@ def evaluation_edits() -> list[Edit]:
         # Hard cuts between different clips.
         Edit("cut: three clips", "cut", (T(BBB, 0, 45), T(BIKES, 80, 45), T(PHONE, 0, 45))),
         Edit("cut: three clips again", "cut", (T(PHONE, 50, 50), T(BBB, 60, 50), T(BIKES, 140, 46))),
+        Edit("cut: three clips, third order", "cut", (T(PHONE, 20, 40), T(BBB, 20, 40), T(BIKES, 196, 40))),
         # Hard cuts between two moments of one clip (a jump cut, the same framing).
         Edit("cut: two moments, animation", "cut", (T(BBB, 0, 40), T(BBB, 90, 42))),
         Edit("cut: jumps in time within two shots, street", "cut",
              (T(BIKES, 76, 25), T(BIKES, 112, 25), T(BIKES, 137, 20), T(BIKES, 167, 20))),
         Edit("cut: two moments, talking head", "cut", (T(PHONE, 0, 40), T(PHONE, 70, 50))),
+        Edit("cut: two later moments, animation", "cut", (T(BBB, 10, 40), T(BBB, 70, 40))),
         # Hard cuts between two framings of one scene, time running on (angles of one set).
         Edit("cut: wide to 1.5x and back, animation", "cut",
              (T(BBB, 0, 50), T(BBB, 50, 50, 1.5, (0.6, 0.5)), T(BBB, 100, 32))),
@@ -311,6 +313,12 @@ def evaluation_edits() -> list[Edit]:
              (T(PHONE, 0, 40), T(PHONE, 40, 40, 1.8, (0.5, 0.4)), T(PHONE, 80, 40, 1.3, (0.4, 0.6)))),
         Edit("cut: 1.4x to 1.9x, street", "cut",
              (T(BIKES, 196, 24, 1.4, (0.5, 0.5)), T(BIKES, 220, 22, 1.9, (0.35, 0.45)))),
+        Edit("cut: wide to 1.5x top left, talking head", "cut", (T(PHONE, 0, 50), T(PHONE, 50, 50, 1.5, (0.3, 0.3)))),
+        Edit("cut: 1.3x to wide, street", "cut", (T(BIKES, 187, 27, 1.3, (0.6, 0.4)), T(BIKES, 214, 28))),
+        Edit("cut: 1.6x bottom right to 1.6x top left, animation", "cut",
+             (T(BBB, 0, 60, 1.6, (0.7, 0.7)), T(BBB, 60, 60, 1.6, (0.3, 0.3)))),
+        Edit("cut: 1.5x of one street shot to another wide", "cut",
+             (T(BIKES, 30, 46, 1.5, (0.4, 0.6)), T(BIKES, 76, 40))),
         # The street clip as shot: five cuts between angles of one street.
         Edit("cut: street clip as shot", "cut", (T(BIKES, 0, 30), T(BIKES, 30, 46), T(BIKES, 76, 61),
                                                  T(BIKES, 137, 50), T(BIKES, 187, 55), T(BIKES, 242, 8))),
@@ -320,15 +328,26 @@ def evaluation_edits() -> list[Edit]:
         Edit("dissolve 6: talking head to animation", "gradual", (T(PHONE, 10, 45), Dissolve(6), T(BBB, 40, 45))),
         Edit("dissolve 16: wide to 1.7x, animation", "gradual",
              (T(BBB, 0, 60), Dissolve(16), T(BBB, 44, 60, 1.7, (0.55, 0.45)))),
+        Edit("dissolve 20: wide to 1.6x, talking head", "gradual",
+             (T(PHONE, 0, 60), Dissolve(20), T(PHONE, 40, 60, 1.6, (0.5, 0.35)))),
+        Edit("dissolve 8: street to animation", "gradual", (T(BIKES, 30, 46), Dissolve(8), T(BBB, 0, 50))),
+        Edit("dissolve 10: animation to street", "gradual", (T(BBB, 30, 50), Dissolve(10), T(BIKES, 190, 50))),
+        Edit("dissolve 4: street to talking head", "gradual", (T(BIKES, 80, 40), Dissolve(4), T(PHONE, 0, 40))),
         # Fades through black.
         Edit("fade 8+1+8: street to animation", "gradual", (T(BIKES, 137, 50), Fade(8, 1, 8), T(BBB, 0, 50))),
         Edit("fade 12+6+12: talking head to street", "gradual", (T(PHONE, 0, 60), Fade(12, 6, 12), T(BIKES, 196, 46))),
         Edit("fade 4+2+4: animation to talking head", "gradual", (T(BBB, 20, 45), Fade(4, 2, 4), T(PHONE, 40, 45))),
         Edit("fade 6+3+6: two moments, street", "gradual", (T(BIKES, 76, 30), Fade(6, 3, 6), T(BIKES, 107, 30))),
+        Edit("fade 5+0+5: street to talking head", "gradual", (T(BIKES, 80, 40), Fade(5, 0, 5), T(PHONE, 30, 40))),
+        Edit("fade 10+3+10: wide to 1.5x, animation", "gradual",
+             (T(BBB, 0, 60), Fade(10, 3, 10), T(BBB, 60, 60, 1.5))),
         # No cut: flashes.
         Edit("no cut: white frame, animation", "none", (T(BBB, 0, 80),), (Flash(40),)),
         Edit("no cut: photo flash, talking head", "none", (T(PHONE, 0, 90),), (Flash(45, 2.2, 0.25),)),
         Edit("no cut: white frame, street", "none", (T(BIKES, 76, 61),), (Flash(30),)),
+        Edit("no cut: white frame, another street shot", "none", (T(BIKES, 30, 46),), (Flash(20),)),
+        Edit("no cut: two white frames, animation", "none", (T(BBB, 0, 60),), (Flash(30), Flash(31))),
+        Edit("no cut: photo flash, animation", "none", (T(BBB, 20, 60),), (Flash(30, 2.5, 0.2),)),
         # No cut: fast pans (a moving crop), a push-in, camera shake.
         Edit("no cut: whip pan 2x from still to still, animation", "none",
              (T(BBB, 0, 60, 2.0, (0.0, 0.5), centre_to=(1.0, 0.5), move=(20, 36)),)),
@@ -336,13 +355,21 @@ def evaluation_edits() -> list[Edit]:
              (T(BIKES, 137, 50, 1.6, (0.0, 0.2), centre_to=(1.0, 0.8), move=(10, 34)),)),
         Edit("no cut: slower pan 1.5x, animation", "none",
              (T(BBB, 60, 60, 1.5, (1.0, 0.4), centre_to=(0.0, 0.6)),)),
+        Edit("no cut: vertical whip pan 2x, animation", "none",
+             (T(BBB, 50, 60, 2.0, (0.5, 0.0), centre_to=(0.5, 1.0), move=(20, 30)),)),
+        Edit("no cut: pan 1.4x, top-down street", "none", (T(BIKES, 0, 30, 1.4, (0.0, 0.5), centre_to=(1.0, 0.5)),)),
+        Edit("no cut: pull-out 2x to 1x, talking head", "none",
+             (T(PHONE, 30, 50, 2.0, (0.5, 0.4), 1.0, (0.5, 0.5)),)),
         Edit("no cut: push-in 1x to 2x, animation", "none", (T(BBB, 40, 40, 1.0, (0.5, 0.5), 2.0, (0.6, 0.4)),)),
         Edit("no cut: camera shake, talking head", "none", (T(PHONE, 0, 120, 1.25, shake=0.05, seed=1),)),
         Edit("no cut: camera shake, street", "none", (T(BIKES, 76, 61, 1.3, shake=0.04, seed=2),)),
+        Edit("no cut: camera shake, animation", "none", (T(BBB, 0, 120, 1.3, shake=0.04, seed=5),)),
         # No cut: a large object sweeping through the frame.
         Edit("no cut: dark disc sweeps, animation", "none", (T(BBB, 0, 70),), (Sweep(20, 16),)),
         Edit("no cut: red disc sweeps, street", "none", (T(BIKES, 137, 50),),
              (Sweep(15, 12, 0.4, (0.85, 0.1, 0.1), 0.5),)),
+        Edit("no cut: yellow disc sweeps, talking head", "none", (T(PHONE, 0, 60),),
+             (Sweep(20, 14, 0.5, (0.9, 0.9, 0.2), 0.5),)),
     ]
     for edit in edits:  # the street clip's own cuts must not hide inside a take
         for take in (p for p in edit.parts if isinstance(p, Take) and p.clip == BIKES):
