@@ -64,8 +64,8 @@ class Settings:
     flow_preset: Literal[FLOW_PRESETS] = "medium"  # DIS optical flow preset
     # --- shots ------------------------------------------------------------------------------
     shot_detection: bool = True  # restart the temporal chain at detected cuts
-    cut_threshold: _Fraction = 0.4  # colour-histogram distance (0..1] above which a frame is a cut
-    gradual_threshold: _Fraction = 0.4  # end-to-end distance that makes a fade or dissolve a boundary
+    cut_threshold: _Fraction = 0.015  # least colour+layout step (0..1] of a cut; it must also stand out
+    gradual_threshold: _Fraction = 0.2  # least end-to-end distance of a fade or dissolve
     # --- delivery -----------------------------------------------------------------------------
     fps: Annotated[float, Field(gt=0)] | None = None  # frame rate of a frame folder (default 24); labels timecode
     start_timecode: str | None = None  # the first frame's timecode (default: a video's own, else 00:00:00:00)

