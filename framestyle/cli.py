@@ -166,6 +166,10 @@ class _Bars:
             self.progress.advance(self.total)
             if self.shot_task is not None:
                 self.progress.advance(self.shot_task)
+        elif event == "farm":  # frames done across workers, and which shot each worker is on
+            busy = ", ".join(f"shot {n}" for n in sorted(filter(None, info["workers"].values())))
+            self.progress.update(self.total, completed=info["done"],
+                                 description=f"all frames ({busy or 'idle'})")
         elif event == "waiting":
             self.progress.console.print(f"waiting: {info['holder']}")
         elif event == "shot":
@@ -192,18 +196,38 @@ def stylise(
     shots: Annotated[Optional[str], typer.Option(help="Render only these shots, e.g. 2,4-5.")] = None,
     shot_list: Annotated[Optional[Path], typer.Option(help="Shots from this file instead of detection: shot starts in the source's frame numbers, the JSON of `framestyle shots --json`, an EDL or an .otio file.")] = None,
     restart: Annotated[bool, typer.Option("--restart", help="Discard a previous render in --out and start over.")] = False,
+    workers: Annotated[int, typer.Option(help="Render shots in this many local worker processes (Dask); 1 = this process only.")] = 1,
+    scheduler: Annotated[Optional[str], typer.Option(help="Send the shots to a running Dask scheduler, e.g. tcp://farm:8786, whose workers see the same paths.")] = None,
+    threads: Annotated[Optional[int], typer.Option(help="Torch threads per process (default: all cores, shared among --workers).")] = None,
     quiet: Annotated[bool, typer.Option("--quiet", "-q", help="No progress display.")] = False,
 ) -> None:
     """Stylise INPUT in the look of --style into the --out folder (resumes an interrupted render)."""
-    from framestyle.pipeline import render
-
     _check_path(input, "input")
     if shot_list:
         _check_path(shot_list, "file")
     settings = _settings(options)
+    _render(input, out, settings, workers=workers, scheduler=scheduler, threads=threads, quiet=quiet, shots=shots,
+            shot_file=shot_list, restart=restart)
+
+
+def _render(input: Path, out: Path, settings: Settings, *, workers: int, scheduler: str | None, threads: int | None,
+            quiet: bool, **options) -> None:
+    """Run a render in this process or on a Dask cluster, with progress and the closing report."""
     bars = _Bars(quiet)
     try:
-        result = _run(render, input, out, settings, shots=shots, shot_file=shot_list, restart=restart, progress=bars)
+        if workers == 1 and scheduler is None:
+            from framestyle.pipeline import render
+
+            if threads:
+                import torch
+
+                torch.set_num_threads(threads)
+            result = _run(render, input, out, settings, progress=bars, **options)
+        else:
+            from framestyle.farm import farm_render
+
+            result = _run(farm_render, input, out, settings, workers=workers, scheduler=scheduler, threads=threads,
+                          progress=bars, **options)
     finally:
         bars.stop()
     _report(result, quiet)
@@ -246,6 +270,9 @@ def preview(
 def resume(
     out: Annotated[Path, typer.Argument(help="Output folder of a render started with `stylise`.")],
     shots: Annotated[Optional[str], typer.Option(help="Render only these shots, e.g. 2,4-5.")] = None,
+    workers: Annotated[int, typer.Option(help="Render shots in this many local worker processes (Dask); 1 = this process only.")] = 1,
+    scheduler: Annotated[Optional[str], typer.Option(help="Send the shots to a running Dask scheduler whose workers see the same paths.")] = None,
+    threads: Annotated[Optional[int], typer.Option(help="Torch threads per process (default: all cores, shared among --workers).")] = None,
     quiet: Annotated[bool, typer.Option("--quiet", "-q", help="No progress display.")] = False,
 ) -> None:
     """Continue a render from its manifest alone (input, settings and shot list are in it).
@@ -253,20 +280,14 @@ def resume(
     Lets another process, or another machine with the same files, take over shots.
     """
     from framestyle import store
-    from framestyle.pipeline import render
 
     _check_path(out, "render folder")
     manifest = _run(store.read_manifest, out)
     if manifest is None:
         _fail(f"{out}: no {store.MANIFEST}; start the render with `framestyle stylise`")
     settings = _run(Settings.from_dict, manifest["settings"], str(out / store.MANIFEST))
-    bars = _Bars(quiet)
-    try:
-        result = _run(render, Path(manifest["inputs"]["input"]), out, settings, shots=shots, keep_shot_list=True,
-                      progress=bars)
-    finally:
-        bars.stop()
-    _report(result, quiet)
+    _render(Path(manifest["inputs"]["input"]), out, settings, workers=workers, scheduler=scheduler, threads=threads,
+            quiet=quiet, shots=shots, keep_shot_list=True)
 
 
 def _report(result, quiet: bool) -> None:

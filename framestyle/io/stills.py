@@ -28,10 +28,6 @@ _WRITE_DEPTHS = {".png": (8, 16), ".tif": (8, 16, 32), ".tiff": (8, 16, 32), ".e
 _WRITE_TYPES = {8: oiio.UINT8, 16: oiio.UINT16, 32: oiio.FLOAT}
 _INT_SCALE = {np.dtype(np.uint8): 255.0, np.dtype(np.uint16): 65535.0}
 DTYPE_DEPTH = {np.dtype(np.uint8): 8, np.dtype(np.uint16): 16, np.dtype(np.float32): 32}
-# Samples as stored: OpenImageIO would otherwise premultiply the colour of PNG and TIFF files
-# whose alpha is unassociated (straight), changing the footage's pixels.
-_READ_CONFIG = oiio.ImageSpec()
-_READ_CONFIG.attribute("oiio:UnassociatedAlpha", 1)
 
 
 def image_size(file: Path) -> tuple[int, int]:
@@ -132,7 +128,9 @@ def check_not_empty(file: Path) -> None:
 
 def _open(file: Path, use):
     """Open ``file`` with OpenImageIO, call ``use(image_input)``, close it; errors name the file."""
-    image = oiio.ImageInput.open(str(file), _READ_CONFIG)
+    config = oiio.ImageSpec()  # samples as stored: OpenImageIO would otherwise premultiply the
+    config.attribute("oiio:UnassociatedAlpha", 1)  # colour of files with straight alpha
+    image = oiio.ImageInput.open(str(file), config)
     if image is None:
         raise FramestyleError(f"{file}: cannot decode the image ({_last_error()})")
     try:

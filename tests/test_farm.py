@@ -1,0 +1,143 @@
+"""The render farm: shots as Dask tasks on local workers or a shared cluster, with faults."""
+
+import json
+import os
+import signal
+import subprocess
+import sys
+import time
+from pathlib import Path
+
+import pytest
+
+from framestyle import store
+
+from conftest import ROOT, STYLE
+
+ENV = {**os.environ, "PYTHONPATH": str(ROOT)}
+FAST = ["--width", "128", "--iterations", "4", "--tolerance", "0", "-q"]
+
+
+@pytest.fixture(scope="module")
+def four_shots(small_clip, tmp_path_factory) -> tuple[Path, Path]:
+    """The small clip cut into four 5-frame shots by a shot list (source numbers 1..20)."""
+    listing = tmp_path_factory.mktemp("farm") / "shots.txt"
+    listing.write_text("1\n6\n11\n16\n")
+    return small_clip, listing
+
+
+def _stylise(clip, listing, out, *extra, **popen):
+    cmd = [sys.executable, "-m", "framestyle", "stylise", str(clip), "--style", str(STYLE), "--out", str(out),
+           "--shot-list", str(listing), *FAST, *extra]
+    return subprocess.Popen(cmd, env=ENV, stdout=subprocess.PIPE, stderr=subprocess.PIPE, text=True, **popen)
+
+
+@pytest.fixture(scope="module")
+def one_process(four_shots, tmp_path_factory) -> Path:
+    """The reference: one process, one torch thread (what each of two workers on 2 cores gets)."""
+    out = tmp_path_factory.mktemp("one") / "out"
+    proc = _stylise(*four_shots, out, "--threads", "1")
+    assert proc.wait(timeout=600) == 0, proc.stderr.read()
+    return out
+
+
+def _pngs(folder: Path) -> dict[str, bytes]:
+    return {p.name: p.read_bytes() for p in sorted(folder.glob("take_*.png"))}
+
+
+def test_two_workers_give_the_frames_of_a_one_process_render(four_shots, one_process, tmp_path):
+    proc = _stylise(*four_shots, tmp_path / "farm", "--workers", "2")
+    assert proc.wait(timeout=600) == 0, proc.stderr.read()
+    assert "20 stylised frames" in proc.stdout.read()
+    assert len(_pngs(one_process)) == 20
+    assert _pngs(tmp_path / "farm") == _pngs(one_process)  # bit-identical: same threads per shot
+    log = (tmp_path / "farm" / store.LOG).read_text()
+    assert {line.split(" pid ")[1].split()[0] for line in log.splitlines() if "rendered on" in line}.__len__() == 2
+
+
+def test_a_worker_killed_mid_shot_is_replaced_and_the_shot_resumes(four_shots, one_process, tmp_path):
+    out = tmp_path / "farm"
+    proc = _stylise(*four_shots, out, "--workers", "2", "--iterations", "12")
+    victim, deadline = None, time.time() + 300
+    while victim is None and time.time() < deadline and proc.poll() is None:
+        for shot, record in store.Store(out).records().items():
+            if 2 <= len(record["frames"]) < 5:  # a shot part done: kill the process rendering it
+                holder = json.loads((out / ".framestyle" / "locks" / f"shot_{shot:03d}.lock").read_text())
+                victim = holder["pid"]
+                break
+        time.sleep(0.05)
+    assert victim is not None, "no shot was caught half done"
+    os.kill(victim, signal.SIGKILL)
+    assert proc.wait(timeout=600) == 0, proc.stderr.read()
+    assert "Traceback" not in proc.stderr.read()
+    reference = subprocess.run([sys.executable, "-m", "framestyle", "stylise", str(four_shots[0]), "--style",
+                                str(STYLE), "--out", str(tmp_path / "one"), "--shot-list", str(four_shots[1]), *FAST,
+                                "--iterations", "12", "--threads", "1"], env=ENV, capture_output=True, text=True)
+    assert reference.returncode == 0, reference.stderr
+    assert _pngs(out) == _pngs(tmp_path / "one")
+    log = (out / store.LOG).read_text()
+    for name in _pngs(out):  # no frame solved twice: the shot resumed from its record
+        assert log.count(f"frame {name} ") == 1
+
+
+def test_an_unreachable_scheduler_is_one_line_within_seconds(four_shots, tmp_path):
+    started = time.time()
+    proc = _stylise(*four_shots, tmp_path / "out", "--scheduler", "tcp://127.0.0.1:9")
+    assert proc.wait(timeout=120) == 2
+    err = proc.stderr.read().strip().splitlines()
+    assert len(err) == 1 and "cannot reach the Dask scheduler" in err[0] and "tcp://127.0.0.1:9" in err[0]
+    assert time.time() - started < 40  # interpreter and torch start-up, then a 5 s connect timeout
+
+
+def test_a_user_error_in_one_shot_stops_the_render_with_one_line(small_clip, tmp_path):
+    # Shot 4's own look names a style image that disappears once the render has started.
+    ink = tmp_path / "ink.png"
+    ink.write_bytes(STYLE.read_bytes())
+    look = tmp_path / "look.toml"
+    look.write_text('[shots.4]\nstyles = ["ink.png"]\n')
+    listing = tmp_path / "shots.txt"
+    listing.write_text("1\n6\n11\n16\n")
+    out = tmp_path / "out"
+    proc = _stylise(small_clip, listing, out, "--workers", "2", "--look", str(look))
+    deadline = time.time() + 300
+    while not (out / store.MANIFEST).exists() and time.time() < deadline:
+        time.sleep(0.05)
+    ink.unlink()
+    assert proc.wait(timeout=600) == 2
+    err = proc.stderr.read().strip().splitlines()
+    assert len(err) == 1 and "ink.png" in err[0], err
+    for name in store.Store(out).finished():  # what finished is intact
+        assert (out / name).stat().st_size > 0
+
+
+def test_a_shared_cluster_started_with_dasks_own_commands(four_shots, one_process, tmp_path):
+    # As the README says: `dask scheduler`, then workers with one thread and one "shot" resource.
+    dask = str(Path(sys.executable).parent / "dask")
+    address_file = tmp_path / "scheduler.json"
+    scheduler = subprocess.Popen([dask, "scheduler", "--port", "0", "--no-dashboard", "--scheduler-file",
+                                  str(address_file)], env=ENV, stderr=subprocess.DEVNULL)
+    workers = []
+    try:
+        deadline = time.time() + 60
+        while not address_file.exists() and time.time() < deadline:
+            time.sleep(0.1)
+        address = json.loads(address_file.read_text())["address"]
+        workers = [subprocess.Popen([dask, "worker", address, "--nthreads", "1", "--resources", "shot=1",
+                                     "--no-dashboard"], env=ENV, stderr=subprocess.DEVNULL) for _ in range(2)]
+        proc = _stylise(*four_shots, tmp_path / "farm", "--scheduler", address, "--threads", "1")
+        assert proc.wait(timeout=600) == 0, proc.stderr.read()
+        assert _pngs(tmp_path / "farm") == _pngs(one_process)
+    finally:
+        for p in [*workers, scheduler]:
+            p.terminate()
+            p.wait(timeout=60)
+
+
+def test_resume_with_workers_continues_a_render_started_in_one_process(four_shots, one_process, tmp_path):
+    out = tmp_path / "out"
+    proc = _stylise(*four_shots, out, "--threads", "1", "--shots", "1")
+    assert proc.wait(timeout=600) == 0, proc.stderr.read()
+    resumed = subprocess.run([sys.executable, "-m", "framestyle", "resume", str(out), "--workers", "2", "-q"],
+                             env=ENV, capture_output=True, text=True, timeout=600)
+    assert resumed.returncode == 0, resumed.stderr
+    assert _pngs(out) == _pngs(one_process)
