@@ -36,6 +36,7 @@ from framestyle.qc.stability import flow_warping_error
 from framestyle.settings import Settings
 from framestyle.shots import Shot, shots_from_boundaries
 from framestyle.shots.detect import detect_shots, frame_signature
+from framestyle.shots.continuity import starts_new_shot
 from framestyle.shots.cutlists import cut_list_adapter, cut_list_timecode
 from framestyle.shots.lists import frame_range, parse_shot_file, parse_shot_selection
 from framestyle.store import (Store, check_resume, environment_changes, input_fingerprints, output_names,
@@ -339,19 +340,25 @@ class _ShotRender:
         self.size = working_size(self.source.width, self.source.height, settings.width, self.net.min_side)
         self.params = solver_params(settings)
         self.offsets = sorted(settings.long_term) if settings.temporal else []
+        self.chain_start = shot.start  # the shot's first frame, or a missed cut found in it
 
     def run(self, todo: list[int], progress: Progress) -> None:
         shot, settings, finished = self.shot, self.settings, self.work.record["frames"]
         begin = self._resume_point(todo[0])
+        self.chain_start = max([shot.start] + [i for i in range(shot.start, begin)
+                                               if finished.get(self.names[i], {}).get("fresh")])
         look = shot_look(self.net, self.source, settings, shot)
         mattes = Mattes(self.source, settings.matte)
         progress("shot_start", shot=shot.index, frames=shot.length, done=shot.length - len(todo))
         reach = max(self.offsets, default=0)
         history: deque[tuple[int, np.ndarray]] = deque(maxlen=reach + 1)  # (index, working content)
-        for index, raw in io.iter_frames(self.source, max(shot.start, begin - reach), shot.end + 1):
-            frame = prepare_frame(raw, self.size, settings, self.source.linear)
+        frames = ((index, prepare_frame(raw, self.size, settings, self.source.linear))
+                  for index, raw in io.iter_frames(self.source, max(shot.start, begin - reach), shot.end + 1))
+        for (index, frame), following in _with_next(frames):
             if index >= begin:
-                self._frame(index, frame, look, mattes, dict(history), progress, rebuild=self.names[index] in finished)
+                sources = {k: content for k, content in history if k >= self.chain_start}
+                self._frame(index, frame, following and following[1], look, mattes, sources, progress,
+                            rebuild=self.names[index] in finished)
             history.append((index, frame.content))
         self.work.prune_state(None)
         summary = ShotSummary.from_record(shot, finished, self.source.numbers)
@@ -362,18 +369,27 @@ class _ShotRender:
     def _resume_point(self, first_todo: int) -> int:
         """The frame to solve from: the first unfinished one if the state its temporal terms
         need is kept, else the shot's first frame (the chain is then rebuilt)."""
-        needed = [first_todo - j for j in self.offsets if first_todo - j >= self.shot.start]
+        fresh = [i for i in range(self.shot.start, first_todo)
+                 if self.work.record["frames"].get(self.names[i], {}).get("fresh")]
+        needed = [first_todo - j for j in self.offsets if first_todo - j >= max([self.shot.start] + fresh)]
         if all(self.work.load_state(k) is not None for k in needed):
             return first_todo
         self.work.store.log(f"shot {self.shot.index}: kept state missing, solving again from its first frame")
         return self.shot.start
 
-    def _frame(self, index: int, frame: Frame, look: Look, mattes: Mattes, sources: dict, progress: Progress,
-               rebuild: bool) -> None:
+    def _frame(self, index: int, frame: Frame, following: Frame | None, look: Look, mattes: Mattes, sources: dict,
+               progress: Progress, rebuild: bool) -> None:
         t0 = time.perf_counter()
         settings, name = self.settings, self.names[index]
         earlier = [(FlowPair.between(frame.content, sources[index - j], settings.flow_preset),
                     self.work.load_state(index - j)) for j in self.offsets if index - j in sources]
+        fresh = bool(earlier) and starts_new_shot(earlier[0][0], frame.content, sources.get(index - 2),
+                                                  following and following.content, sources[index - 1],
+                                                  settings.flow_preset)
+        if fresh:  # a cut the detector missed: the chain starts again here
+            earlier, self.chain_start = [], index
+            self.work.store.log(f"frame {name}: no optical-flow correspondence with the frames before it "
+                                f"(a missed cut?); started fresh as a new shot")
         result, stats = stylise(look, frame.content, index, earlier, self.params, settings.seed, settings.temporal)
         self.work.save_state(index, result)
         if not rebuild:  # a frame solved only to rebuild the chain stays as it was finished
@@ -384,12 +400,23 @@ class _ShotRender:
             error = flow_warping_error(earlier[0][1], result, earlier[0][0]) if earlier else None
             seconds = time.perf_counter() - t0
             self.work.finish_frame(name, {"iterations": stats.iterations, "seconds": round(seconds, 3),
-                                          "style": stats.style, "content": stats.content, "warp_error": error})
+                                          "style": stats.style, "content": stats.content, "warp_error": error,
+                                          "fresh": fresh})
             self.work.store.log(f"frame {name} shot {self.shot.index}: {stats.iterations} iterations, "
                                 f"{seconds:.1f} s, style {stats.style:.4f} content {stats.content:.4f} "
                                 f"temporal {stats.temporal:.5f}")
             progress("frame", index=index, shot=self.shot.index, iterations=stats.iterations, seconds=seconds)
         self.work.prune_state(index + 1 - max(self.offsets, default=0))  # what the next frame needs stays
+
+
+def _with_next(items):
+    """Yield (item, the item after it or None)."""
+    items = iter(items)
+    current = next(items, None)
+    while current is not None:
+        following = next(items, None)
+        yield current, following
+        current = following
 
 
 def stylise(

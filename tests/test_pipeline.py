@@ -125,3 +125,21 @@ def test_each_frame_pair_flows_are_computed_once_and_shared_with_the_warping_err
     pairs = sum(1 for k in range(10) for j in (1, 4) if k - j >= 0)  # shot 1 is frames 0..9
     assert len(calls) == 2 * pairs
     assert result.shots[0].warp_error_pairs == 9
+
+
+def test_a_cut_missing_from_the_shot_list_starts_fresh_where_the_flow_finds_no_correspondence(small_clip, tmp_path):
+    # One shot over the whole clip hides the cut at take_011: the forward-backward check
+    # marks nearly all of that frame unreliable, and the render starts it fresh (as a shot's
+    # first frame), logging it.
+    listing = tmp_path / "one_shot.txt"
+    listing.write_text("1\n")
+    out = tmp_path / "out"
+    render(small_clip, out, fast_settings(), shot_file=listing)
+    entries = store.Store(out).finished()
+    assert [name for name, e in entries.items() if e["fresh"]] == ["take_011.png"]
+    assert "take_011.png: no optical-flow correspondence" in (out / store.LOG).read_text()
+    settings = fast_settings()
+    look = build_look(load_network(settings.network), settings)
+    content = resize(io.read_frame(io.open_source(small_clip), 10), (128, 72))
+    image, _ = stylise(look, content, 10, [], solver_params(settings), settings.seed)
+    assert np.array_equal(np.round(image * 255).astype(np.uint8), cv2.imread(str(out / "take_011.png"))[..., ::-1])
