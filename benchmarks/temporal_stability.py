@@ -8,7 +8,7 @@ losses) and measures each render's warping error (Lai et al. 2018) per shot with
 
 * warping error, temporal / per-frame ≤ 0.2 (overall, frame-pair weighted);
 * mean seconds of a warm-started frame / mean seconds of a shot's first frame ≤ 0.35
-  (from the temporal render's manifest).
+  (from the temporal render's shot records).
 
 It also writes a strip of three consecutive frames from the middle of the first shot:
 source on top, then the per-frame render, then the temporal render.
@@ -64,12 +64,12 @@ def first_frames(input_path: Path, count: int, folder: Path) -> Path:
 
 
 def manifest_timing(out: Path, source: io.FrameSource) -> dict[str, list[dict]]:
-    """The temporal render's manifest entries, split into shots' first frames and the rest."""
-    manifest = store.read_manifest(out)
+    """The temporal render's frame entries, split into shots' first frames and the rest."""
+    manifest, finished = store.read_manifest(out), store.Store(out).finished()
     starts = {s["start"] for s in manifest["shots"]}
     split = {"first": [], "warm": []}
     for index in range(source.count):
-        entry = manifest["frames"][io.frame_name(source, index)]
+        entry = finished[io.frame_name(source, index)]
         split["first" if index in starts else "warm"].append(entry)
     return split
 
@@ -146,7 +146,7 @@ def main() -> None:
         timing = manifest_timing(renders["temporal"], source)
         seconds = {k: mean(e["seconds"] for e in v) if v else float("nan") for k, v in timing.items()}
         iters = {k: mean(e["iterations"] for e in v) if v else float("nan") for k, v in timing.items()}
-        print("\ntemporal render, from its manifest")
+        print("\ntemporal render, from its records")
         print(f"  shots' first frames: {len(timing['first']):4d}, mean {seconds['first']:7.2f} s, "
               f"{iters['first']:6.1f} iterations")
         print(f"  warm-started frames: {len(timing['warm']):4d}, mean {seconds['warm']:7.2f} s, "
