@@ -178,8 +178,9 @@ def _resolve_paths(table: dict, folder: Path) -> dict:
     out = dict(table)
     for key in _PATH_SETTINGS:
         value = out.get(key)
-        if key == "styles" and isinstance(value, list):
-            out[key] = [str((folder / v).resolve()) if isinstance(v, str) else v for v in value]
+        if key == "styles":
+            if isinstance(value, list):  # anything else is left for the type check to name
+                out[key] = [str((folder / v).resolve()) if isinstance(v, str) else v for v in value]
         elif isinstance(value, str) and value != "alpha":
             out[key] = str((folder / value).resolve())
     return out

@@ -175,7 +175,7 @@ def test_stability_command_reports_render_and_source(small_clip, tmp_path):
     assert code == 0
     report = json.loads(out)
     assert [s["shot"] for s in report["shots"]] == [1, 2]
-    assert report["overall"]["render"] > report["overall"]["source"] >= 0
+    assert report["overall"]["render"] > 0 and report["overall"]["source"] > 0
     code, out, _ = _run("stability", tmp_path, "--source", small_clip)
     assert "all" in out and "warping error" in out
 
@@ -266,3 +266,18 @@ def test_an_edl_in_gives_a_render_that_follows_it_and_a_prores_hand_off_out(smal
     # ffmpeg's own stream report: Apple ProRes 422 HQ (fourcc apch), 10-bit 4:2:2, timecode
     assert "prores (HQ)" in report and "yuv422p10le" in report and "01:00:00:00" in report
     assert imageio_ffmpeg.count_frames_and_secs(str(mov))[0] == 20
+
+
+@pytest.mark.parametrize(("text", "expected"), [
+    ('styles = "paint.png"\n', "styles: expected a list"),
+    ('strength = "half"\n', "strength: expected a number"),
+    ('sparkle = 1\n', "sparkle: unknown setting"),
+    ('levels = 0\n', "levels: expected greater than or equal to 1"),
+    ('[shots.2]\nstroke_size = -1\n', "[shots.2]: stroke_size: expected greater than 0"),
+])
+def test_a_look_file_with_a_wrong_value_is_one_line_naming_the_file_and_the_key(small_clip, tmp_path, text, expected):
+    look = tmp_path / "bad.toml"
+    look.write_text(f'styles = ["{STYLE}"]\n' + text if not text.startswith("styles") else text)
+    code, _, err = _run("stylise", small_clip, "--look", look, "--out", tmp_path / "o")
+    _one_line_error(code, err, "bad.toml")
+    assert expected in err

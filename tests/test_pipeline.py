@@ -41,7 +41,7 @@ def test_writes_one_png_per_input_frame_named_after_the_input(full_render, small
         assert image is not None and image.shape == (72, 128, 3)
 
 
-def test_manifest_records_settings_shots_and_every_frame(full_render):
+def test_manifest_records_settings_shots_and_every_frame(full_render, small_clip):
     out, _, _ = full_render
     manifest = json.loads((out / store.MANIFEST).read_text())
     assert manifest["shots"] == [{"shot": 1, "start": 0, "end": 9}, {"shot": 2, "start": 10, "end": 19}]
