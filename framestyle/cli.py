@@ -298,6 +298,14 @@ def _report(result, quiet: bool) -> None:
     for video in result.videos:
         typer.echo(f"{'edit-ready ProRes' if video.suffix == '.mov' else 'preview video'} with the source's audio "
                    f"and timecode: {video}")
+    if result.flashes and not quiet:
+        from framestyle.qc.flash_check import CAUTION, report_lines
+        from framestyle.store import FLASH_PLOT
+
+        typer.echo(f"flash check (`framestyle flashes {result.out}` repeats it), timeline {result.out / FLASH_PLOT}:")
+        for label, report in result.flashes.items():
+            typer.echo("\n".join(report_lines(label, report)))
+        typer.echo(CAUTION)
     if not quiet:
         typer.echo(_CAUTION, err=True)
 
@@ -374,8 +382,8 @@ def report_command(
     for any output folder. Open it in a browser; it needs no network and no script.
     """
     from framestyle import io, store
-    from framestyle.pipeline import clip_timecode
     from framestyle.report import refresh_report
+    from framestyle.shots.cutlists import clip_timecode
 
     _check_path(out, "output folder")
     if every is not None and every < 1:
@@ -420,6 +428,35 @@ def stability_command(
         typer.echo(f"{r.shot.index:>4}  {r.frames:>11}  {r.render:>10.5f}  {r.source:>10.5f}")
     typer.echo(f"{'all':>4}  {'':>11}  {overall(rows, 'render'):>10.5f}  {overall(rows, 'source'):>10.5f}")
     typer.echo("warping error: mean squared RGB change along the optical flow (Lai et al. 2018)")
+
+
+@app.command("flashes")
+def flashes_command(
+    path: Annotated[Path, typer.Argument(help="Folder of numbered frames, a video file, or a render's output folder (its frames and their source).")],
+    fps: Annotated[Optional[float], typer.Option(help="Frame rate of the 1-second windows and timecode (default: the video's or the render's; 24 for a folder).")] = None,
+    json_out: Annotated[bool, typer.Option("--json", help="Print the check as JSON.")] = False,
+    plot: Annotated[Optional[Path], typer.Option(help="Write the timeline plot PNG here (default for an output folder: OUT/flashes.png).")] = None,
+) -> None:
+    """Check PATH for photosensitive flashes: general and red flashes per WCAG 2.1 SC 2.3.1 and ITU-R BT.1702.
+
+    Exit code 0 when it passes, 1 when it fails (for an output folder: the render's verdict),
+    2 for bad input. An aid, not a certification: broadcasters' rules and local regulators prevail.
+    """
+    from framestyle.qc.flash_check import CAUTION, check_path, report_lines, verdict_line, write_plot
+
+    _check_path(path, "input")
+    check = _run(check_path, path, fps)
+    plotted = _run(write_plot, check, plot)
+    if json_out:
+        typer.echo(json.dumps({**check.to_dict(), "plot": str(plotted) if plotted else None}))
+    else:
+        for label, report in check.reports.items():
+            typer.echo("\n".join(report_lines(label, report.to_dict())))
+        typer.echo(f"verdict ({check.judged}): {verdict_line(check.reports[check.judged].to_dict())}")
+        if plotted:
+            typer.echo(f"timeline: {plotted}")
+        typer.echo(CAUTION)
+    raise typer.Exit(0 if check.passed else 1)
 
 
 def main() -> None:

@@ -7,6 +7,7 @@ Layout of an output folder::
       <clip>_framestyle.mp4       for video input: the frames with the source's audio
       framestyle.json             manifest: settings, inputs, shot list, environment
       render.log                  a line per frame, per shot and per event, from every process
+      flashes.png                 timeline of the photosensitive flash check (render and source)
       preview/                    preview frames and contact sheets
       report.html                 the render report, refreshed after every shot
       report/                     its pictures: thumbnail strips, plots, style images
@@ -16,6 +17,8 @@ Layout of an output folder::
         locks/preview.lock        held while a preview writes preview/
         locks/report.lock         held while a process refreshes the report
         shots/shot_NNN.json       shot NNN's record: its finished frames and their figures
+        flashes/{render,source}.json   flash check of the whole render's frames and its source
+        flashes/shot_NNN/{render,source}.json   the same for shot NNN alone (a farm's progress)
         state/shot_NNN/*.npy      full-precision stylised frames the temporal losses still need
         restarting                marks a restart in progress (finished by the next run)
         trash/                    what a restart is discarding
@@ -39,7 +42,7 @@ import socket
 import time
 import uuid
 from pathlib import Path
-from typing import Callable, Iterator, Sequence
+from typing import TYPE_CHECKING, Callable, Iterator, Mapping, Sequence
 
 import numpy as np
 
@@ -48,6 +51,9 @@ from framestyle.errors import FramestyleError
 from framestyle.settings import Settings
 from framestyle.timecode import ClipTimecode
 
+if TYPE_CHECKING:
+    from framestyle.qc.flashes import FlashReport
+
 MANIFEST = "framestyle.json"
 FORMAT = 2  # manifest format version
 LOG = "render.log"
@@ -55,6 +61,8 @@ PREVIEW = "preview"
 REPORT = "report.html"
 REPORT_FILES = "report"  # the report's pictures, beside it
 VIDEO_SUFFIX = "_framestyle"
+FLASH_PLOT = "flashes.png"
+FLASH_KINDS = ("render", "source")  # the delivered frames; the footage they were made from
 _PRIVATE = ".framestyle"
 
 
@@ -152,7 +160,8 @@ class Store:
             if (self._private / "trash").exists():
                 atomic.remove(self._private / "trash")
             _remove_temporary(self._private / "shots")
-            _remove_temporary(self.out, lambda target: target == MANIFEST or f"{VIDEO_SUFFIX}." in target)
+            _remove_temporary(self._private / "flashes")
+            _remove_temporary(self.out, lambda target: target in (MANIFEST, FLASH_PLOT) or f"{VIDEO_SUFFIX}." in target)
             yield self
 
     def manifest(self) -> dict | None:
@@ -195,13 +204,14 @@ class Store:
 
     def _discard(self, names: Sequence[str]) -> None:
         trash = self._private / "trash" / uuid.uuid4().hex
-        for name in ("shots", "state"):
+        for name in ("shots", "state", "flashes"):
             if (self._private / name).exists():
                 atomic.move(self._private / name, trash / name)
         for name in (PREVIEW, REPORT_FILES, REPORT):
             if (self.out / name).exists():
                 atomic.move(self.out / name, trash / name)
         products = [p for p in self.out.glob(f"*{VIDEO_SUFFIX}.*") if p.is_file()]
+        products += [self.out / FLASH_PLOT] if (self.out / FLASH_PLOT).exists() else []
         products += [self.out / name for name in dict.fromkeys(names) if (self.out / name).exists()]
         for path in products:
             atomic.move(path, trash / "frames" / path.name)
@@ -316,6 +326,44 @@ class Store:
         return sorted(p.name for p in self.out.glob(f"*{VIDEO_SUFFIX}.*")
                       if p.is_file() and not atomic.is_temporary(p.name))
 
+    # --- the photosensitive flash check ---------------------------------------------------------
+
+    def write_flash_check(self, kind: str, report: dict, shot: int | None = None) -> None:
+        """Record a flash check (:meth:`framestyle.qc.flashes.FlashReport.to_dict`).
+
+        ``kind`` is "render" (the delivered frames) or "source" (the footage); ``shot`` None
+        for the whole render (written under :meth:`folder_lock`), else shot ``shot``'s frames
+        alone (written under the shot's lock).
+        """
+        atomic.write_json(self._flash_path(kind, shot), report)
+
+    def flash_check(self, kind: str, shot: int | None = None) -> dict | None:
+        """A recorded flash check (see :meth:`write_flash_check`), or None if there is none
+        (or it does not read back)."""
+        try:
+            report = json.loads(self._flash_path(kind, shot).read_text())
+        except (OSError, ValueError):
+            return None
+        return report if isinstance(report, dict) else None
+
+    def write_flash_plot(self, reports: Mapping[str, "FlashReport"]) -> Path:
+        """Draw the flash timeline of labelled reports into ``OUT/flashes.png``; return its path."""
+        from framestyle.qc.flash_plot import plot_flash_timeline  # matplotlib only when needed
+
+        plot_flash_timeline(reports, self.out / FLASH_PLOT)
+        return self.out / FLASH_PLOT
+
+    def flash_plot(self) -> Path | None:
+        """``OUT/flashes.png`` if the render's flash check drew it, else None."""
+        path = self.out / FLASH_PLOT
+        return path if path.is_file() else None
+
+    def _flash_path(self, kind: str, shot: int | None) -> Path:
+        if kind not in FLASH_KINDS:
+            raise ValueError(f"kind must be one of {FLASH_KINDS}, got {kind!r}")
+        folder = self._private / "flashes" / ("" if shot is None else f"shot_{shot:03d}")
+        return folder / f"{kind}.json"
+
     def log(self, message: str) -> None:
         """Append a line to ``render.log``."""
         atomic.append_line(self.out / LOG, f"{time.strftime('%Y-%m-%d %H:%M:%S')} {message}")
@@ -343,6 +391,7 @@ class ShotStore:
         are rendered again and replaced).
         """
         _remove_temporary(self._state)
+        _remove_temporary(self.store._flash_path("render", self.shot).parent)
         _remove_temporary(self.store.out, set(names).__contains__)
         problems = []
         for name in list(self.record["frames"]):

@@ -35,7 +35,7 @@ from framestyle.report.status import render_status, shot_series
 from framestyle.settings import Settings
 from framestyle.shots import Shot
 from framestyle.shots.lists import frame_range
-from framestyle.store import REPORT_FILES, ReportStore, Store, output_names
+from framestyle.store import FLASH_KINDS, REPORT_FILES, ReportStore, Store, output_names
 from framestyle.timecode import ClipTimecode
 from framestyle.working import prepare_frame, working_size
 
@@ -80,7 +80,8 @@ def refresh_report(out: Path, source: io.FrameSource | None = None, settings: Se
         data = dataclasses.replace(
             data, status=render_status(manifest, records), shots=views, settings=manifest["settings"],
             styles=tuple(_styles(files, settings, redraw)), source=_source_facts(source, timecode, manifest),
-            environment=manifest.get("environment", {}), products=tuple(store.videos()))
+            environment=manifest.get("environment", {}), products=tuple(store.videos()),
+            flashes=_flash_checks(store, None), flash_plot=_flash_plot_url(store))
         return files.write_page(render_page(data))
 
 
@@ -97,7 +98,8 @@ def _shot_view(store: Store, files: ReportStore, source: io.FrameSource, setting
     view = ShotView(index=shot.index, frames=frame_range(shot, source.numbers),
                     timecode=f"{timecode.label(shot.start)} – {timecode.label(shot.end)}", length=shot.length,
                     series=None, look=look,
-                    render_label="render" if shot_settings.temporal else "render (delivered frames)")
+                    render_label="render" if shot_settings.temporal else "render (delivered frames)",
+                    flashes=_flash_checks(store, shot.index))
     if not frames:
         return view
     measured = _measured(store, files, source, shot_settings, shot, frames, names, stem)
@@ -203,6 +205,17 @@ def _source_facts(source: io.FrameSource, timecode: ClipTimecode, manifest: dict
         "shot list": manifest["shot_list"]["file"] or "detected",
         "started": manifest.get("created", "—"),
     }
+
+
+def _flash_checks(store: Store, shot: int | None) -> dict:
+    """The recorded flash checks of the whole render (``shot`` None) or of one shot, by kind."""
+    checks = {kind: store.flash_check(kind, shot) for kind in FLASH_KINDS}
+    return {kind: check for kind, check in checks.items() if check is not None}
+
+
+def _flash_plot_url(store: Store) -> str | None:
+    path = store.flash_plot()
+    return None if path is None else f"{path.name}?v={path.stat().st_mtime_ns}"
 
 
 def _url(files: ReportStore, name: str) -> str:

@@ -15,6 +15,7 @@ from dataclasses import dataclass, field
 from importlib import resources
 from string import Template
 
+from framestyle.qc.flash_check import CAUTION, report_lines, verdict_line
 from framestyle.report.status import RenderStatus, ShotSeries
 from framestyle.settings import Settings
 
@@ -32,6 +33,7 @@ class ShotView:
     strip: str | None = None  # relative URL of the thumbnail strip
     plot: str | None = None  # relative URL of the plot
     render_label: str = "render"  # what the render's warping error was measured on
+    flashes: dict = field(default_factory=dict)  # the shot's flash check: "render"/"source" → report
 
 
 @dataclass(frozen=True)
@@ -48,7 +50,7 @@ class PageData:
     source: dict = field(default_factory=dict)  # what the source is, in words: label → text
     environment: dict = field(default_factory=dict)  # library versions
     products: tuple[str, ...] = ()  # videos made, relative URLs
-    flashes: dict = field(default_factory=dict)  # "render"/"source" → flash check report (dict)
+    flashes: dict = field(default_factory=dict)  # the whole render's flash check: "render"/"source" → report
     flash_plot: str | None = None  # relative URL of the flash timeline
     previews: tuple[str, ...] = ()  # contact sheets, relative URLs
 
@@ -117,11 +119,12 @@ def _shots_table(data: PageData) -> str:
             f'<td>{_e(view.timecode)}</td><td>{_state(view)}</td>'
             f'<td class="num">{_duration(s.render_seconds) if s else "—"}</td>'
             f'<td class="num">{_number(s.iterations_per_frame, ".1f") if s else "—"}</td>'
-            f'<td class="num">{_number(render, ".5f")}</td><td class="num">{_number(source, ".5f")}</td></tr>')
+            f'<td class="num">{_number(render, ".5f")}</td><td class="num">{_number(source, ".5f")}</td>'
+            f'<td>{_verdict(view.flashes.get("render"))}</td></tr>')
     return ('<section><h2>Shots</h2><table><thead><tr><th>shot</th><th>frames</th><th>timecode</th><th>state</th>'
             '<th class="num">solver time</th><th class="num">iterations / frame</th>'
-            '<th class="num">warping error</th><th class="num">source\'s own</th></tr></thead><tbody>'
-            + "".join(rows) + "</tbody></table></section>")
+            '<th class="num">warping error</th><th class="num">source\'s own</th><th>flash check</th></tr></thead>'
+            "<tbody>" + "".join(rows) + "</tbody></table></section>")
 
 
 def _look(data: PageData) -> str:
@@ -146,29 +149,36 @@ def _look(data: PageData) -> str:
 
 
 def _flashes(data: PageData) -> str:
-    if not data.flashes and data.flash_plot is None:
+    if not data.flashes:
         return ""
-    rows = []
-    for kind, report in data.flashes.items():
-        verdicts = "; ".join(
-            f"{_e(standard)}: " + ", ".join(f'{_e(k)} <span class="{"pass" if v == "pass" else "fail"}">{_e(v)}</span>'
-                                           for k, v in kinds.items())
-            for standard, kinds in report.get("verdicts", {}).items())
-        worst = report.get("worst_seconds") or []
-        where = (f"worst second from frame {worst[0]['start_frame']} ({_e(worst[0]['timecode'])})"
-                 if worst and not report.get("passed", True) else "")
-        rows.append(f"<tr><th>{_e(kind)}</th><td>{verdicts}</td><td>{where}</td></tr>")
+    details = "".join(f"<li>{_verdict(report)}<ul>{_lines(report_lines(kind, report))}</ul></li>"
+                      for kind, report in data.flashes.items())
     plot = (f'<figure><img class="plot" src="{_e(data.flash_plot)}" alt="flash check timeline">'
             f"<figcaption>Flashes in the trailing second and the flashing area, against time.</figcaption></figure>"
             if data.flash_plot else "")
-    return (f"<section><h2>Flash check</h2><table>{''.join(rows)}</table>{plot}"
-            '<p class="muted">An aid to find risky passages, not a certification.</p></section>')
+    return (f"<section><h2>Flash check of the whole render</h2><ul>{details}</ul>{plot}"
+            f'<p class="muted">{_e(CAUTION)}</p></section>')
+
+
+def _verdict(report: dict | None) -> str:
+    """A flash check's verdict in a coloured word or line; a dash without a check."""
+    if report is None:
+        return "—"
+    line = verdict_line(report)
+    return f'<span class="{"pass" if line == "pass" else "fail"}">{_e(line)}</span>'
+
+
+def _lines(lines: list[str]) -> str:
+    return "".join(f"<li>{_e(line.strip())}</li>" for line in lines)
 
 
 def _shot_section(view: ShotView) -> str:
     head = (f'<section class="shot" id="shot{view.index}"><h2>Shot {view.index} · frames {_e(view.frames)} '
             f'<span class="muted">· {_e(view.timecode)}</span> {_state(view)}</h2>')
     look = f'<p>Own look: {_e(view.look)}</p>' if view.look else ""
+    if view.flashes:
+        look += ("<p>Flash check of this shot: " + " · ".join(f"{_e(kind)} {_verdict(report)}"
+                                                             for kind, report in view.flashes.items()) + "</p>")
     if view.series is None or not view.series.frames_done:
         return head + look + '<p class="muted">Not rendered yet.</p></section>'
     strip = (f'<figure><img class="wide" src="{_e(view.strip)}" alt="shot {view.index}: source above render">'
