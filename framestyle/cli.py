@@ -374,7 +374,7 @@ def shots_command(
 def report_command(
     out: Annotated[Path, typer.Argument(help="A render's output folder (finished, running or interrupted), or a preview's.")],
     source: Annotated[Optional[Path], typer.Option("--source", help="The footage, if it moved since the render started (default: where the render read it).")] = None,
-    every: Annotated[Optional[int], typer.Option(help="Thumbnails of every Nth frame of a shot (default: at most 8 a shot).")] = None,
+    every: Annotated[Optional[int], typer.Option(help="Thumbnails of every Nth frame of a shot (default: at most 6 a shot).")] = None,
 ) -> None:
     """Write OUT/report.html: status, settings and look, thumbnails and per-frame figures of each shot.
 

@@ -20,11 +20,13 @@ from framestyle.imaging import resize
 from framestyle.preview import contact_sheet, sample_frames
 from framestyle.report.status import ShotSeries
 
-THUMB_WIDTH = 160  # strip tile width in pixels
-STRIP_TILES = 8  # tiles in a strip row, and the most a shot shows by default
+# A strip row (6 tiles of 176 px and their 4-px gaps) and the plot (1080 px) fit the page's
+# 1094-px column at their own size: shown 1:1 on a laptop screen, sharp.
+THUMB_WIDTH = 176  # strip tile width in pixels
+STRIP_TILES = 6  # tiles in a strip row, and the most a shot shows by default
 RENDER_COLOUR, SOURCE_COLOUR = "#1f4e9c", "#8c8c8c"
 _MISSING = 0.25  # grey of a tile whose frame is not rendered (or the source is not found)
-_WIDTH, _HEIGHT, _DPI = 11.0, 4.6, 100  # plot size in inches, and pixels per inch
+_WIDTH, _HEIGHT, _DPI = 10.8, 4.6, 100  # plot size in inches, and pixels per inch
 
 
 def strip_frames(start: int, end: int, every: int | None = None) -> list[int]:
@@ -73,21 +75,22 @@ def shot_plot(series: ShotSeries, render_label: str = "render") -> Figure:
                     label=f"source (mean {series.mean_error('source'):.4g})")
     error_axis.plot(x, values(series.render_error), color=RENDER_COLOUR, lw=1.6, marker=".", ms=4,
                     label=f"{render_label} (mean {series.mean_error('render'):.4g})")
+    iteration_axis.bar(x, values(series.iterations), width=0.8, color=RENDER_COLOUR, alpha=0.75)
+    seconds_axis.bar(x, values(series.seconds), width=0.8, color="#2e7d4f", alpha=0.75)
+    restarts = [number for number, fresh in zip(x, series.fresh) if fresh]
+    for axis in (error_axis, iteration_axis, seconds_axis):
+        for k, number in enumerate(restarts):
+            axis.axvline(number, color="#c0392b", lw=0.8, ls=":",
+                         label="chain started again (a missed cut?)" if k == 0 and axis is error_axis else None)
+        axis.grid(True, lw=0.3, alpha=0.5)
+        axis.tick_params(labelsize=7)
     error_axis.set_ylabel("warping error\n(Lai et al. 2018)", fontsize=8)
     error_axis.set_ylim(bottom=0)
-    error_axis.legend(fontsize=7.5, loc="upper left", ncol=2, frameon=False)
-    iteration_axis.bar(x, values(series.iterations), width=0.8, color=RENDER_COLOUR, alpha=0.75)
+    error_axis.legend(fontsize=7.5, loc="lower left", bbox_to_anchor=(0, 1), ncol=3, frameon=False)  # above
     iteration_axis.set_ylabel("iterations", fontsize=8)
-    seconds_axis.bar(x, values(series.seconds), width=0.8, color="#2e7d4f", alpha=0.75)
     seconds_axis.set_ylabel("seconds", fontsize=8)
     seconds_axis.set_xlabel("source frame", fontsize=8)
     seconds_axis.set_xlim(x[0] - 0.6, x[-1] + 0.6)
-    for axis in (error_axis, iteration_axis, seconds_axis):
-        axis.grid(True, lw=0.3, alpha=0.5)
-        axis.tick_params(labelsize=7)
-        for number, fresh in zip(x, series.fresh):
-            if fresh:
-                axis.axvline(number, color="#c0392b", lw=0.8, ls=":")
     return fig
 
 

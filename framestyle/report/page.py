@@ -228,5 +228,5 @@ def _number(value: float, spec: str) -> str:
 def _value(value) -> str:
     if isinstance(value, list):
         return ", ".join(map(str, value)) or "—"
-    return "—" if value is None else str(value)
+    return "—" if value in (None, "") else str(value)
 
