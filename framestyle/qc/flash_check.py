@@ -179,7 +179,8 @@ def record_shot_check(store: Store, source: io.FrameSource, names: Sequence[str]
 # --- in words --------------------------------------------------------------------------------
 
 def verdict_line(report: Mapping) -> str:
-    """``"pass"``, or what fails: ``"fails WCAG 2.1 (general, red), ITU-R BT.1702 (general)"``."""
+    """``"pass"``, or what fails, e.g. ``"fails WCAG 2.1 SC 2.3.1 (general, red flashes),
+    ITU-R BT.1702 (general flashes)"``."""
     failing = [(standard, [k for k in KINDS if report["verdicts"][standard][k] == "fail"])
                for standard in STANDARDS]
     failing = [(standard, kinds) for standard, kinds in failing if kinds]
