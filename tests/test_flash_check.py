@@ -9,9 +9,11 @@ folder of PNG frames, so the exit code a delivery script gates on is checked too
 """
 
 import json
+import subprocess
 from pathlib import Path
 
 import cv2
+import imageio_ffmpeg
 import numpy as np
 import pytest
 from typer.testing import CliRunner
@@ -129,6 +131,18 @@ def test_flashes_command_json_parses_and_plot_is_a_png(tmp_path):
     assert report["fps"] == FPS and report["frames"] == 2 * FPS
     assert report["verdicts"] == {"wcag21": {"general": "fail", "red": "pass"}, "bt1702": {"general": "fail", "red": "pass"}}
     assert cv2.imread(str(plot)) is not None
+
+
+def test_flashes_command_reads_a_video_at_its_own_frame_rate(tmp_path):
+    # Black and white every 3 frames: at the video's 25 fps, 25/6 = 4.2 flashes a second (WCAG
+    # 2.1 SC 2.3.1 fails); told it is 12 fps, the same frames make 2 a second (passes).
+    folder = _write_folder(tmp_path / "frames", _strobe(_grey(0, (64, 48)), _grey(1, (64, 48)), 3, 50))
+    video = tmp_path / "strobe.mp4"
+    subprocess.run([imageio_ffmpeg.get_ffmpeg_exe(), "-v", "error", "-framerate", "25", "-i",
+                    str(folder / "case_%04d.png"), "-c:v", "libx264", "-pix_fmt", "yuv420p", str(video)], check=True)
+    code, out, _ = _run("flashes", video, "--json")
+    assert code == 1 and json.loads(out)["reports"]["frames"]["fps"] == 25
+    assert _run("flashes", video, "--fps", 12)[0] == 0
 
 
 @pytest.mark.parametrize("problem", ["missing", "corrupt frame", "bad fps"])
