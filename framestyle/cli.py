@@ -370,6 +370,40 @@ def shots_command(
         typer.echo(format_shot_table(found, source.numbers, timecode))
 
 
+@app.command("report")
+def report_command(
+    out: Annotated[Path, typer.Argument(help="A render's output folder (finished, running or interrupted), or a preview's.")],
+    source: Annotated[Optional[Path], typer.Option("--source", help="The footage, if it moved since the render started (default: where the render read it).")] = None,
+    every: Annotated[Optional[int], typer.Option(help="Thumbnails of every Nth frame of a shot (default: at most 8 a shot).")] = None,
+) -> None:
+    """Write OUT/report.html: status, settings and look, thumbnails and per-frame figures of each shot.
+
+    A render writes it too, when it starts and after every shot; this command draws it anew
+    for any output folder. Open it in a browser; it needs no network and no script.
+    """
+    from framestyle import io, store
+    from framestyle.report import refresh_report
+    from framestyle.shots.cutlists import clip_timecode
+
+    _check_path(out, "output folder")
+    if every is not None and every < 1:
+        _fail(f"--every {every}: must be 1 or more")
+    manifest = _run(store.read_manifest, out)
+    if manifest is None:
+        typer.echo(_run(refresh_report, out, redraw=True))
+        return
+    settings = _run(Settings.from_dict, manifest["settings"], str(out / store.MANIFEST))
+    footage = _check_path(source or Path(manifest["inputs"]["input"]), "source footage (give --source if it moved)")
+    clip = _run(io.open_source, footage)
+    frames = manifest["shots"][-1]["end"] + 1
+    if clip.count != frames:
+        _fail(f"{footage}: has {clip.count} frames, the render in {out} has {frames}")
+    shot_file = manifest["shot_list"]["file"]
+    shot_file = Path(shot_file) if shot_file and Path(shot_file).exists() else None
+    timecode = _run(clip_timecode, clip, settings, shot_file)
+    typer.echo(_run(refresh_report, out, clip, settings, timecode, redraw=True, every=every))
+
+
 @app.command("stability")
 def stability_command(
     out: Annotated[Path, typer.Argument(help="Folder of stylised frames (a render's --out).")],

@@ -35,6 +35,7 @@ from framestyle.preview import contact_sheet, sample_frames
 from framestyle.qc.flash_check import (analyse_source, flash_warning, preview_warning, record_render_check,
                                        record_shot_check)
 from framestyle.qc.stability import flow_warping_error
+from framestyle.report import refresh_report
 from framestyle.settings import Settings
 from framestyle.shots import Shot, shots_from_boundaries
 from framestyle.shots.detect import detect_shots, frame_signature
@@ -191,6 +192,7 @@ def plan_render(
     done = sum(1 for s in chosen for i in range(s.start, s.end + 1) if names[i] in finished)
     size = working_size(source.width, source.height, settings.width, net.min_side)
     progress("start", frames=sum(s.length for s in chosen), shots=len(chosen), done=done, size=size)
+    refresh_report(plan.out, plan.source, plan.settings, plan.timecode)
     return plan
 
 
@@ -215,6 +217,7 @@ def finish_render(plan: Plan, progress: Progress = no_progress) -> RenderResult:
         progress("warning", message=f"{warning} (timeline: {store.flash_plot()})")
     result.shots = [ShotSummary.from_record(shot, records.get(shot.index, {"frames": {}})["frames"],
                                             plan.source.numbers) for shot in plan.shots if shot.index in plan.wanted]
+    refresh_report(plan.out, plan.source, plan.settings, plan.timecode)
     return result
 
 
@@ -337,6 +340,7 @@ def render_shot(plan: Plan, index: int, progress: Progress = no_progress, wait: 
     warning = flashes and flash_warning(flashes, f"shot {index}")
     if warning:
         progress("warning", message=warning)
+    refresh_report(plan.out, plan.source, plan.settings, plan.timecode)
     progress("shot", summary=summary)
     return summary
 
@@ -412,7 +416,7 @@ class _ShotRender:
             seconds = time.perf_counter() - t0
             self.work.finish_frame(name, {"iterations": stats.iterations, "seconds": round(seconds, 3),
                                           "style": stats.style, "content": stats.content, "warp_error": error,
-                                          "fresh": fresh})
+                                          "fresh": fresh, "finished": round(time.time(), 3)})
             self.work.store.log(f"frame {name} shot {self.shot.index}: {stats.iterations} iterations, "
                                 f"{seconds:.1f} s, style {stats.style:.4f} content {stats.content:.4f} "
                                 f"temporal {stats.temporal:.5f}")

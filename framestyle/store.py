@@ -9,10 +9,13 @@ Layout of an output folder::
       render.log                  a line per frame, per shot and per event, from every process
       flashes.png                 timeline of the photosensitive flash check (render and source)
       preview/                    preview frames and contact sheets
+      report.html                 the render report, refreshed after every shot
+      report/                     its pictures: thumbnail strips, plots, style images
       .framestyle/
         locks/folder.lock         held briefly to create, check or restart the render
         locks/shot_NNN.lock       held while a process renders shot NNN
         locks/preview.lock        held while a preview writes preview/
+        locks/report.lock         held while a process refreshes the report
         shots/shot_NNN.json       shot NNN's record: its finished frames and their figures
         flashes/{render,source}.json   flash check of the whole render's frames and its source
         flashes/shot_NNN/{render,source}.json   the same for shot NNN alone (a farm's progress)
@@ -55,6 +58,8 @@ MANIFEST = "framestyle.json"
 FORMAT = 2  # manifest format version
 LOG = "render.log"
 PREVIEW = "preview"
+REPORT = "report.html"
+REPORT_FILES = "report"  # the report's pictures, beside it
 VIDEO_SUFFIX = "_framestyle"
 FLASH_PLOT = "flashes.png"
 FLASH_KINDS = ("render", "source")  # the delivered frames; the footage they were made from
@@ -184,7 +189,7 @@ class Store:
         deleted; a kill in the middle leaves a marker, and the next run finishes the job.
         """
         locks = [Lock(path, f"shot {path.stem[5:]}") for path in sorted((self._private / "locks").glob("shot_*.lock"))]
-        locks.append(self._lock("preview"))
+        locks += [self._lock("preview"), self._lock("report")]
         held = []
         try:
             for lock in locks:
@@ -202,8 +207,9 @@ class Store:
         for name in ("shots", "state", "flashes"):
             if (self._private / name).exists():
                 atomic.move(self._private / name, trash / name)
-        if (self.out / PREVIEW).exists():
-            atomic.move(self.out / PREVIEW, trash / PREVIEW)
+        for name in (PREVIEW, REPORT_FILES, REPORT):
+            if (self.out / name).exists():
+                atomic.move(self.out / name, trash / name)
         products = [p for p in self.out.glob(f"*{VIDEO_SUFFIX}.*") if p.is_file()]
         products += [self.out / FLASH_PLOT] if (self.out / FLASH_PLOT).exists() else []
         products += [self.out / name for name in dict.fromkeys(names) if (self.out / name).exists()]
@@ -233,6 +239,13 @@ class Store:
             if record is not None:
                 merged[int(path.stem[5:])] = record
         return merged
+
+    def record_modified(self, shot: int) -> int | None:
+        """When shot ``shot``'s record last changed (ns since the epoch), or None without one."""
+        try:
+            return (self._private / "shots" / f"shot_{shot:03d}.json").stat().st_mtime_ns
+        except FileNotFoundError:
+            return None
 
     def finished(self) -> dict[str, dict]:
         """Finished frames of every shot: frame name → its entry."""
@@ -292,6 +305,26 @@ class Store:
         with _locked(self._lock("preview"), self.out, wait=False):
             _remove_temporary(self.out / PREVIEW)
             yield PreviewStore(self.out / PREVIEW)
+
+    @contextlib.contextmanager
+    def report(self) -> Iterator["ReportStore"]:
+        """Hold the report lock (waiting for it: a refresh takes seconds) while the report is
+        written; first removes what a process killed while writing it left."""
+        self.out.mkdir(parents=True, exist_ok=True)
+        with _locked(self._lock("report"), self.out, wait=True):
+            _remove_temporary(self.out, REPORT.__eq__)
+            _remove_temporary(self.out / REPORT_FILES)
+            yield ReportStore(self.out)
+
+    def preview_sheets(self) -> list[str]:
+        """The preview's contact sheets, as paths relative to the folder."""
+        return [f"{PREVIEW}/{p.name}" for p in sorted((self.out / PREVIEW).glob("contact_*.png"))
+                if not atomic.is_temporary(p.name)]
+
+    def videos(self) -> list[str]:
+        """The file names of the videos made from the frames."""
+        return sorted(p.name for p in self.out.glob(f"*{VIDEO_SUFFIX}.*")
+                      if p.is_file() and not atomic.is_temporary(p.name))
 
     # --- the photosensitive flash check ---------------------------------------------------------
 
@@ -423,6 +456,37 @@ class PreviewStore:
         path = self.folder / name
         io.write_image(path, image)
         return path
+
+
+class ReportStore:
+    """``report.html`` and its pictures in ``report/``, while the report lock is held."""
+
+    def __init__(self, out: Path):
+        self.out = out
+
+    def write_page(self, html: str) -> Path:
+        """Atomically replace ``report.html``."""
+        atomic.write_bytes(self.out / REPORT, html.encode())
+        return self.out / REPORT
+
+    def write_image(self, name: str, image: np.ndarray) -> None:
+        """Atomically write an 8-bit picture (H, W, 3 float in [0, 1]) as ``report/<name>``."""
+        io.write_image(self.out / REPORT_FILES / name, image)
+
+    def write_file(self, name: str, data: bytes) -> None:
+        """Atomically write ``report/<name>`` (an encoded plot, say)."""
+        atomic.write_bytes(self.out / REPORT_FILES / name, data)
+
+    def read(self, name: str) -> bytes:
+        """The content of ``report/<name>``; raises FileNotFoundError if it is not there."""
+        return (self.out / REPORT_FILES / name).read_bytes()
+
+    def modified(self, name: str) -> int | None:
+        """When ``report/<name>`` was last written (ns since the epoch), or None if it is not there."""
+        try:
+            return (self.out / REPORT_FILES / name).stat().st_mtime_ns
+        except FileNotFoundError:
+            return None
 
 
 # --- what a render is checked against ----------------------------------------------------------
