@@ -150,7 +150,7 @@ def _shot_task(plan: Plan, index: int, threads: int | None):
     """A shot on a worker: render it (resuming its record), with this worker's thread count."""
     _set_threads(threads or os.cpu_count() or 1)
     started = time.time()
-    summary = render_shot(plan, index, wait=True)
+    summary = render_shot(plan, index, wait=True, check_flashes=True)
     Store(plan.out).log(f"shot {index} rendered on {os.uname().nodename} pid {os.getpid()} "
                         f"in {time.time() - started:.0f} s")
     return summary

@@ -42,8 +42,8 @@ from framestyle.shots.detect import detect_shots, frame_signature
 from framestyle.shots.continuity import starts_new_shot
 from framestyle.shots.cutlists import clip_timecode
 from framestyle.shots.lists import frame_range, parse_shot_file, parse_shot_selection
-from framestyle.store import (Store, check_resume, environment_changes, input_fingerprints, output_names,
-                              shot_list_fingerprint)
+from framestyle.store import (FLASH_KINDS, Store, check_resume, environment_changes, input_fingerprints,
+                              output_names, shot_list_fingerprint)
 from framestyle.style.look import Look, build_look
 from framestyle.style.network import FeatureNet, load_network
 from framestyle.style.solver import SolverParams, SolveStats, solve, solve_coarse_to_fine
@@ -306,13 +306,17 @@ def shot_look(net: FeatureNet, source: io.FrameSource, settings: Settings, shot:
 
 # --- one shot -------------------------------------------------------------------------------
 
-def render_shot(plan: Plan, index: int, progress: Progress = no_progress, wait: bool = True) -> ShotSummary | None:
+def render_shot(plan: Plan, index: int, progress: Progress = no_progress, wait: bool = True,
+                check_flashes: bool = False) -> ShotSummary | None:
     """Render shot ``index`` of a planned render, continuing its temporal chain where it stopped.
 
     Returns None (without ``wait``) if another process is rendering the shot. Frames already
     finished are never rewritten. Where the chain cannot continue from kept state (the state
     of the frames it needs is gone or damaged), the shot is solved again from its first
-    frame, writing only the frames that are not finished.
+    frame, writing only the frames that are not finished. With ``check_flashes`` (a farm's
+    workers) the shot's frames and source are checked for flashes and recorded, so a long
+    farmed render warns early; the whole render's check in :func:`finish_render` is the
+    authoritative one.
     """
     shot = plan.shots[index - 1]
     settings = plan.settings.for_shot(index)
@@ -330,7 +334,7 @@ def render_shot(plan: Plan, index: int, progress: Progress = no_progress, wait: 
         elif work.has_state():  # a process killed as it finished the shot left its state
             work.prune_state(None)
         flashes = None
-        if todo or not all(work.store.flash_check(kind, index) for kind in ("render", "source")):
+        if check_flashes and (todo or not all(work.store.flash_check(kind, index) for kind in FLASH_KINDS)):
             flashes = record_shot_check(work.store, plan.source, names, plan.timecode, shot)
         summary = ShotSummary.from_record(shot, work.record["frames"], plan.source.numbers)
     warning = flashes and flash_warning(flashes, f"shot {index}")

@@ -12,8 +12,8 @@ Frames are judged as shown: linear-light (EXR) frames are sRGB-encoded first, as
 network (:func:`framestyle.finish.compose.to_display`).
 
 A render is checked as a whole once every frame is finished (a flash can straddle a cut,
-so this check is the authoritative one) and shot by shot as each shot finishes, so a long
-or farmed render warns early. A shot's check sees only its own frames.
+so this check is the authoritative one); on a render farm each shot is also checked as it
+finishes, so a long farmed render warns early (a shot's check sees only its own frames).
 """
 
 from __future__ import annotations
@@ -160,7 +160,6 @@ def record_render_check(store: Store, source: io.FrameSource, names: Sequence[st
     for kind, report in recorded.items():
         store.write_flash_check(kind, report)
     store.write_flash_plot(reports)
-    store.log(f"flash check: {verdict_line(recorded['render'])}; source: {verdict_line(recorded['source'])}")
     return recorded
 
 
@@ -180,7 +179,8 @@ def record_shot_check(store: Store, source: io.FrameSource, names: Sequence[str]
 # --- in words --------------------------------------------------------------------------------
 
 def verdict_line(report: Mapping) -> str:
-    """``"pass"``, or what fails: ``"fails WCAG 2.1 (general, red), ITU-R BT.1702 (general)"``."""
+    """``"pass"``, or what fails, e.g. ``"fails WCAG 2.1 SC 2.3.1 (general, red flashes),
+    ITU-R BT.1702 (general flashes)"``."""
     failing = [(standard, [k for k in KINDS if report["verdicts"][standard][k] == "fail"])
                for standard in STANDARDS]
     failing = [(standard, kinds) for standard, kinds in failing if kinds]
