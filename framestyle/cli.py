@@ -66,6 +66,9 @@ def _settings_options(
     no_temporal: Annotated[bool, typer.Option("--no-temporal", help="Stylise each frame on its own (flickers; for comparison).")] = False,
     temporal_weight: Annotated[Optional[float], typer.Option(help=f"Weight of the temporal consistency loss (default {Settings.temporal_weight}).")] = None,
     flow_preset: Annotated[Optional[str], typer.Option(help=f"Optical flow quality: ultrafast, fast or medium (default {Settings.flow_preset}).")] = None,
+    warp_filter: Annotated[Optional[str], typer.Option(help=f"Resampling of the frames carried along the optical flow: linear, cubic or lanczos (default {Settings.warp_filter}).")] = None,
+    passes: Annotated[Optional[int], typer.Option(help=f"Passes over each shot: after the first (forward), backward and forward in turn, each refining every frame from its neighbour; crisper and steadier, each pass costs time (default {Settings.passes}).")] = None,
+    pass_iterations: Annotated[Optional[int], typer.Option(help=f"Most solver iterations per frame in each pass after the first (default {Settings.pass_iterations}).")] = None,
     tolerance: Annotated[Optional[float], typer.Option(help=f"Stop a frame when the loss falls by less than this fraction per 10 iterations (default {Settings.tolerance}).")] = None,
     fps: Annotated[Optional[float], typer.Option(help="Frame rate of a folder of frames, for timecode and videos (default 24; a video has its own).")] = None,
     start_timecode: Annotated[Optional[str], typer.Option(help="Timecode of the first frame, HH:MM:SS:FF or HH:MM:SS;FF drop-frame (default: the video's own, else 00:00:00:00).")] = None,
@@ -133,6 +136,7 @@ class _Bars:
         self.quiet = quiet
         self.progress = None
         self.shot_task = None
+        self.in_passes = False
 
     def __call__(self, event: str, **info) -> None:
         if event == "warning":  # shown even with --quiet: it says something is off
@@ -160,11 +164,18 @@ class _Bars:
         elif event == "shot_start":
             if self.shot_task is not None:
                 self.progress.remove_task(self.shot_task)
+            self.in_passes = False
             self.shot_task = self.progress.add_task(f"shot {info['shot']}", total=info["frames"],
                                                     completed=info["done"])
+        elif event == "pass":  # a multi-pass shot: the shot's bar follows each pass
+            self.in_passes = True
+            self.progress.update(self.shot_task, description=f"shot {info['shot']} pass {info['pass_']}/{info['passes']}",
+                                 completed=info["done"])
+        elif event == "pass_frame":
+            self.progress.advance(self.shot_task)
         elif event == "frame":
             self.progress.advance(self.total)
-            if self.shot_task is not None:
+            if self.shot_task is not None and not self.in_passes:  # a pass's bar is full by delivery
                 self.progress.advance(self.shot_task)
         elif event == "farm":  # frames done across workers, and which shot each worker is on
             busy = ", ".join(f"shot {n}" for n in sorted(filter(None, info["workers"].values())))
