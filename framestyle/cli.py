@@ -379,24 +379,37 @@ def stability_command(
     source: Annotated[Path, typer.Option("--source", help="The footage the render was made from.")],
     json_out: Annotated[bool, typer.Option("--json", help="Print the figures as JSON.")] = False,
     flow_preset: Annotated[str, typer.Option(help="Optical flow preset for the measurement.")] = "medium",
+    detail_frames: Annotated[int, typer.Option(help="Frames per shot rendered again on their own to measure the stroke detail the render keeps; 0 = none.")] = 3,
 ) -> None:
-    """Print the warping error (Lai et al. 2018) of a render per shot and overall; lower is steadier."""
+    """Print the warping error (Lai et al. 2018) of a render per shot and overall, lower is
+    steadier, and the stroke detail it keeps, 1 is as crisp as frames rendered on their own."""
     from framestyle.qc.stability import overall, stability
 
     _check_path(out, "render folder")
     _check_path(source, "source")
-    rows = _run(stability, out, source, flow_preset)
+    if detail_frames < 0:
+        _fail(f"--detail-frames {detail_frames}: must be 0 or more")
+    alone = None
+    if detail_frames:
+        from framestyle.pipeline import frames_alone
+
+        alone = functools.partial(frames_alone, out, source)
+    rows = _run(stability, out, source, flow_preset, alone, max(1, detail_frames))
     if json_out:
         typer.echo(json.dumps({
-            "shots": [{"shot": r.shot.index, "frames": r.frames, "render": r.render, "source": r.source} for r in rows],
+            "shots": [{"shot": r.shot.index, "frames": r.frames, "render": r.render, "source": r.source,
+                       "detail": [{"frame": n, "ratio": v} for n, v in r.detail]} for r in rows],
             "overall": {"render": overall(rows, "render"), "source": overall(rows, "source")},
         }))
         return
-    typer.echo(f"{'shot':>4}  {'frames':>11}  {'render':>10}  {'source':>10}")
+    typer.echo(f"{'shot':>4}  {'frames':>11}  {'render':>10}  {'source':>10}" + ("  stroke detail (frame: ratio)" if alone else ""))
     for r in rows:
-        typer.echo(f"{r.shot.index:>4}  {r.frames:>11}  {r.render:>10.5f}  {r.source:>10.5f}")
+        typer.echo(f"{r.shot.index:>4}  {r.frames:>11}  {r.render:>10.5f}  {r.source:>10.5f}"
+                   + "".join(f"  {n}: {v:.2f}" for n, v in r.detail))
     typer.echo(f"{'all':>4}  {'':>11}  {overall(rows, 'render'):>10.5f}  {overall(rows, 'source'):>10.5f}")
     typer.echo("warping error: mean squared RGB change along the optical flow (Lai et al. 2018)")
+    if alone:
+        typer.echo("stroke detail: Laplacian energy of the render's frame over that of the frame rendered on its own")
 
 
 def main() -> None:

@@ -20,7 +20,7 @@ import time
 from collections import deque
 from dataclasses import dataclass, field
 from pathlib import Path
-from typing import Callable, Sequence
+from typing import Callable, Iterator, Sequence
 
 import numpy as np
 import torch
@@ -39,7 +39,7 @@ from framestyle.shots.detect import detect_shots, frame_signature
 from framestyle.shots.continuity import starts_new_shot
 from framestyle.shots.cutlists import cut_list_adapter, cut_list_timecode
 from framestyle.shots.lists import frame_range, parse_shot_file, parse_shot_selection
-from framestyle.store import (Store, check_resume, environment_changes, input_fingerprints, output_names,
+from framestyle.store import (MANIFEST, Store, check_resume, environment_changes, input_fingerprints, output_names,
                               shot_list_fingerprint)
 from framestyle.style.look import Look, build_look
 from framestyle.style.network import FeatureNet, load_network
@@ -545,7 +545,7 @@ class _ShotRender:
             return
         matte = mattes(index, settings.matte_softness)
         self.work.write_frame(name, deliver(result, frame, settings, matte, self.source.linear),
-                              16 if self.source.bit_depth in (16, 32) else 8)
+                              _output_depth(self.source))
         self.work.finish_frame(name, {**entry, "seconds": round(seconds, 3)})
         self.work.store.log(f"frame {name} shot {self.shot.index}: {entry['iterations']} iterations, "
                             f"{seconds:.1f} s, style {entry['style']:.4f} content {entry['content']:.4f}"
@@ -594,6 +594,59 @@ def stylise(
     return to_array(image), stats
 
 
+# --- frames stylised on their own: previews, the reference of the detail measure ---------------
+
+def _stylised_alone(source: io.FrameSource, net: FeatureNet, settings: Settings, chosen: dict[int, Shot],
+                    linear: bool) -> Iterator[tuple[int, Shot, Frame, np.ndarray, SolveStats, float]]:
+    """Each chosen frame (index → its shot) stylised on its own with its shot's look — a shot's
+    first-frame treatment, no temporal chain — and delivered (in the source's encoding if
+    ``linear``, else display-referred). Yields (index, shot, frame, delivered, stats, seconds)
+    in frame order."""
+    looks: dict[int, tuple[Settings, Look, Mattes]] = {}
+    for index, raw in io.iter_frames(source, min(chosen, default=0), max(chosen, default=-1) + 1):
+        if index not in chosen:
+            continue
+        t0 = time.perf_counter()
+        shot = chosen[index]
+        if shot.index not in looks:
+            shot_settings = settings.for_shot(shot.index)
+            looks[shot.index] = (shot_settings, shot_look(net, source, shot_settings, shot),
+                                 Mattes(source, shot_settings.matte))
+        shot_settings, look, mattes = looks[shot.index]
+        size = working_size(source.width, source.height, shot_settings.width, net.min_side)
+        frame = prepare_frame(raw, size, shot_settings, source.linear)
+        result, stats = stylise(look, frame.content, index, [], solver_params(shot_settings), shot_settings.seed,
+                                temporal=False)
+        delivered = deliver(result, frame, shot_settings, mattes(index, shot_settings.matte_softness), linear)
+        yield index, shot, frame, delivered, stats, time.perf_counter() - t0
+
+
+def frames_alone(out: Path, source_path: Path, indices: Sequence[int]) -> Iterator[tuple[int, np.ndarray]]:
+    """Frames ``indices`` of the render in ``out`` stylised each on its own with the render's
+    settings and delivered as its frames are (rounded like its 8- or 16-bit files): what the
+    render's stroke detail is measured against (:mod:`framestyle.qc.detail`).
+
+    Yields (index, (H, W, 3) frame) in frame order. ``source_path`` is the footage the
+    render was made from.
+    """
+    manifest = Store(out).manifest()
+    if manifest is None:
+        raise FramestyleError(f"{out}: no {MANIFEST}; the detail measure needs the render's settings")
+    settings = Settings.from_dict(manifest["settings"], str(Path(out) / MANIFEST))
+    source = io.open_source(Path(source_path))
+    shots = [Shot(s["shot"], s["start"], s["end"]) for s in manifest["shots"]]
+    chosen = {i: next(s for s in shots if s.start <= i <= s.end) for i in indices}
+    levels = 2 ** _output_depth(source) - 1
+    for index, _, _, delivered, _, _ in _stylised_alone(source, network(settings.network, settings.network_weights),
+                                                        settings, chosen, source.linear):
+        yield index, delivered if source.linear else np.round(delivered * levels) / levels
+
+
+def _output_depth(source: io.FrameSource) -> int:
+    """Bit depth of a render's PNG frames (float sources are delivered as EXR)."""
+    return 16 if source.bit_depth in (16, 32) else 8
+
+
 # --- previews -------------------------------------------------------------------------------
 
 def preview(input_path: Path, out: Path, settings: Settings, every: int, *, width: int | None = None,
@@ -625,25 +678,9 @@ def preview(input_path: Path, out: Path, settings: Settings, every: int, *, widt
     size = working_size(source.width, source.height, settings.width, net.min_side)
     progress("start", frames=len(chosen), shots=len(wanted), done=0, size=size)
     tiles: dict[int, list] = {n: [] for n in wanted}
-    looks: dict[int, tuple[Settings, Look, Mattes]] = {}
     with Store(out).preview() as folder:
-        for index, raw in io.iter_frames(source):
-            if index not in chosen:
-                continue
-            t0 = time.perf_counter()
-            shot = chosen[index]
-            if shot.index not in looks:
-                shot_settings = settings.for_shot(shot.index)
-                looks[shot.index] = (shot_settings, shot_look(net, source, shot_settings, shot),
-                                     Mattes(source, shot_settings.matte))
-            shot_settings, look, mattes = looks[shot.index]
-            size = working_size(source.width, source.height, shot_settings.width, net.min_side)
-            frame = prepare_frame(raw, size, shot_settings, source.linear)
-            result, stats = stylise(look, frame.content, index, [], solver_params(shot_settings),
-                                    shot_settings.seed, temporal=False)
-            delivered = deliver(result, frame, shot_settings, mattes(index, shot_settings.matte_softness), False)
+        for index, shot, frame, delivered, stats, seconds in _stylised_alone(source, net, settings, chosen, False):
             folder.write(io.frame_name(source, index), delivered)
             tiles[shot.index].append((source.names[index], frame.display, delivered))
-            progress("frame", index=index, shot=shot.index, iterations=stats.iterations,
-                     seconds=time.perf_counter() - t0, skipped=False)
+            progress("frame", index=index, shot=shot.index, iterations=stats.iterations, seconds=seconds, skipped=False)
         return [folder.write(f"contact_shot{n:03d}.png", contact_sheet(tiles[n])) for n in wanted]
