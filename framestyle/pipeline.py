@@ -411,12 +411,15 @@ class _ShotRender:
             matte = mattes(index, settings.matte_softness)
             self.work.write_frame(name, deliver(result, frame, settings, matte, self.source.linear),
                                   16 if self.source.bit_depth in (16, 32) else 8)
-            # the warping error of this frame and its predecessor reuses the flows of the temporal loss
+            # the warping error of this frame and its predecessor, and the source's own along the same
+            # flows (the reference the report shows beside it), reuse the flows of the temporal loss
             error = flow_warping_error(earlier[0][1], result, earlier[0][0]) if earlier else None
+            source_error = flow_warping_error(sources[index - 1], frame.content, earlier[0][0]) if earlier else None
             seconds = time.perf_counter() - t0
             self.work.finish_frame(name, {"iterations": stats.iterations, "seconds": round(seconds, 3),
                                           "style": stats.style, "content": stats.content, "warp_error": error,
-                                          "fresh": fresh, "finished": round(time.time(), 3)})
+                                          "source_warp_error": source_error, "fresh": fresh,
+                                          "finished": round(time.time(), 3)})
             self.work.store.log(f"frame {name} shot {self.shot.index}: {stats.iterations} iterations, "
                                 f"{seconds:.1f} s, style {stats.style:.4f} content {stats.content:.4f} "
                                 f"temporal {stats.temporal:.5f}")
