@@ -480,10 +480,12 @@ class _ShotRender:
         if self.passes > 1:  # every frame's working frame and result are kept for the next pass
             self.work.save_state(index, frame.content, "content")
         self.work.save_state(index, result)
-        # the warping error of this frame and its predecessor reuses the flows of the temporal loss
+        # the warping error of this frame and its predecessor, and the source's own along the same
+        # flows (the reference the report shows beside it), reuse the flows of the temporal loss
         error = flow_warping_error(earlier[0][1], result, earlier[0][0]) if earlier else None
+        source_error = flow_warping_error(sources[index - 1], frame.content, earlier[0][0]) if earlier else None
         entry = {"iterations": stats.iterations, "style": stats.style, "content": stats.content,
-                 "warp_error": error, "fresh": fresh}
+                 "warp_error": error, "source_warp_error": source_error, "fresh": fresh}
         if self.passes > 1:
             self._note(index, 1, entry, time.perf_counter() - t0, progress)
             return
@@ -528,7 +530,7 @@ class _ShotRender:
         name = self.names[index]
         so_far = self.work.pending().get(name, {}) if pass_ > 1 else {}
         iterations = entry.get("iterations", 0) if iterations is None else iterations
-        self.work.note_pass(name, {"fresh": so_far.get("fresh", False), **entry, "passes": pass_,
+        self.work.note_pass(name, {**so_far, **entry, "passes": pass_,
                                    "iterations": so_far.get("iterations", 0) + iterations,
                                    "seconds": round(so_far.get("seconds", 0.0) + seconds, 3)})
         progress("pass_frame", index=index, shot=self.shot.index, pass_=pass_, iterations=iterations, seconds=seconds)

@@ -14,7 +14,7 @@ from typer.testing import CliRunner
 
 from framestyle import io, pipeline, store
 from framestyle.cli import app
-from framestyle.qc.stability import stability
+from framestyle.qc.stability import sequence_warping_error, stability
 from framestyle.report import refresh_report
 from framestyle.report.figures import shot_plot
 from framestyle.report.status import render_status, shot_series
@@ -29,9 +29,11 @@ runner = CliRunner()
 
 @pytest.fixture(scope="module")
 def rendered(small_clip, tmp_path_factory):
-    """The small clip rendered (shots 1-10 and 11-20), and the report's page as it stood when
-    each shot started and when each was done."""
+    """The small clip rendered as shots 1-10, 11-16 and 17-20, and the report's page as it
+    stood when each shot started and when each was done."""
     out = tmp_path_factory.mktemp("report") / "out"
+    shot_list = out.parent / "shots.txt"
+    shot_list.write_text("1\n11\n17\n")
     pages = {}
 
     def progress(event, **info):
@@ -40,7 +42,7 @@ def rendered(small_clip, tmp_path_factory):
         elif event == "shot":
             pages[("done", info["summary"].shot.index)] = (out / store.REPORT).read_text()
 
-    pipeline.render(small_clip, out, fast_settings(iterations=2), progress=progress)
+    pipeline.render(small_clip, out, fast_settings(iterations=1), shot_file=shot_list, progress=progress)
     return out, pages
 
 
@@ -65,12 +67,12 @@ def _shots(out: Path) -> list[Shot]:
 def test_a_render_writes_its_report_when_it_starts_and_after_every_shot(rendered):
     out, pages = rendered
     first = pages[("start", 1)]  # written when the render started
-    assert "0 / 20" in first and first.count("not started") == 4  # table and section of each shot
+    assert "0 / 20" in first and first.count("not started") == 6  # table and section of each shot
     after_one = pages[("done", 1)]
     assert "10 / 20" in after_one and "shot_001_plot.png" in after_one and "shot_002_plot.png" not in after_one
     final = (out / store.REPORT).read_text()
-    assert "20 / 20" in final and "2 / 2" in final and ">done<" in final
-    for name in ("shot_001_strip.png", "shot_001_plot.png", "shot_002_strip.png", "shot_002_plot.png", "style_1.png"):
+    assert "20 / 20" in final and "3 / 3" in final and ">done<" in final
+    for name in ("shot_001_strip.png", "shot_001_plot.png", "shot_003_strip.png", "shot_003_plot.png", "style_1.png"):
         assert f"report/{name}?v=" in final
         assert cv2.imread(str(out / store.REPORT_FILES / name)) is not None
     assert "<script" not in final  # readable without JavaScript
@@ -87,12 +89,15 @@ def test_the_figures_match_the_shot_records_and_the_stability_measure(rendered, 
     measured = {row.shot.index: row for row in stability(out, small_clip)}
     for shot in _shots(out):
         frames = records[shot.index]["frames"]
-        kept = json.loads((out / store.REPORT_FILES / f"shot_{shot.index:03d}.json").read_text())
-        series = shot_series(shot, names, source.numbers, frames, kept["source_error"])
-        assert series.render_error == tuple(frames[names[i]]["warp_error"] for i in range(shot.start, shot.end + 1))
-        assert series.iterations == tuple(frames[names[i]]["iterations"] for i in range(shot.start, shot.end + 1))
-        assert series.render_error[0] is None and all(e is not None for e in series.render_error[1:])
-        # the source's own error, frame pair by frame pair, averages to the measure's figure
+        series = shot_series(shot, names, source.numbers, frames)
+        entries = [frames[names[i]] for i in range(shot.start, shot.end + 1)]
+        assert series.render_error == tuple(e["warp_error"] for e in entries)
+        assert series.source_error == tuple(e["source_warp_error"] for e in entries)
+        assert series.iterations == tuple(e["iterations"] for e in entries)
+        for errors in (series.render_error, series.source_error):
+            assert errors[0] is None and all(e is not None for e in errors[1:])  # no pair before a shot's first frame
+        # the source's own error, recorded while rendering along the temporal loss's flows,
+        # averages over the shot's frame pairs to the measure's figure
         assert series.mean_error("source") == pytest.approx(measured[shot.index].source, rel=1e-6)
         # the render's, recorded from the full-precision frames, against the delivered 8-bit PNGs
         assert series.mean_error("render") == pytest.approx(measured[shot.index].render, rel=0.05)
@@ -129,6 +134,7 @@ def test_a_refresh_redraws_only_the_shots_whose_records_changed_and_measures_not
     out = _copy(rendered[0], tmp_path)
     inputs = _render_inputs(out, small_clip)
     pictures = out / store.REPORT_FILES
+    assert not list(pictures.glob("*.json"))  # the render recorded every warping error: none measured here
 
     def stamps():
         return {p.name: p.stat().st_mtime_ns for p in pictures.iterdir()}
@@ -154,37 +160,39 @@ def test_framestyle_report_regenerates_an_interrupted_render_and_a_farm_worker_r
         rendered, small_clip, tmp_path):
     out = _copy(rendered[0], tmp_path)
     source = io.open_source(small_clip)
-    for name in store.output_names(source)[10:]:  # as if killed before shot 2 finished a frame
+    for name in store.output_names(source)[16:]:  # as if killed before shot 3 finished a frame
         (out / name).unlink()
-    (out / ".framestyle" / "shots" / "shot_002.json").unlink()
+    (out / ".framestyle" / "shots" / "shot_003.json").unlink()
     shutil.rmtree(out / store.REPORT_FILES)
     (out / store.REPORT).unlink()
     result = runner.invoke(app, ["report", str(out)])
     assert result.exit_code == 0, result.stderr
     assert result.stdout.strip() == str(out / store.REPORT)
     page = (out / store.REPORT).read_text()
-    assert "10 / 20" in page and "1 / 2" in page and "not started" in page and "shot_002_plot" not in page
+    assert "16 / 20" in page and "2 / 3" in page and "not started" in page and "shot_003_plot" not in page
     # a farm worker runs render_shot alone: the report follows the shot it finished
-    plan = pipeline.plan_render(small_clip, out, Settings.from_dict(store.read_manifest(out)["settings"]))
-    pipeline.render_shot(plan, 2)
+    manifest = store.read_manifest(out)
+    plan = pipeline.plan_render(small_clip, out, Settings.from_dict(manifest["settings"]),
+                                shot_file=Path(manifest["shot_list"]["file"]))
+    pipeline.render_shot(plan, 3)
     page = (out / store.REPORT).read_text()
-    assert "20 / 20" in page and "shot_002_plot.png" in page
+    assert "20 / 20" in page and "shot_003_plot.png" in page
 
 
 def test_a_render_without_temporal_consistency_is_measured_on_its_delivered_frames(small_clip, tmp_path):
-    out = tmp_path / "out"
-    pipeline.render(small_clip, out, fast_settings(iterations=1, temporal=False), shots="1")
+    out, shot_list = tmp_path / "out", tmp_path / "shots.txt"
+    shot_list.write_text("1\n5\n")  # a 4-frame shot 1
+    pipeline.render(small_clip, out, fast_settings(iterations=1, temporal=False), shot_file=shot_list, shots="1")
     source = io.open_source(small_clip)
     shot = _shots(out)[0]
-    kept = json.loads((out / store.REPORT_FILES / "shot_001.json").read_text())
+    kept = json.loads((out / store.REPORT_FILES / "shot_001.json").read_text())  # what the report measured
     series = shot_series(shot, store.output_names(source), source.numbers, store.Store(out).records()[1]["frames"],
-                         kept["source_error"], kept["render_error"])
+                         kept)
     # the stability measure of the same frames (Lai et al. 2018), read back from disk
-    frames = [io.read_image(out / name) for name in store.output_names(source)[:10]]
-    sources = [f for _, f in io.iter_frames(source, 0, 10)]
-    from framestyle.qc.stability import sequence_warping_error
-
+    frames = [io.read_image(out / name) for name in store.output_names(source)[:4]]
+    sources = [f for _, f in io.iter_frames(source, 0, 4)]
     assert series.mean_error("render") == pytest.approx(sequence_warping_error(frames, sources), rel=1e-6)
+    assert series.mean_error("source") == pytest.approx(sequence_warping_error(sources, sources), rel=1e-6)
     assert "render (delivered frames)" in (out / store.REPORT).read_text()
 
 
@@ -219,11 +227,10 @@ def test_headless_chromium_shows_the_report_with_its_strips_plots_and_style(rend
     # normalised squared difference, 0 for an exact match). A picture that failed to load
     # shows as its alt text and a broken-image icon, far from it.
     found = []
-    for name in ("shot_001_strip.png", "shot_001_plot.png", "shot_002_strip.png", "shot_002_plot.png", "style_1.png"):
+    for name in ("style_1.png", "shot_001_strip.png", "shot_001_plot.png", "shot_003_strip.png", "shot_003_plot.png"):
         picture = cv2.imread(str(out / store.REPORT_FILES / name))
         scores = cv2.matchTemplate(page, picture, cv2.TM_SQDIFF_NORMED)
         score, _, (x, y), _ = cv2.minMaxLoc(scores)
         assert score < 0.01, f"{name} is not shown (best match {score:.3f} at {x},{y})"
         found.append(y)
-    strip_1, plot_1, strip_2, plot_2, style = found
-    assert style < strip_1 < plot_1 < strip_2 < plot_2  # in the page's order: look, shot 1, shot 2
+    assert found == sorted(found)  # in the page's order: the look, shot 1, shot 3

@@ -9,9 +9,9 @@ iterations, seconds — the flash check and the preview's contact sheets. Its pi
 ``OUT/report/``; everything is written through the store, atomically.
 
 A refresh is cheap: a shot's pictures are redrawn only when its record changed after they
-were drawn, and the warping errors the report measures itself (the source's; the render's
-when the render kept none) are measured once per frame pair and kept in
-``report/shot_NNN.json``.
+were drawn, and the warping errors come from the records (the render measures its own and
+the source's along the flows its temporal loss computed); the few the report measures
+itself, for renders that recorded none, are measured once and kept.
 """
 
 from __future__ import annotations
@@ -103,7 +103,7 @@ def _shot_view(store: Store, files: ReportStore, source: io.FrameSource, setting
     if not frames:
         return view
     measured = _measured(store, files, source, shot_settings, shot, frames, names, stem)
-    series = shot_series(shot, names, source.numbers, frames, measured["source_error"], measured["render_error"])
+    series = shot_series(shot, names, source.numbers, frames, measured)
     record_time = store.record_modified(shot.index) or 0
     drawn = files.modified(f"{stem}_plot.png")
     if redraw or drawn is None or drawn <= record_time or files.modified(f"{stem}_strip.png") is None:
@@ -114,40 +114,44 @@ def _shot_view(store: Store, files: ReportStore, source: io.FrameSource, setting
 
 
 def _measured(store: Store, files: ReportStore, source: io.FrameSource, settings: Settings, shot: Shot,
-              frames: dict[str, dict], names: list[str], stem: str) -> dict:
-    """The warping errors the report measures itself, per frame of the shot (Lai et al. 2018).
+              frames: dict[str, dict], names: list[str], stem: str) -> dict | None:
+    """Warping errors (Lai et al. 2018) the render did not record, measured here; None if none is missing.
 
-    The source's, for every frame pair of the shot, on the working frames the render solved
-    (so they compare with the render's recorded errors); and the render's on its delivered
-    frames when it recorded none (a render without temporal consistency). Kept in
-    ``report/<stem>.json``; only pairs not measured yet are measured.
+    A render records, for each frame after the first of its chain, its warping error and the
+    source's along the same flows. Where a finished frame has none (a render without temporal
+    consistency; the source's in a render from before it was recorded), the source's is
+    measured on the working frames the render solved, and the render's on its delivered
+    frames at the same size, both as :func:`~framestyle.qc.stability.pair_warping_error`
+    does. What is measured is kept in ``report/<stem>.json`` (frames never change once
+    finished), so each pair is measured once.
     """
+    entries = [frames.get(names[i]) for i in range(shot.start, shot.end + 1)]
+    needs = {key: {k for k in range(1, shot.length)
+                   if entries[k] is not None and entries[k].get(recorded) is None and not entries[k].get("fresh")
+                   and (key == "source_error" or entries[k - 1] is not None)}
+             for key, recorded in (("source_error", "source_warp_error"), ("render_error", "warp_error"))}
+    if not any(needs.values()):
+        return None
     cache_name = f"{stem}.json"
-    measured = {"source_error": [None] * shot.length, "render_error": None if settings.temporal else [None] * shot.length}
-    kept = _read_json(files, cache_name)
-    if kept is not None and all(_same_shape(kept.get(key), value) for key, value in measured.items()):
-        measured = kept
-    positions = range(shot.start, shot.end + 1)
-    done = [names[i] in frames for i in positions]
-    missing = [k for k in range(1, shot.length)
-               if measured["source_error"][k] is None
-               or (measured["render_error"] is not None and measured["render_error"][k] is None
-                   and done[k] and done[k - 1])]
+    measured = _read_json(files, cache_name)
+    if measured is None or not all(isinstance(measured.get(key), list) and len(measured[key]) == shot.length
+                                   for key in needs):
+        measured = {key: [None] * shot.length for key in needs}
+    missing = sorted(k for key, ks in needs.items() for k in ks if measured[key][k] is None)
     if not missing:
         return measured
     size = working_size(source.width, source.height, settings.width, 1)  # the render checked its minimum
     previous = None
-    first = shot.start + missing[0] - 1
-    for index, raw in io.iter_frames(source, first, shot.start + missing[-1] + 1):
+    for index, raw in io.iter_frames(source, shot.start + missing[0] - 1, shot.start + missing[-1] + 1):
         k = index - shot.start
         content = prepare_frame(raw, size, settings, source.linear).content
         delivered = (_delivered(store, names[index], source.linear, size)
-                     if measured["render_error"] is not None and done[k] else None)
-        if previous is not None and k in missing:
-            if measured["source_error"][k] is None:
+                     if needs["render_error"] and entries[k] is not None else None)
+        if previous is not None:
+            if k in needs["source_error"] and measured["source_error"][k] is None:
                 measured["source_error"][k] = pair_warping_error(previous[0], content, previous[0], content,
                                                                  settings.flow_preset)
-            if delivered is not None and previous[1] is not None:
+            if k in needs["render_error"] and measured["render_error"][k] is None:
                 measured["render_error"][k] = pair_warping_error(previous[1], delivered, previous[0], content,
                                                                  settings.flow_preset)
         previous = (content, delivered)
@@ -231,10 +235,6 @@ def _read_json(files: ReportStore, name: str) -> dict | None:
         return None
     return value if isinstance(value, dict) else None
 
-
-def _same_shape(kept, wanted: list | None) -> bool:
-    """Whether a kept list of errors has the wanted length (or is None where None is wanted)."""
-    return kept is None if wanted is None else isinstance(kept, list) and len(kept) == len(wanted)
 
 
 def _setting(value) -> str:

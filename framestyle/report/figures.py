@@ -63,7 +63,8 @@ def shot_plot(series: ShotSeries, render_label: str = "render") -> Figure:
     Frames are placed by the source's frame numbers; a frame where the chain started again (a
     missed cut) is marked by a dotted line. ``render_label`` names the render's line.
     """
-    fig = Figure(figsize=(_WIDTH, _HEIGHT), dpi=_DPI, layout="constrained")
+    fig = Figure(figsize=(_WIDTH, _HEIGHT), dpi=_DPI)
+    fig.subplots_adjust(left=0.07, right=0.99, top=0.92, bottom=0.09, hspace=0.12)  # fixed: quicker than a layout engine
     FigureCanvasAgg(fig)
     error_axis, iteration_axis, seconds_axis = fig.subplots(3, 1, sharex=True, height_ratios=(2, 1, 1))
     x = np.asarray(series.numbers, dtype=float)

@@ -3,9 +3,11 @@
 Pure functions over the manifest (``framestyle.json``) and the shots' records (see
 :mod:`framestyle.store`): nothing here reads frames or writes files. A frame's record entry
 holds ``iterations``, ``seconds``, ``warp_error`` (the warping error of Lai et al. 2018
-between the frame and the one before it, measured while rendering), ``fresh`` (the chain
-started again at it) and ``finished`` (when, in seconds since the epoch; absent in records
-of older renders).
+between the frame and the one before it, measured while rendering), ``source_warp_error``
+(the same of the source frames, along the same flows), ``fresh`` (the chain started again
+at it) and ``finished`` (when, in seconds since the epoch). Records of older renders lack
+the last two and the source's error; a render without temporal consistency measures no
+warping error (the report then measures what is missing itself).
 """
 
 from __future__ import annotations
@@ -119,27 +121,33 @@ def render_status(manifest: dict, records: dict[int, dict]) -> RenderStatus:
 
 
 def shot_series(shot: Shot, names: Sequence[str], numbers: Sequence[int], frames: dict[str, dict],
-                source_error: Sequence[float | None], render_error: Sequence[float | None] | None = None
-                ) -> ShotSeries:
+                measured: dict[str, Sequence[float | None] | None] | None = None) -> ShotSeries:
     """A shot's per-frame figures from its record's ``frames`` (frame name → entry).
 
     Parameters
     ----------
     names, numbers : every output frame name and source frame number of the clip, by position
-    source_error : per frame of the shot, the source's warping error from the frame before
-    render_error : per frame of the shot, the render's warping error measured on delivered
-        frames; None to take the errors recorded while rendering
+    measured : warping errors measured after the render where its record has none:
+        ``{"render_error": ..., "source_error": ...}``, each None or one value (or None) per
+        frame of the shot
     """
     positions = range(shot.start, shot.end + 1)
     entries = [frames.get(names[i]) for i in positions]
-    if len(source_error) != shot.length or (render_error is not None and len(render_error) != shot.length):
-        raise ValueError(f"shot {shot.index}: need one warping error per frame ({shot.length})")
-    recorded = tuple(e.get("warp_error") if e else None for e in entries)
+
+    def errors(key: str, recorded: str) -> tuple[float | None, ...]:
+        values = [e.get(recorded) if e else None for e in entries]
+        extra = (measured or {}).get(key)
+        if extra is not None:
+            if len(extra) != shot.length:
+                raise ValueError(f"shot {shot.index}: need one {key} per frame ({shot.length}), got {len(extra)}")
+            values = [v if v is not None else m for v, m in zip(values, extra)]
+        return tuple(values)
+
     return ShotSeries(
         shot=shot, numbers=tuple(numbers[i] for i in positions),
         finished=tuple(e is not None for e in entries),
-        render_error=recorded if render_error is None else tuple(render_error),
-        source_error=tuple(source_error),
+        render_error=errors("render_error", "warp_error"),
+        source_error=errors("source_error", "source_warp_error"),
         iterations=tuple(e["iterations"] if e else None for e in entries),
         seconds=tuple(e["seconds"] if e else None for e in entries),
         fresh=tuple(bool(e and e.get("fresh")) for e in entries),
