@@ -309,6 +309,14 @@ def _report(result, quiet: bool) -> None:
     for video in result.videos:
         typer.echo(f"{'edit-ready ProRes' if video.suffix == '.mov' else 'preview video'} with the source's audio "
                    f"and timecode: {video}")
+    if result.flashes and not quiet:
+        from framestyle.qc.flash_check import CAUTION, report_lines
+        from framestyle.store import FLASH_PLOT
+
+        typer.echo(f"flash check (`framestyle flashes {result.out}` repeats it), timeline {result.out / FLASH_PLOT}:")
+        for label, report in result.flashes.items():
+            typer.echo("\n".join(report_lines(label, report)))
+        typer.echo(CAUTION)
     if not quiet:
         typer.echo(_CAUTION, err=True)
 
@@ -373,6 +381,40 @@ def shots_command(
         typer.echo(format_shot_table(found, source.numbers, timecode))
 
 
+@app.command("report")
+def report_command(
+    out: Annotated[Path, typer.Argument(help="A render's output folder (finished, running or interrupted), or a preview's.")],
+    source: Annotated[Optional[Path], typer.Option("--source", help="The footage, if it moved since the render started (default: where the render read it).")] = None,
+    every: Annotated[Optional[int], typer.Option(help="Thumbnails of every Nth frame of a shot (default: at most 6 a shot).")] = None,
+) -> None:
+    """Write OUT/report.html: status, settings and look, thumbnails and per-frame figures of each shot.
+
+    A render writes it too, when it starts and after every shot; this command draws it anew
+    for any output folder. Open it in a browser; it needs no network and no script.
+    """
+    from framestyle import io, store
+    from framestyle.report import refresh_report
+    from framestyle.shots.cutlists import clip_timecode
+
+    _check_path(out, "output folder")
+    if every is not None and every < 1:
+        _fail(f"--every {every}: must be 1 or more")
+    manifest = _run(store.read_manifest, out)
+    if manifest is None:
+        typer.echo(_run(refresh_report, out, redraw=True))
+        return
+    settings = _run(Settings.from_dict, manifest["settings"], str(out / store.MANIFEST))
+    footage = _check_path(source or Path(manifest["inputs"]["input"]), "source footage (give --source if it moved)")
+    clip = _run(io.open_source, footage)
+    frames = manifest["shots"][-1]["end"] + 1
+    if clip.count != frames:
+        _fail(f"{footage}: has {clip.count} frames, the render in {out} has {frames}")
+    shot_file = manifest["shot_list"]["file"]
+    shot_file = Path(shot_file) if shot_file and Path(shot_file).exists() else None
+    timecode = _run(clip_timecode, clip, settings, shot_file)
+    typer.echo(_run(refresh_report, out, clip, settings, timecode, redraw=True, every=every))
+
+
 @app.command("stability")
 def stability_command(
     out: Annotated[Path, typer.Argument(help="Folder of stylised frames (a render's --out).")],
@@ -410,6 +452,35 @@ def stability_command(
     typer.echo("warping error: mean squared RGB change along the optical flow (Lai et al. 2018)")
     if alone:
         typer.echo("stroke detail: Laplacian energy of the render's frame over that of the frame rendered on its own")
+
+
+@app.command("flashes")
+def flashes_command(
+    path: Annotated[Path, typer.Argument(help="Folder of numbered frames, a video file, or a render's output folder (its frames and their source).")],
+    fps: Annotated[Optional[float], typer.Option(help="Frame rate of the 1-second windows and timecode (default: the video's or the render's; 24 for a folder).")] = None,
+    json_out: Annotated[bool, typer.Option("--json", help="Print the check as JSON.")] = False,
+    plot: Annotated[Optional[Path], typer.Option(help="Write the timeline plot PNG here (default for an output folder: OUT/flashes.png).")] = None,
+) -> None:
+    """Check PATH for photosensitive flashes: general and red flashes per WCAG 2.1 SC 2.3.1 and ITU-R BT.1702.
+
+    Exit code 0 when it passes, 1 when it fails (for an output folder: the render's verdict),
+    2 for bad input. An aid, not a certification: broadcasters' rules and local regulators prevail.
+    """
+    from framestyle.qc.flash_check import CAUTION, check_path, report_lines, verdict_line, write_plot
+
+    _check_path(path, "input")
+    check = _run(check_path, path, fps)
+    plotted = _run(write_plot, check, plot)
+    if json_out:
+        typer.echo(json.dumps({**check.to_dict(), "plot": str(plotted) if plotted else None}))
+    else:
+        for label, report in check.reports.items():
+            typer.echo("\n".join(report_lines(label, report.to_dict())))
+        typer.echo(f"verdict ({check.judged}): {verdict_line(check.reports[check.judged].to_dict())}")
+        if plotted:
+            typer.echo(f"timeline: {plotted}")
+        typer.echo(CAUTION)
+    raise typer.Exit(0 if check.passed else 1)
 
 
 def main() -> None:

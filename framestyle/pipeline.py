@@ -32,15 +32,18 @@ from framestyle.finish.compose import to_display
 from framestyle.imaging import to_array
 from framestyle.motion import FlowPair
 from framestyle.preview import contact_sheet, sample_frames
+from framestyle.qc.flash_check import (analyse_source, flash_warning, preview_warning, record_render_check,
+                                       record_shot_check)
 from framestyle.qc.stability import flow_warping_error
+from framestyle.report import refresh_report
 from framestyle.settings import Settings
 from framestyle.shots import Shot, shots_from_boundaries
 from framestyle.shots.detect import detect_shots, frame_signature
 from framestyle.shots.continuity import starts_new_shot
-from framestyle.shots.cutlists import cut_list_adapter, cut_list_timecode
+from framestyle.shots.cutlists import clip_timecode
 from framestyle.shots.lists import frame_range, parse_shot_file, parse_shot_selection
-from framestyle.store import (MANIFEST, Store, check_resume, environment_changes, input_fingerprints, output_names,
-                              shot_list_fingerprint)
+from framestyle.store import (FLASH_KINDS, MANIFEST, Store, check_resume, environment_changes,
+                              input_fingerprints, output_names, shot_list_fingerprint)
 from framestyle.style.look import Look, build_look
 from framestyle.style.network import FeatureNet, load_network
 from framestyle.style.solver import SolverParams, SolveStats, solve, solve_coarse_to_fine
@@ -85,6 +88,7 @@ class RenderResult:
     frames: list[Path]
     shots: list[ShotSummary] = field(default_factory=list)
     videos: list[Path] = field(default_factory=list)  # the H.264 preview (video input) and the ProRes hand-off
+    flashes: dict[str, dict] = field(default_factory=dict)  # the finished render's flash check: render, source
 
 
 @dataclass(frozen=True)
@@ -134,7 +138,8 @@ def render(
         ``"frame"`` (index, shot, iterations, seconds: a finished frame), ``"pass"`` (shot,
         pass_, passes, done: a pass of a multi-pass shot begins), ``"pass_frame"`` (index,
         shot, pass_, iterations, seconds: a frame's pass before delivery), ``"waiting"``
-        (shot, holder), ``"shot"`` (summary) and ``"video"`` (path)
+        (shot, holder), ``"shot"`` (summary) and ``"video"`` (path); a ``"warning"`` says where a shot or
+        the finished render flashes (WCAG 2.1 SC 2.3.1, ITU-R BT.1702)
     """
     plan = plan_render(input_path, out, settings, shots=shots, shot_file=shot_file, restart=restart,
                        keep_shot_list=keep_shot_list, progress=progress)
@@ -189,11 +194,14 @@ def plan_render(
     done = sum(1 for s in chosen for i in range(s.start, s.end + 1) if names[i] in finished)
     size = working_size(source.width, source.height, settings.width, net.min_side)
     progress("start", frames=sum(s.length for s in chosen), shots=len(chosen), done=done, size=size)
+    refresh_report(plan.out, plan.source, plan.settings, plan.timecode)
     return plan
 
 
 def finish_render(plan: Plan, progress: Progress = no_progress) -> RenderResult:
-    """After the shots: the summary of the wanted shots, and the video once every frame is done."""
+    """After the shots: the summary of the wanted shots; once every frame is done, the videos
+    and the flash check of the render and its source (the authoritative one: a flash can
+    straddle a cut), recorded in the output folder."""
     store = Store(plan.out)
     names = plan.names
     with store.folder_lock():
@@ -205,8 +213,13 @@ def finish_render(plan: Plan, progress: Progress = no_progress) -> RenderResult:
             for video in store.write_videos(plan.source, done, plan.timecode, plan.settings.prores):
                 result.videos.append(video)
                 progress("video", path=video)
+            result.flashes = record_render_check(store, plan.source, done, plan.timecode)
+    warning = result.flashes and flash_warning(result.flashes)
+    if warning:
+        progress("warning", message=f"{warning} (timeline: {store.flash_plot()})")
     result.shots = [ShotSummary.from_record(shot, records.get(shot.index, {"frames": {}})["frames"],
                                             plan.source.numbers) for shot in plan.shots if shot.index in plan.wanted]
+    refresh_report(plan.out, plan.source, plan.settings, plan.timecode)
     return result
 
 
@@ -275,15 +288,6 @@ def find_shots(source: io.FrameSource, settings: Settings, shot_file: Path | Non
     return shots_from_boundaries(sorted({s.start for s in found} | set(after_gaps)), source.count)
 
 
-def clip_timecode(source: io.FrameSource, settings: Settings, shot_file: Path | None = None) -> ClipTimecode:
-    """How the source's frames are labelled: the settings' rate and start timecode, else the
-    video's; an editor's cut list places a clip without timecode of its own."""
-    timecode = io.source_timecode(source, settings.fps, settings.start_timecode)
-    if shot_file is not None and cut_list_adapter(shot_file):
-        timecode = cut_list_timecode(shot_file, timecode)
-    return timecode
-
-
 def solver_params(settings: Settings) -> SolverParams:
     """The solver's share of the settings."""
     return SolverParams(
@@ -304,13 +308,17 @@ def shot_look(net: FeatureNet, source: io.FrameSource, settings: Settings, shot:
 
 # --- one shot -------------------------------------------------------------------------------
 
-def render_shot(plan: Plan, index: int, progress: Progress = no_progress, wait: bool = True) -> ShotSummary | None:
+def render_shot(plan: Plan, index: int, progress: Progress = no_progress, wait: bool = True,
+                check_flashes: bool = False) -> ShotSummary | None:
     """Render shot ``index`` of a planned render, continuing its temporal chain where it stopped.
 
     Returns None (without ``wait``) if another process is rendering the shot. Frames already
     finished are never rewritten. Where the chain cannot continue from kept state (the state
     of the frames it needs is gone or damaged), the shot is solved again from its first
-    frame, writing only the frames that are not finished.
+    frame, writing only the frames that are not finished. With ``check_flashes`` (a farm's
+    workers) the shot's frames and source are checked for flashes and recorded, so a long
+    farmed render warns early; the whole render's check in :func:`finish_render` is the
+    authoritative one.
     """
     shot = plan.shots[index - 1]
     settings = plan.settings.for_shot(index)
@@ -327,7 +335,14 @@ def render_shot(plan: Plan, index: int, progress: Progress = no_progress, wait: 
             _ShotRender(plan, work, settings, shot).run(todo, progress)
         elif work.has_state():  # a process killed as it finished the shot left its state
             work.prune_state(None)
+        flashes = None
+        if check_flashes and (todo or not all(work.store.flash_check(kind, index) for kind in FLASH_KINDS)):
+            flashes = record_shot_check(work.store, plan.source, names, plan.timecode, shot)
         summary = ShotSummary.from_record(shot, work.record["frames"], plan.source.numbers)
+    warning = flashes and flash_warning(flashes, f"shot {index}")
+    if warning:
+        progress("warning", message=warning)
+    refresh_report(plan.out, plan.source, plan.settings, plan.timecode)
     progress("shot", summary=summary)
     return summary
 
@@ -546,7 +561,7 @@ class _ShotRender:
         matte = mattes(index, settings.matte_softness)
         self.work.write_frame(name, deliver(result, frame, settings, matte, self.source.linear),
                               _output_depth(self.source))
-        self.work.finish_frame(name, {**entry, "seconds": round(seconds, 3)})
+        self.work.finish_frame(name, {**entry, "seconds": round(seconds, 3), "finished": round(time.time(), 3)})
         self.work.store.log(f"frame {name} shot {self.shot.index}: {entry['iterations']} iterations, "
                             f"{seconds:.1f} s, style {entry['style']:.4f} content {entry['content']:.4f}"
                             + (f" temporal {temporal:.5f}" if temporal is not None else ""))
@@ -665,6 +680,9 @@ def preview(input_path: Path, out: Path, settings: Settings, every: int, *, widt
     Returns
     -------
     The contact sheet paths, one per previewed shot.
+
+    The source is checked for flashes (previewed frames, stylised one by one and sampled,
+    are not: a warning says when the source already flashes).
     """
     if every < 1:
         raise FramestyleError(f"--every {every}: must be 1 or more")
@@ -683,4 +701,8 @@ def preview(input_path: Path, out: Path, settings: Settings, every: int, *, widt
             folder.write(io.frame_name(source, index), delivered)
             tiles[shot.index].append((source.names[index], frame.display, delivered))
             progress("frame", index=index, shot=shot.index, iterations=stats.iterations, seconds=seconds, skipped=False)
-        return [folder.write(f"contact_shot{n:03d}.png", contact_sheet(tiles[n])) for n in wanted]
+        sheets = [folder.write(f"contact_shot{n:03d}.png", contact_sheet(tiles[n])) for n in wanted]
+    warning = preview_warning(analyse_source(source, clip_timecode(source, settings, shot_file)).to_dict())
+    if warning:
+        progress("warning", message=warning)
+    return sheets
