@@ -62,7 +62,7 @@ class Settings:
     temporal_weight: _NonNegative = 50.0  # weight of the (short- and long-term) temporal loss
     long_term: Annotated[tuple[Annotated[int, Field(ge=1)], ...], _List] = (1, 10, 20, 40)  # frames back tied
     flow_preset: Literal[FLOW_PRESETS] = "medium"  # DIS optical flow preset
-    warp_filter: Literal[WARP_FILTERS] = "linear"  # resampling of the warped frames: linear, cubic, lanczos
+    warp_filter: Literal[WARP_FILTERS] = "cubic"  # resampling of the warped frames: linear, cubic, lanczos
     passes: Annotated[int, Field(ge=1, le=32)] = 1  # 1: one forward pass; more: then backward, forward ... in turn
     pass_iterations: Annotated[int, Field(ge=1)] = 50  # most solver iterations per frame in each later pass
     # --- shots ------------------------------------------------------------------------------
