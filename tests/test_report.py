@@ -156,6 +156,17 @@ def test_a_refresh_redraws_only_the_shots_whose_records_changed_and_measures_not
         {k: v for k, v in before.items() if not k.startswith("shot_002_")}
 
 
+def test_a_shot_with_a_look_of_its_own_says_what_differs(rendered, small_clip, tmp_path):
+    out = _copy(rendered[0], tmp_path)
+    manifest = json.loads((out / store.MANIFEST).read_text())
+    manifest["settings"]["shot_looks"] = {"2": {"strength": 0.5, "colour": "luma"}}  # as a look file's [shots.2]
+    (out / store.MANIFEST).write_text(json.dumps(manifest))
+    refresh_report(out, *_render_inputs(out, small_clip))
+    page = (out / store.REPORT).read_text()
+    assert "<li>shot 2: colour luma, strength 0.5</li>" in page and "Own look: colour luma, strength 0.5" in page
+    assert page.count("Own look:") == 1
+
+
 def test_framestyle_report_regenerates_an_interrupted_render_and_a_farm_worker_refreshes_it(
         rendered, small_clip, tmp_path):
     out = _copy(rendered[0], tmp_path)

@@ -63,13 +63,13 @@ def refresh_report(out: Path, source: io.FrameSource | None = None, settings: Se
         The folder holds neither a render nor a preview, or its manifest is unreadable.
     """
     store = Store(out)
+    if store.manifest() is None and not store.preview_sheets():
+        raise FramestyleError(f"{store.out}: holds no render and no preview to report on")
     with store.report() as files:
         manifest = store.manifest()
         data = PageData(heading=store.out.resolve().name, version=framestyle.__version__, updated=time.time(),
                         previews=tuple(store.preview_sheets()))
         if manifest is None:
-            if not data.previews:
-                raise FramestyleError(f"{store.out}: holds no render and no preview to report on")
             return files.write_page(render_page(data))
         if source is None or settings is None or timecode is None:
             raise ValueError("a render's report needs its source, settings and timecode")
@@ -151,7 +151,8 @@ def _measured(store: Store, files: ReportStore, source: io.FrameSource, settings
             if k in needs["source_error"] and measured["source_error"][k] is None:
                 measured["source_error"][k] = pair_warping_error(previous[0], content, previous[0], content,
                                                                  settings.flow_preset)
-            if k in needs["render_error"] and measured["render_error"][k] is None:
+            readable = previous[1] is not None and delivered is not None
+            if k in needs["render_error"] and measured["render_error"][k] is None and readable:
                 measured["render_error"][k] = pair_warping_error(previous[1], delivered, previous[0], content,
                                                                  settings.flow_preset)
         previous = (content, delivered)
@@ -171,14 +172,21 @@ def _strip(store: Store, source: io.FrameSource, shot: Shot, names: list[str], f
     for i in wanted:
         rendered = None
         if names[i] in frames:
-            rendered = thumbnail(to_display(io.read_image(store.frame_paths([names[i]])[0]), source.linear))
+            try:
+                rendered = thumbnail(to_display(io.read_image(store.frame_paths([names[i]])[0]), source.linear))
+            except FramestyleError:  # gone or damaged since: its shot renders it again; a grey tile till then
+                pass
         tiles.append((str(source.numbers[i]), thumbnail(to_display(raws[i], source.linear)), rendered))
     return strip(tiles, source.width / source.height)
 
 
-def _delivered(store: Store, name: str, linear: bool, size: tuple[int, int]) -> np.ndarray:
-    """A finished frame as delivered, display-referred, at working size."""
-    return resize(to_display(io.read_image(store.frame_paths([name])[0]), linear), size)
+def _delivered(store: Store, name: str, linear: bool, size: tuple[int, int]) -> np.ndarray | None:
+    """A finished frame as delivered, display-referred, at working size; None if it does not
+    read back (its shot renders it again)."""
+    try:
+        return resize(to_display(io.read_image(store.frame_paths([name])[0]), linear), size)
+    except FramestyleError:
+        return None
 
 
 # --- the render as a whole --------------------------------------------------------------------
