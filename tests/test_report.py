@@ -185,9 +185,10 @@ def test_framestyle_report_regenerates_an_interrupted_render_and_a_farm_worker_r
     manifest = store.read_manifest(out)
     plan = pipeline.plan_render(small_clip, out, Settings.from_dict(manifest["settings"]),
                                 shot_file=Path(manifest["shot_list"]["file"]))
-    pipeline.render_shot(plan, 3)
+    pipeline.render_shot(plan, 3, check_flashes=True)  # as farm._shot_task calls it
     page = (out / store.REPORT).read_text()
     assert "20 / 20" in page and "shot_003_plot.png" in page
+    assert 'Flash check of this shot: render <span class="pass">pass</span>' in page  # the worker's shot check
 
 
 def test_a_render_without_temporal_consistency_is_measured_on_its_delivered_frames(small_clip, tmp_path):
