@@ -74,7 +74,7 @@ def _status(data: PageData) -> str:
         return ('<section><h2>Status</h2><p>No render in this folder yet: a preview only. '
                 '<code>framestyle stylise</code> with the same <code>--out</code> starts the render.</p></section>')
     share = status.frames_done / status.frames_total if status.frames_total else 0.0
-    elapsed = status.elapsed(data.updated)
+    elapsed = status.elapsed
     if status.complete:
         eta, eta_note = "done", f"finished {_clock(status.last_finished)}" if status.last_finished else ""
     elif status.eta_seconds is None:
@@ -86,7 +86,7 @@ def _status(data: PageData) -> str:
         ("frames", f"{status.frames_done} / {status.frames_total}", f"{share:.0%}"),
         ("shots done", f"{status.shots_done} / {status.shots_total}", ""),
         ("elapsed", _duration(elapsed) if elapsed is not None else "—",
-         f"since {_clock(status.started)}" if status.started else ""),
+         f"from {_clock(status.started)} to the last frame" if status.started else ""),
         ("time left", eta, eta_note),
         ("solver time", _duration(status.render_seconds), last),
     ]
