@@ -16,10 +16,13 @@ Layout of an output folder::
         locks/shot_NNN.lock       held while a process renders shot NNN
         locks/preview.lock        held while a preview writes preview/
         locks/report.lock         held while a process refreshes the report
-        shots/shot_NNN.json       shot NNN's record: its finished frames and their figures
+        shots/shot_NNN.json       shot NNN's record: its finished frames and their figures (and,
+                                  in a multi-pass render, how many passes each other frame has had)
         flashes/{render,source}.json   flash check of the whole render's frames and its source
         flashes/shot_NNN/{render,source}.json   the same for shot NNN alone (a farm's progress)
-        state/shot_NNN/*.npy      full-precision stylised frames the temporal losses still need
+        state/shot_NNN/*.npy      full-precision stylised frames the temporal losses or a later pass
+                                  still need, one layer per pass (pass1_0000012.npy ...), and the
+                                  working frames of a multi-pass shot (content_0000012.npy ...)
         restarting                marks a restart in progress (finished by the next run)
         trash/                    what a restart is discarding
 
@@ -413,16 +416,39 @@ class ShotStore:
     def finish_frame(self, name: str, entry: dict) -> None:
         """Record a written frame as finished, with its figures (iterations, seconds ...)."""
         self.record["frames"][name] = entry
+        self.record.get("pending", {}).pop(name, None)
         atomic.write_json(self._record_path, self.record)
 
-    def save_state(self, frame: int, image: np.ndarray) -> None:
-        """Keep the full-precision stylised ``frame`` (H, W, 3 float32) for the temporal losses."""
-        with atomic.atomic_path(self._state / f"{frame:07d}.npy") as tmp:
+    def pending(self) -> dict[str, dict]:
+        """Frames of a multi-pass render not finished yet: name → how many passes they have had
+        (``"passes"``) and what those cost (iterations, seconds ...)."""
+        return self.record.get("pending", {})
+
+    def note_pass(self, name: str, entry: dict) -> None:
+        """Record that an unfinished frame has had one more pass (``entry["passes"]``, its figures)."""
+        self.record.setdefault("pending", {})[name] = entry
+        atomic.write_json(self._record_path, self.record)
+
+    def restart_passes(self, names: Sequence[str]) -> None:
+        """Count every frame of the shot, finished or not, as having had no pass: the shot is
+        solved again from its first pass (finished frames stay as they are)."""
+        self.record["pending"] = {name: {"passes": 0} for name in names}
+        atomic.write_json(self._record_path, self.record)
+
+    def forget_passes(self) -> None:
+        """Drop the pass counts once the shot is done."""
+        if self.record.pop("pending", None) is not None:
+            atomic.write_json(self._record_path, self.record)
+
+    def save_state(self, frame: int, image: np.ndarray, layer: str = "pass1") -> None:
+        """Keep full-precision ``frame`` (H, W, 3 float32) of ``layer``: a pass's stylised frame
+        (``"pass1"``, ``"pass2"`` ...) or the working frame (``"content"``)."""
+        with atomic.atomic_path(self._state_path(frame, layer)) as tmp:
             np.save(tmp, image.astype(np.float32), allow_pickle=False)
 
-    def load_state(self, frame: int) -> np.ndarray | None:
-        """The kept stylised ``frame``, or None if it is not kept or does not read back."""
-        path = self._state / f"{frame:07d}.npy"
+    def load_state(self, frame: int, layer: str = "pass1") -> np.ndarray | None:
+        """The kept ``frame`` of ``layer``, or None if it is not kept or does not read back."""
+        path = self._state_path(frame, layer)
         try:
             return np.load(path, allow_pickle=False)
         except FileNotFoundError:
@@ -435,14 +461,23 @@ class ShotStore:
         """Whether any state of the shot is kept."""
         return self._state.exists()
 
-    def prune_state(self, keep_from: int | None) -> None:
-        """Delete kept frames older than ``keep_from`` (all of the shot's state if None)."""
+    def drop_state(self, frame: int, layer: str) -> None:
+        """Delete the kept ``frame`` of ``layer``, if kept."""
+        path = self._state_path(frame, layer)
+        if path.exists():
+            atomic.remove(path)
+
+    def prune_state(self, keep_from: int | None, layer: str = "pass1") -> None:
+        """Delete kept frames of ``layer`` older than ``keep_from`` (all of the shot's state if None)."""
         if keep_from is None:
             atomic.remove(self._state)
             return
-        for path in self._state.glob("*.npy"):
-            if int(path.stem) < keep_from:
+        for path in self._state.glob(f"{layer}_*.npy"):
+            if int(path.stem.rsplit("_", 1)[1]) < keep_from:
                 atomic.remove(path)
+
+    def _state_path(self, frame: int, layer: str) -> Path:
+        return self._state / f"{layer}_{frame:07d}.npy"
 
 
 class PreviewStore:

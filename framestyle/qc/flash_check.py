@@ -238,7 +238,8 @@ def preview_warning(source: Mapping) -> str | None:
 
 
 def _percent(fraction: float) -> str:
-    return f"{100 * fraction:.0f} %"
+    """``"56 %"``; a share under 1 % keeps a decimal, so a single flashing block is not "0 %"."""
+    return f"{100 * fraction:.0f} %" if fraction >= 0.01 or fraction == 0 else f"{100 * fraction:.1f} %"
 
 
 def _failing_seconds(report: Mapping, most: int = 3) -> list[Mapping]:
