@@ -114,16 +114,17 @@ def test_the_figures_match_the_shot_records_and_the_stability_measure(rendered, 
 
 
 def test_the_status_counts_frames_and_shots_and_paces_the_time_left_on_the_last_frames():
+    start = 1767225600.0  # 2026-01-01 00:00:00 UTC in seconds since the epoch (from memory)
     manifest = {"created": "2026-01-01T00:00:00+0000",
                 "shots": [{"shot": 1, "start": 0, "end": 9}, {"shot": 2, "start": 10, "end": 29}]}
-    frames = {f"f{i}": {"seconds": 3.0, "iterations": 5, "finished": 1000.0 + 2 * i} for i in range(11)}
+    frames = {f"f{i}": {"seconds": 3.0, "iterations": 5, "finished": start + 100 + 2 * i} for i in range(11)}
     records = {1: {"frames": {k: v for k, v in frames.items() if k != "f10"}}, 2: {"frames": {"f10": frames["f10"]}}}
     status = render_status(manifest, records)
     assert (status.frames_done, status.frames_total, status.shots_done, status.shots_total) == (11, 30, 1, 2)
     assert status.render_seconds == 33.0
     # 11 frames finished 2 s apart: 2 s a frame, 19 frames left → 38 s (worked by hand)
     assert status.seconds_per_frame == 2.0 and status.eta_seconds == 38.0
-    assert status.last_finished == 1020.0 and status.started == 1767225600.0  # 2026-01-01 UTC, from memory
+    assert status.started == start and status.elapsed == 120.0  # to the last frame, finished at +120 s
     older = {n: {"frames": {k: {"seconds": v["seconds"], "iterations": 5} for k, v in r["frames"].items()}}
              for n, r in records.items()}  # records of a render before finishing times were kept
     assert render_status(manifest, older).eta_seconds == 19 * 3.0  # one process's mean pace
@@ -185,9 +186,10 @@ def test_framestyle_report_regenerates_an_interrupted_render_and_a_farm_worker_r
     manifest = store.read_manifest(out)
     plan = pipeline.plan_render(small_clip, out, Settings.from_dict(manifest["settings"]),
                                 shot_file=Path(manifest["shot_list"]["file"]))
-    pipeline.render_shot(plan, 3)
+    pipeline.render_shot(plan, 3, check_flashes=True)  # as farm._shot_task calls it
     page = (out / store.REPORT).read_text()
     assert "20 / 20" in page and "shot_003_plot.png" in page
+    assert 'Flash check of this shot: render <span class="pass">pass</span>' in page  # the worker's shot check
 
 
 def test_a_render_without_temporal_consistency_is_measured_on_its_delivered_frames(small_clip, tmp_path):

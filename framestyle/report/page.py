@@ -74,7 +74,7 @@ def _status(data: PageData) -> str:
         return ('<section><h2>Status</h2><p>No render in this folder yet: a preview only. '
                 '<code>framestyle stylise</code> with the same <code>--out</code> starts the render.</p></section>')
     share = status.frames_done / status.frames_total if status.frames_total else 0.0
-    elapsed = status.elapsed(data.updated)
+    elapsed = status.elapsed
     if status.complete:
         eta, eta_note = "done", f"finished {_clock(status.last_finished)}" if status.last_finished else ""
     elif status.eta_seconds is None:
@@ -86,7 +86,7 @@ def _status(data: PageData) -> str:
         ("frames", f"{status.frames_done} / {status.frames_total}", f"{share:.0%}"),
         ("shots done", f"{status.shots_done} / {status.shots_total}", ""),
         ("elapsed", _duration(elapsed) if elapsed is not None else "—",
-         f"since {_clock(status.started)}" if status.started else ""),
+         f"from {_clock(status.started)} to the last frame" if status.started else ""),
         ("time left", eta, eta_note),
         ("solver time", _duration(status.render_seconds), last),
     ]
@@ -95,7 +95,7 @@ def _status(data: PageData) -> str:
             + "".join(f'<div class="card"><div class="label">{_e(label)}</div><div class="value">{_e(value)}</div>'
                       f'<div class="note">{_e(note)}</div></div>' for label, value, note in cards)
             + f'</div><div class="bar" title="{share:.0%} of the frames"><span style="width: {100 * share:.1f}%"></span></div>'
-            + (f"<p>Made: </p><ul>{videos}</ul>" if videos else "") + "</section>")
+            + (f"<p>Videos of the frames:</p><ul>{videos}</ul>" if videos else "") + "</section>")
 
 
 def _state(view: ShotView) -> str:
@@ -110,6 +110,7 @@ def _state(view: ShotView) -> str:
 def _shots_table(data: PageData) -> str:
     if not data.shots:
         return ""
+    checked = any(view.flashes for view in data.shots)  # shots are checked one by one on a farm
     rows = []
     for view in data.shots:
         s = view.series
@@ -120,11 +121,12 @@ def _shots_table(data: PageData) -> str:
             f'<td class="num">{_duration(s.render_seconds) if s else "—"}</td>'
             f'<td class="num">{_number(s.iterations_per_frame, ".1f") if s else "—"}</td>'
             f'<td class="num">{_number(render, ".5f")}</td><td class="num">{_number(source, ".5f")}</td>'
-            f'<td>{_verdict(view.flashes.get("render"))}</td></tr>')
+            + (f'<td>{_verdict(view.flashes.get("render"))}</td>' if checked else "") + "</tr>")
     return ('<section><h2>Shots</h2><table><thead><tr><th>shot</th><th>frames</th><th>timecode</th><th>state</th>'
             '<th class="num">solver time</th><th class="num">iterations / frame</th>'
-            '<th class="num">warping error</th><th class="num">source\'s own</th><th>flash check</th></tr></thead>'
-            "<tbody>" + "".join(rows) + "</tbody></table></section>")
+            '<th class="num">warping error</th><th class="num">source\'s own</th>'
+            + ("<th>flash check</th>" if checked else "") + "</tr></thead><tbody>" + "".join(rows)
+            + "</tbody></table></section>")
 
 
 def _look(data: PageData) -> str:

@@ -40,12 +40,13 @@ class RenderStatus:
     def complete(self) -> bool:
         return self.frames_done == self.frames_total
 
-    def elapsed(self, now: float) -> float | None:
-        """Wall-clock seconds since the render was created, up to its last frame once complete."""
-        if self.started is None:
+    @property
+    def elapsed(self) -> float | None:
+        """Wall-clock seconds from the render's creation to its last finished frame (so an
+        interrupted render's pause is not counted as time spent after its last frame)."""
+        if self.started is None or self.last_finished is None:
             return None
-        end = self.last_finished if self.complete and self.last_finished is not None else now
-        return max(0.0, end - self.started)
+        return max(0.0, self.last_finished - self.started)
 
 
 @dataclass(frozen=True)
