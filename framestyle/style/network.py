@@ -32,6 +32,7 @@ from typing import Sequence
 import torch
 import torch.nn.functional as F
 from torch import nn
+from torch.nn.utils.fusion import fuse_conv_bn_weights
 
 from framestyle.errors import FramestyleError
 
@@ -123,7 +124,15 @@ class _BlurDown(nn.Module):
 
 
 class _ConvBN(nn.Module):
-    """Convolution + batch norm (+ ReLU6); with ``blur``, stride 2 runs as stride 1 + BlurPool."""
+    """Convolution + batch norm (+ ReLU6); with ``blur``, stride 2 runs as stride 1 + BlurPool.
+
+    The frozen batch norm is an affine map per channel, so after the weights are loaded
+    :meth:`fold` merges it into the convolution's weight and bias (batch-norm folding, as in
+    Jacob et al. 2018, "Quantization and Training of Neural Networks for Efficient
+    Integer-Arithmetic-Only Inference", Sec. 3.2; torch's ``fuse_conv_bn_weights``): one
+    operation and one saved activation instead of two, with the same result up to rounding.
+    ``conv`` and ``bn`` keep the checkpoint's parameters.
+    """
 
     def __init__(self, cin: int, cout: int, kernel: int, stride: int, groups: int = 1,
                  act: bool = True, blur: bool = True):
@@ -135,8 +144,19 @@ class _ConvBN(nn.Module):
         self.act = act
         self.down = _BlurDown(cout) if stride == 2 and blur else None
 
+    def fold(self) -> None:
+        """Set the folded weight (cout, cin/groups, k, k) and bias (cout,) from conv and bn."""
+        weight, bias = fuse_conv_bn_weights(self.conv.weight, None, self.bn.running_mean, self.bn.running_var,
+                                            self.bn.eps, self.bn.weight, self.bn.bias)
+        self.register_buffer("weight", weight.detach(), persistent=False)
+        self.register_buffer("bias", bias.detach(), persistent=False)
+
     def forward(self, x: torch.Tensor) -> torch.Tensor:
-        x = self.bn(self.conv(_same_pad(x, self.kernel, self.stride)))
+        if self.stride == 1:  # odd kernel at stride 1: "same" padding is symmetric, done inside the conv
+            x = F.conv2d(x, self.weight, self.bias, padding=self.kernel // 2, groups=self.conv.groups)
+        else:
+            x = F.conv2d(_same_pad(x, self.kernel, self.stride), self.weight, self.bias, stride=self.stride,
+                         groups=self.conv.groups)
         if self.act:
             x = F.relu6(x)
         return x if self.down is None else self.down(x)
@@ -202,6 +222,9 @@ class EfficientNetLite0(FeatureNet):
             self.load_state_dict(remap_lite0_keys(_load_state_dict(path, self.name)))
         except RuntimeError as exc:
             raise FramestyleError(f"{path}: not EfficientNet-Lite0 weights ({str(exc).splitlines()[1].strip()})")
+        for module in self.modules():
+            if isinstance(module, _ConvBN):
+                module.fold()
         self.eval().requires_grad_(False)
 
     def forward(self, image: torch.Tensor, layers: Sequence[str]) -> dict[str, torch.Tensor]:
