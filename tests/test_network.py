@@ -100,3 +100,27 @@ def test_a_file_that_is_not_weights_is_a_user_error(tmp_path):
     bad.write_bytes(b"not a checkpoint")
     with pytest.raises(FramestyleError, match="weights.pth"):
         load_network("efficientnet-lite0", bad)
+
+
+def test_folded_batch_norm_gives_the_convolution_then_batch_norm_of_the_checkpoint():
+    # Reference: torch's own Conv2d followed by BatchNorm2d in eval mode (running statistics),
+    # which is what the checkpoint's layer computes before folding.
+    net = load_network("efficientnet-lite0")
+    x = torch.rand(1, 32, 40, 56)
+    layer = net.blocks[0].depthwise  # 32 channels, 3×3 depthwise, ReLU6, stride 1
+    with torch.no_grad():
+        expected = F.relu6(layer.bn(layer.conv(F.pad(x, (1, 1, 1, 1)))))
+        torch.testing.assert_close(layer(x), expected, rtol=1e-5, atol=1e-5)
+
+
+@pytest.mark.parametrize("stride, groups, kernel", [(2, 32, 3), (1, 32, 5), (1, 1, 1)])
+def test_frozen_convolution_gradient_equals_autograds(stride, groups, kernel):
+    # Reference: autograd's gradient of F.conv2d with respect to its input.
+    from framestyle.style.network import _conv
+
+    weight = torch.rand(32, 32 // groups, kernel, kernel)
+    x = torch.rand(1, 32, 23, 31, requires_grad=True)
+    grad = torch.rand_like(F.conv2d(x, weight, stride=stride, padding=kernel // 2, groups=groups))
+    (expected,) = torch.autograd.grad(F.conv2d(x, weight, stride=stride, padding=kernel // 2, groups=groups), x, grad)
+    (got,) = torch.autograd.grad(_conv(x, weight, stride=stride, padding=kernel // 2, groups=groups), x, grad)
+    torch.testing.assert_close(got, expected)

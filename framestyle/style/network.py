@@ -32,10 +32,11 @@ from typing import Sequence
 import torch
 import torch.nn.functional as F
 from torch import nn
+from torch.nn.utils.fusion import fuse_conv_bn_weights
 
 from framestyle.errors import FramestyleError
 
-from framestyle.settings import NETWORKS
+from framestyle.settings import DEVICES, NETWORKS
 
 # EfficientNet-B0 stage table (Tan & Le 2019, Table 1), one row per block:
 # (expansion ratio, depthwise kernel, stride, output channels). Lite0 keeps it unchanged.
@@ -96,6 +97,11 @@ class FeatureNet(nn.Module):
         """Activations of ``layers`` for ``image`` of shape (B, 3, H, W) in [0, 1] RGB."""
         raise NotImplementedError  # each network defines it
 
+    @property
+    def device(self) -> torch.device:
+        """Where the network's weights are (its input must be there too)."""
+        return next(self.parameters()).device
+
 
 def _same_pad(x: torch.Tensor, kernel: int, stride: int) -> torch.Tensor:
     """TensorFlow "SAME" padding: output size ceil(n / stride), extra pixel bottom/right."""
@@ -105,6 +111,47 @@ def _same_pad(x: torch.Tensor, kernel: int, stride: int) -> torch.Tensor:
     if pad_h == pad_w == 0:
         return x  # 1×1 convolutions: skip a needless copy
     return F.pad(x, (pad_w // 2, pad_w - pad_w // 2, pad_h // 2, pad_h - pad_h // 2))
+
+
+class _FrozenConv(torch.autograd.Function):
+    """2-D convolution with fixed weights whose backward pass keeps only the weights.
+
+    Autograd's own convolution keeps its input for the weights' gradient. The weights here
+    are frozen, so only the input's gradient is wanted (the transposed convolution of the
+    output's gradient) and the input is freed after the forward pass: at HD sizes that is a
+    third of the memory of a solver iteration. The backward pass hands the convolution an
+    uninitialised stand-in of the input's shape, which it never reads (an expanded one-element
+    tensor, as ``torch.nn.grad.conv2d_input`` uses, makes depthwise convolutions 4× slower).
+    Under autocast the convolution runs in the autocast dtype, as ``F.conv2d`` would.
+    """
+
+    @staticmethod
+    def forward(ctx, x: torch.Tensor, weight: torch.Tensor, bias: torch.Tensor | None, stride: int, padding: int,
+                groups: int) -> torch.Tensor:
+        kind = x.device.type
+        dtype = torch.get_autocast_dtype(kind) if torch.is_autocast_enabled(kind) else x.dtype
+        weight, bias = weight.to(dtype), None if bias is None else bias.to(dtype)
+        ctx.save_for_backward(weight)
+        ctx.shape, ctx.stride, ctx.padding, ctx.groups = x.shape, stride, padding, groups
+        with torch.autocast(kind, enabled=False):
+            return F.conv2d(x.to(dtype), weight, bias, stride, padding, 1, groups)
+
+    @staticmethod
+    def backward(ctx, grad: torch.Tensor):
+        (weight,) = ctx.saved_tensors
+        stand_in = weight.new_empty(ctx.shape)
+        dx = torch.ops.aten.convolution_backward(
+            grad.to(weight.dtype), stand_in, weight, None, (ctx.stride,) * 2, (ctx.padding,) * 2, (1, 1), False,
+            (0, 0), ctx.groups, (True, False, False))[0]
+        return dx, None, None, None, None, None
+
+
+def _conv(x: torch.Tensor, weight: torch.Tensor, bias: torch.Tensor | None = None, stride: int = 1,
+          padding: int = 0, groups: int = 1) -> torch.Tensor:
+    """``F.conv2d`` with frozen weights; keeps nothing but the weights for the backward pass."""
+    if not x.requires_grad:
+        return F.conv2d(x, weight, bias, stride, padding, 1, groups)
+    return _FrozenConv.apply(x, weight, bias, stride, padding, groups)
 
 
 class _BlurDown(nn.Module):
@@ -119,11 +166,19 @@ class _BlurDown(nn.Module):
     def forward(self, x: torch.Tensor) -> torch.Tensor:
         # Output size ceil(n / 2), matching the stride-2 "same" convolution it replaces.
         x = F.pad(x, (1, 1, 1, 1), mode="replicate")
-        return F.conv2d(x, self.kernel, stride=2, groups=x.shape[1])
+        return _conv(x, self.kernel, stride=2, groups=x.shape[1])
 
 
 class _ConvBN(nn.Module):
-    """Convolution + batch norm (+ ReLU6); with ``blur``, stride 2 runs as stride 1 + BlurPool."""
+    """Convolution + batch norm (+ ReLU6); with ``blur``, stride 2 runs as stride 1 + BlurPool.
+
+    The frozen batch norm is an affine map per channel, so after the weights are loaded
+    :meth:`fold` merges it into the convolution's weight and bias (batch-norm folding, as in
+    Jacob et al. 2018, "Quantization and Training of Neural Networks for Efficient
+    Integer-Arithmetic-Only Inference", Sec. 3.2; torch's ``fuse_conv_bn_weights``): one
+    operation and one saved activation instead of two, with the same result up to rounding.
+    ``conv`` and ``bn`` keep the checkpoint's parameters.
+    """
 
     def __init__(self, cin: int, cout: int, kernel: int, stride: int, groups: int = 1,
                  act: bool = True, blur: bool = True):
@@ -135,8 +190,19 @@ class _ConvBN(nn.Module):
         self.act = act
         self.down = _BlurDown(cout) if stride == 2 and blur else None
 
+    def fold(self) -> None:
+        """Set the folded weight (cout, cin/groups, k, k) and bias (cout,) from conv and bn."""
+        weight, bias = fuse_conv_bn_weights(self.conv.weight, None, self.bn.running_mean, self.bn.running_var,
+                                            self.bn.eps, self.bn.weight, self.bn.bias)
+        self.register_buffer("weight", weight.detach(), persistent=False)
+        self.register_buffer("bias", bias.detach(), persistent=False)
+
     def forward(self, x: torch.Tensor) -> torch.Tensor:
-        x = self.bn(self.conv(_same_pad(x, self.kernel, self.stride)))
+        if self.stride == 1:  # odd kernel at stride 1: "same" padding is symmetric, done inside the conv
+            x = _conv(x, self.weight, self.bias, padding=self.kernel // 2, groups=self.conv.groups)
+        else:
+            x = _conv(_same_pad(x, self.kernel, self.stride), self.weight, self.bias, stride=self.stride,
+                      groups=self.conv.groups)
         if self.act:
             x = F.relu6(x)
         return x if self.down is None else self.down(x)
@@ -202,6 +268,9 @@ class EfficientNetLite0(FeatureNet):
             self.load_state_dict(remap_lite0_keys(_load_state_dict(path, self.name)))
         except RuntimeError as exc:
             raise FramestyleError(f"{path}: not EfficientNet-Lite0 weights ({str(exc).splitlines()[1].strip()})")
+        for module in self.modules():
+            if isinstance(module, _ConvBN):
+                module.fold()
         self.eval().requires_grad_(False)
 
     def forward(self, image: torch.Tensor, layers: Sequence[str]) -> dict[str, torch.Tensor]:
@@ -336,8 +405,8 @@ def _load_state_dict(path: str | Path, network: str) -> dict[str, torch.Tensor]:
     return sd
 
 
-def load_network(name: str, weights: str | Path | None = None) -> FeatureNet:
-    """Build the named perceptual network with frozen ImageNet weights.
+def load_network(name: str, weights: str | Path | None = None, device: str = "cpu") -> FeatureNet:
+    """Build the named perceptual network with frozen ImageNet weights, on ``device``.
 
     Parameters
     ----------
@@ -345,14 +414,32 @@ def load_network(name: str, weights: str | Path | None = None) -> FeatureNet:
         One of :data:`NETWORKS`.
     weights : path, optional
         A state_dict file to use instead of the default location.
+    device : str
+        One of :data:`DEVICES` (see :func:`resolve_device`).
 
     Raises
     ------
     FramestyleError
-        Unknown name, or weights missing or unreadable.
+        Unknown name, weights missing or unreadable, or the device not available.
     """
+    where = resolve_device(device)
     if name == "efficientnet-lite0":
-        return EfficientNetLite0(weights)
+        return EfficientNetLite0(weights).to(where)
     if name == "vgg19":
-        return VGG19(weights)
+        return VGG19(weights).to(where)
     raise FramestyleError(f"unknown network {name!r}; choose one of: {', '.join(NETWORKS)}")
+
+
+def resolve_device(device: str) -> torch.device:
+    """The torch device for one of :data:`DEVICES`: "auto" is CUDA if torch sees a CUDA GPU,
+    else Apple's MPS if available, else the CPU; a named GPU that torch cannot see is a user
+    error."""
+    available = {"cuda": torch.cuda.is_available(), "mps": torch.backends.mps.is_available()}
+    if device == "auto":
+        return torch.device(next((name for name, ok in available.items() if ok), "cpu"))
+    if device not in DEVICES:
+        raise FramestyleError(f"unknown device {device!r}; choose one of: {', '.join(DEVICES)}")
+    if device != "cpu" and not available[device]:
+        raise FramestyleError(f"--device {device}: torch sees no {device.upper()} device on this machine "
+                              f"(torch {torch.__version__}); use --device auto or cpu")
+    return torch.device(device)
