@@ -24,6 +24,7 @@ from framestyle.finish.compose import COLOURS
 from framestyle.motion import FLOW_PRESETS, WARP_FILTERS
 
 NETWORKS = ("efficientnet-lite0", "vgg19")
+DEVICES = ("auto", "cpu", "cuda", "mps")  # where the network runs (style.network.resolve_device)
 """Perceptual networks (see :mod:`framestyle.style.network`)."""
 
 _NonNegative = Annotated[float, Field(ge=0)]
