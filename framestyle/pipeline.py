@@ -333,8 +333,10 @@ def render_shot(plan: Plan, index: int, progress: Progress = no_progress, wait: 
         todo = [i for i in range(shot.start, shot.end + 1) if names[i] not in finished]
         if todo:
             _ShotRender(plan, work, settings, shot).run(todo, progress)
-        elif work.has_state():  # a process killed as it finished the shot left its state
-            work.prune_state(None)
+        else:  # a process killed as it finished the shot may have left its state and pass counts
+            if work.has_state():
+                work.prune_state(None)
+            work.forget_passes()
         flashes = None
         if check_flashes and (todo or not all(work.store.flash_check(kind, index) for kind in FLASH_KINDS)):
             flashes = record_shot_check(work.store, plan.source, names, plan.timecode, shot)
