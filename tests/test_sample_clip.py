@@ -100,12 +100,12 @@ def test_make_sample_reproduces_the_committed_files_exactly(tmp_path):
     assert made == committed
     for rel in committed:  # decoded pixels, so a different zlib build cannot break the check
         # OpenCV picks its SIMD code by CPU, and its interpolation rounds differently between
-        # machines by one level in a handful of pixels (measured: 3 of 172 800 values of one
-        # frame); anything more than that is a change of the generator.
+        # machines by one level in a few pixels (measured on two machines: up to 19 of a frame's
+        # 172 800 values); a change of the generator moves far more, by more.
         made_rgb, committed_rgb = _read_rgb(tmp_path / rel).astype(int), _read_rgb(SAMPLE / rel).astype(int)
         assert made_rgb.shape == committed_rgb.shape, rel
         difference = np.abs(made_rgb - committed_rgb)
-        assert difference.max() <= 1 and np.count_nonzero(difference) <= 1e-4 * difference.size, rel
+        assert difference.max() <= 1 and np.count_nonzero(difference) <= 1e-3 * difference.size, rel
 
 
 def test_the_ball_in_shot_2_passes_behind_the_foreground_post(monkeypatch):
