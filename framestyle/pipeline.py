@@ -6,9 +6,12 @@ starting image and temporal targets → solver → delivered frame → output st
 Each shot starts fresh; within a shot each frame starts from the previous stylised frame
 warped along the optical flow and is tied to earlier frames by the short- and long-term
 temporal losses (Ruder, Dosovitskiy & Brox 2016, "Artistic style transfer for videos").
-After every frame the store records it, so re-running the same command on the same output
-folder continues exactly where a killed render stopped. A preview is the same pipeline in
-another mode: a few frames of each shot, each stylised on its own, laid out on contact sheets.
+With several passes (the same paper's multi-pass algorithm) the shot is then gone over
+backward and forward in turn, and its frames are delivered after the last pass. After every
+frame (and every pass of a frame) the store records it, so re-running the same command on
+the same output folder continues exactly where a killed render stopped. A preview is the
+same pipeline in another mode: a few frames of each shot, each stylised on its own, laid out
+on contact sheets; the stroke-detail measure renders its reference frames the same way.
 """
 
 from __future__ import annotations
