@@ -43,7 +43,7 @@ from framestyle.store import (Store, check_resume, environment_changes, input_fi
                               shot_list_fingerprint)
 from framestyle.style.look import Look, build_look
 from framestyle.style.network import FeatureNet, load_network
-from framestyle.style.solver import SolverParams, SolveStats, solve, solve_coarse_to_fine
+from framestyle.style.solver import SolverParams, SolveStats, solve_coarse_to_fine
 from framestyle.timecode import ClipTimecode
 from framestyle.temporal import fresh_problem, start_noise, temporal_problem
 from framestyle.working import Frame, deliver, prepare_frame, working_size
@@ -160,7 +160,7 @@ def plan_render(
         manifest = store.manifest()
         if manifest is not None:
             check_resume(manifest, settings, inputs, None if keep_shot_list else shot_list, store.out)
-            for change in environment_changes(manifest, environment()):
+            for change in environment_changes(manifest, environment(net)):
                 progress("warning", message=f"resumed under {change}: frames may differ in the last bits "
                                             f"from an uninterrupted render")
             shot_list_ = tuple(Shot(s["shot"], s["start"], s["end"]) for s in manifest["shots"])
@@ -170,7 +170,7 @@ def plan_render(
             store.log(f"frames numbered {source.numbers[0]}-{source.numbers[-1]}, first frame at timecode "
                       f"{clip_timecode(source, settings, shot_file).label(0)}")
             store.create({"settings": settings.to_dict(), "inputs": inputs, "shot_list": shot_list,
-                          "shots": [s.to_dict() for s in shot_list_], "environment": environment(),
+                          "shots": [s.to_dict() for s in shot_list_], "environment": environment(net),
                           "created": time.strftime("%Y-%m-%dT%H:%M:%S%z")})
             store.log(f"new render of {source.path}, settings {settings.digest()}, "
                       f"shots {', '.join(f'{s.index}:{frame_range(s, source.numbers)}' for s in shot_list_)}")
@@ -208,11 +208,12 @@ def finish_render(plan: Plan, progress: Progress = no_progress) -> RenderResult:
     return result
 
 
-def environment() -> dict:
-    """Library versions and thread count a render runs under (recorded; a resume compares)."""
+def environment(net: FeatureNet) -> dict:
+    """Library versions, thread count and the network's device a render runs under (recorded;
+    a resume compares)."""
     versions = {name: _version(name) for name in ("framestyle", "torch", "numpy", "opencv-python-headless",
                                                    "openimageio")}
-    return {**versions, "torch threads": torch.get_num_threads()}
+    return {**versions, "torch threads": torch.get_num_threads(), "device": str(net.device)}
 
 
 def _version(package: str) -> str | None:
@@ -233,7 +234,7 @@ def open_render(input_path: Path, out: Path, settings: Settings) -> tuple[io.Fra
 
 def check_render(source: io.FrameSource, settings: Settings) -> FeatureNet:
     """Check every setting (and every shot's overrides) against ``source``; return the network."""
-    net = network(settings.network, settings.network_weights)
+    net = network(settings.network, settings.network_weights, settings.device)
     clip_timecode(source, settings)
     if settings.prores and source.linear:
         raise FramestyleError(f"{source.path}: the ProRes hand-off is made from display-referred frames; "
@@ -241,8 +242,9 @@ def check_render(source: io.FrameSource, settings: Settings) -> FeatureNet:
     first = io.read_frame(source, 0)
     variants = [settings] + [settings.for_shot(int(n)) for n in settings.shot_looks]
     for variant in variants:
-        if (variant.network, variant.network_weights) != (settings.network, settings.network_weights):
-            raise FramestyleError("the network cannot change from shot to shot")
+        if (variant.network, variant.network_weights, variant.device) != (settings.network, settings.network_weights,
+                                                                          settings.device):
+            raise FramestyleError("the network and its device cannot change from shot to shot")
         size = working_size(source.width, source.height, variant.width, net.min_side)
         frame = prepare_frame(first, size, variant, source.linear)
         build_look(net, variant, frame.display).targets(size)
@@ -251,9 +253,9 @@ def check_render(source: io.FrameSource, settings: Settings) -> FeatureNet:
 
 
 @functools.lru_cache(maxsize=2)
-def network(name: str, weights: str | None) -> FeatureNet:
-    """The perceptual network, loaded once per process."""
-    return load_network(name, weights)
+def network(name: str, weights: str | None, device: str) -> FeatureNet:
+    """The perceptual network on its device, loaded once per process."""
+    return load_network(name, weights, device)
 
 
 def find_shots(source: io.FrameSource, settings: Settings, shot_file: Path | None) -> list[Shot]:
@@ -288,7 +290,7 @@ def solver_params(settings: Settings) -> SolverParams:
         style_weight=settings.style_weight, content_weight=settings.content_weight,
         tv_weight=settings.tv_weight, temporal_weight=settings.temporal_weight,
         iterations=settings.iterations, tolerance=settings.tolerance, levels=settings.levels,
-        content_layer=settings.content_layer,
+        warm_levels=settings.warm_levels, content_layer=settings.content_layer, precision=settings.precision,
     )
 
 
@@ -336,7 +338,7 @@ class _ShotRender:
     def __init__(self, plan: Plan, work, settings: Settings, shot: Shot):
         self.plan, self.work, self.settings, self.shot = plan, work, settings, shot
         self.source, self.names = plan.source, plan.names
-        self.net = network(settings.network, settings.network_weights)
+        self.net = network(settings.network, settings.network_weights, settings.device)
         self.size = working_size(self.source.width, self.source.height, settings.width, self.net.min_side)
         self.params = solver_params(settings)
         self.offsets = sorted(settings.long_term) if settings.temporal else []
@@ -439,9 +441,8 @@ def stylise(
     (h, w, 3) float32 result in [0, 1], and the solver's statistics
     """
     noise = start_noise((1, 3, *content.shape[:2]), seed, index)
-    size = (content.shape[1], content.shape[0])
     if earlier:
-        image, stats = solve(look.net, temporal_problem(content, earlier, noise), look.targets(size), params)
+        image, stats = solve_coarse_to_fine(look.net, temporal_problem(content, earlier, noise), look.targets, params)
     else:
         anchor = dataclasses.replace(params, tolerance=params.tolerance / 2) if temporal else params
         image, stats = solve_coarse_to_fine(look.net, fresh_problem(content, noise), look.targets, anchor)

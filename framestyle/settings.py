@@ -25,6 +25,10 @@ from framestyle.motion import FLOW_PRESETS
 
 NETWORKS = ("efficientnet-lite0", "vgg19")
 """Perceptual networks (see :mod:`framestyle.style.network`)."""
+DEVICES = ("auto", "cpu", "cuda", "mps")
+"""Where the network runs; "auto" is a GPU torch sees (CUDA, then Apple's MPS), else the CPU."""
+PRECISIONS = ("float32", "bfloat16")
+"""The network's arithmetic; bfloat16 runs it under autocast, Gram matrices and losses stay float32."""
 
 _NonNegative = Annotated[float, Field(ge=0)]
 _Fraction = Annotated[float, Field(gt=0, le=1)]
@@ -46,6 +50,7 @@ class Settings:
     matte: str | None = None  # folder of matte frames (white = stylise), or "alpha" for the input's
     matte_softness: _NonNegative = 2.0  # soft matte edge: Gaussian sigma in source pixels
     levels: Annotated[int, Field(ge=1, le=6)] = 1  # coarse-to-fine levels: first solve at 1/2**(levels-1)
+    warm_levels: Annotated[int, Field(ge=1, le=6)] = 1  # the same for frames that start from the previous one
     shot_looks: dict[str, dict[str, Any]] = dataclasses.field(default_factory=dict)  # {"2": {"strength": 0.5}}
     # --- network and solver -----------------------------------------------------------------
     network: Literal[NETWORKS] = "efficientnet-lite0"  # perceptual network
@@ -57,6 +62,8 @@ class Settings:
     tolerance: _NonNegative = 0.01  # stop when the loss falls by less than this fraction in 10
     #                                 iterations (half of it for a shot's first frame)
     seed: Annotated[int, Field(ge=0)] = 0  # seeds the noise added where a frame starts from its content
+    device: Literal[DEVICES] = "auto"  # where the network runs (results differ from the CPU's in the last bits)
+    precision: Literal[PRECISIONS] = "float32"  # the network's arithmetic (bfloat16: autocast)
     # --- temporal stability (Ruder et al. 2016) -----------------------------------------------
     temporal: bool = True  # warm start from the warped previous frame + temporal losses
     temporal_weight: _NonNegative = 50.0  # weight of the (short- and long-term) temporal loss
