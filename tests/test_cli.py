@@ -7,6 +7,7 @@ import cv2
 import imageio_ffmpeg
 import numpy as np
 import pytest
+import torch
 from typer.testing import CliRunner
 
 from framestyle import store
@@ -281,3 +282,29 @@ def test_a_look_file_with_a_wrong_value_is_one_line_naming_the_file_and_the_key(
     code, _, err = _run("stylise", small_clip, "--look", look, "--out", tmp_path / "o")
     _one_line_error(code, err, "bad.toml")
     assert expected in err
+
+
+@pytest.fixture
+def no_gpu(monkeypatch):
+    """A machine where torch sees no GPU, whatever this one has (the tests run on the CPU)."""
+    monkeypatch.setattr(torch.cuda, "is_available", lambda: False)
+    monkeypatch.setattr(torch.backends.mps, "is_available", lambda: False)
+
+
+def test_device_cpu_gives_the_default_frames(small_clip, tmp_path, no_gpu):
+    # Without a GPU, --device auto is the CPU: the same frames, bit for bit.
+    for out, extra in (("default", []), ("cpu", ["--device", "cpu"])):
+        code, _, _ = _run("stylise", small_clip, "--style", STYLE, "--out", tmp_path / out, "-q", *FAST,
+                          "--shots", "2", *extra)
+        assert code == 0
+    names = sorted(p.name for p in (tmp_path / "default").glob("*.png"))
+    assert len(names) == 10
+    for name in names:
+        assert np.array_equal(cv2.imread(str(tmp_path / "default" / name)), cv2.imread(str(tmp_path / "cpu" / name)))
+
+
+def test_a_gpu_torch_cannot_see_and_unknown_device_or_precision_are_one_line_errors(small_clip, tmp_path, no_gpu):
+    for option, value in (("--device", "cuda"), ("--device", "mps"), ("--device", "tpu"), ("--precision", "float16")):
+        _one_line_error(*_run("stylise", small_clip, "--style", STYLE, "--out", tmp_path / "o", option, value)[::2],
+                        value)
+    assert not (tmp_path / "o").exists()
