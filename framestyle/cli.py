@@ -69,6 +69,9 @@ def _settings_options(
     no_temporal: Annotated[bool, typer.Option("--no-temporal", help="Stylise each frame on its own (flickers; for comparison).")] = False,
     temporal_weight: Annotated[Optional[float], typer.Option(help=f"Weight of the temporal consistency loss (default {Settings.temporal_weight}).")] = None,
     flow_preset: Annotated[Optional[str], typer.Option(help=f"Optical flow quality: ultrafast, fast or medium (default {Settings.flow_preset}).")] = None,
+    warp_filter: Annotated[Optional[str], typer.Option(help=f"Resampling of the frames carried along the optical flow: linear, cubic or lanczos (default {Settings.warp_filter}).")] = None,
+    passes: Annotated[Optional[int], typer.Option(help=f"Passes over each shot: after the first (forward), backward and forward in turn, each refining every frame from its neighbour; crisper and steadier, each pass costs time (default {Settings.passes}).")] = None,
+    pass_iterations: Annotated[Optional[int], typer.Option(help=f"Most solver iterations per frame in each pass after the first (default {Settings.pass_iterations}).")] = None,
     tolerance: Annotated[Optional[float], typer.Option(help=f"Stop a frame when the loss falls by less than this fraction per 10 iterations (default {Settings.tolerance}).")] = None,
     fps: Annotated[Optional[float], typer.Option(help="Frame rate of a folder of frames, for timecode and videos (default 24; a video has its own).")] = None,
     start_timecode: Annotated[Optional[str], typer.Option(help="Timecode of the first frame, HH:MM:SS:FF or HH:MM:SS;FF drop-frame (default: the video's own, else 00:00:00:00).")] = None,
@@ -136,6 +139,7 @@ class _Bars:
         self.quiet = quiet
         self.progress = None
         self.shot_task = None
+        self.in_passes = False
 
     def __call__(self, event: str, **info) -> None:
         if event == "warning":  # shown even with --quiet: it says something is off
@@ -163,11 +167,18 @@ class _Bars:
         elif event == "shot_start":
             if self.shot_task is not None:
                 self.progress.remove_task(self.shot_task)
+            self.in_passes = False
             self.shot_task = self.progress.add_task(f"shot {info['shot']}", total=info["frames"],
                                                     completed=info["done"])
+        elif event == "pass":  # a multi-pass shot: the shot's bar follows each pass
+            self.in_passes = True
+            self.progress.update(self.shot_task, description=f"shot {info['shot']} pass {info['pass_']}/{info['passes']}",
+                                 completed=info["done"])
+        elif event == "pass_frame":
+            self.progress.advance(self.shot_task)
         elif event == "frame":
             self.progress.advance(self.total)
-            if self.shot_task is not None:
+            if self.shot_task is not None and not self.in_passes:  # a pass's bar is full by delivery
                 self.progress.advance(self.shot_task)
         elif event == "farm":  # frames done across workers, and which shot each worker is on
             busy = ", ".join(f"shot {n}" for n in sorted(filter(None, info["workers"].values())))
@@ -301,6 +312,14 @@ def _report(result, quiet: bool) -> None:
     for video in result.videos:
         typer.echo(f"{'edit-ready ProRes' if video.suffix == '.mov' else 'preview video'} with the source's audio "
                    f"and timecode: {video}")
+    if result.flashes and not quiet:
+        from framestyle.qc.flash_check import CAUTION, report_lines
+        from framestyle.store import FLASH_PLOT
+
+        typer.echo(f"flash check (`framestyle flashes {result.out}` repeats it), timeline {result.out / FLASH_PLOT}:")
+        for label, report in result.flashes.items():
+            typer.echo("\n".join(report_lines(label, report)))
+        typer.echo(CAUTION)
     if not quiet:
         typer.echo(_CAUTION, err=True)
 
@@ -365,30 +384,106 @@ def shots_command(
         typer.echo(format_shot_table(found, source.numbers, timecode))
 
 
+@app.command("report")
+def report_command(
+    out: Annotated[Path, typer.Argument(help="A render's output folder (finished, running or interrupted), or a preview's.")],
+    source: Annotated[Optional[Path], typer.Option("--source", help="The footage, if it moved since the render started (default: where the render read it).")] = None,
+    every: Annotated[Optional[int], typer.Option(help="Thumbnails of every Nth frame of a shot (default: at most 6 a shot).")] = None,
+) -> None:
+    """Write OUT/report.html: status, settings and look, thumbnails and per-frame figures of each shot.
+
+    A render writes it too, when it starts and after every shot; this command draws it anew
+    for any output folder. Open it in a browser; it needs no network and no script.
+    """
+    from framestyle import io, store
+    from framestyle.report import refresh_report
+    from framestyle.shots.cutlists import clip_timecode
+
+    _check_path(out, "output folder")
+    if every is not None and every < 1:
+        _fail(f"--every {every}: must be 1 or more")
+    manifest = _run(store.read_manifest, out)
+    if manifest is None:
+        typer.echo(_run(refresh_report, out, redraw=True))
+        return
+    settings = _run(Settings.from_dict, manifest["settings"], str(out / store.MANIFEST))
+    footage = _check_path(source or Path(manifest["inputs"]["input"]), "source footage (give --source if it moved)")
+    clip = _run(io.open_source, footage)
+    frames = manifest["shots"][-1]["end"] + 1
+    if clip.count != frames:
+        _fail(f"{footage}: has {clip.count} frames, the render in {out} has {frames}")
+    shot_file = manifest["shot_list"]["file"]
+    shot_file = Path(shot_file) if shot_file and Path(shot_file).exists() else None
+    timecode = _run(clip_timecode, clip, settings, shot_file)
+    typer.echo(_run(refresh_report, out, clip, settings, timecode, redraw=True, every=every))
+
+
 @app.command("stability")
 def stability_command(
     out: Annotated[Path, typer.Argument(help="Folder of stylised frames (a render's --out).")],
     source: Annotated[Path, typer.Option("--source", help="The footage the render was made from.")],
     json_out: Annotated[bool, typer.Option("--json", help="Print the figures as JSON.")] = False,
     flow_preset: Annotated[str, typer.Option(help="Optical flow preset for the measurement.")] = "medium",
+    detail_frames: Annotated[int, typer.Option(help="Frames per shot rendered again on their own to measure the stroke detail the render keeps; 0 = none.")] = 3,
 ) -> None:
-    """Print the warping error (Lai et al. 2018) of a render per shot and overall; lower is steadier."""
+    """Print the warping error (Lai et al. 2018) of a render per shot and overall, lower is
+    steadier, and the stroke detail it keeps, 1 is as crisp as frames rendered on their own."""
     from framestyle.qc.stability import overall, stability
 
     _check_path(out, "render folder")
     _check_path(source, "source")
-    rows = _run(stability, out, source, flow_preset)
+    if detail_frames < 0:
+        _fail(f"--detail-frames {detail_frames}: must be 0 or more")
+    alone = None
+    if detail_frames:
+        from framestyle.pipeline import frames_alone
+
+        alone = functools.partial(frames_alone, out, source)
+    rows = _run(stability, out, source, flow_preset, alone, max(1, detail_frames))
     if json_out:
         typer.echo(json.dumps({
-            "shots": [{"shot": r.shot.index, "frames": r.frames, "render": r.render, "source": r.source} for r in rows],
+            "shots": [{"shot": r.shot.index, "frames": r.frames, "render": r.render, "source": r.source,
+                       "detail": [{"frame": n, "ratio": v} for n, v in r.detail]} for r in rows],
             "overall": {"render": overall(rows, "render"), "source": overall(rows, "source")},
         }))
         return
-    typer.echo(f"{'shot':>4}  {'frames':>11}  {'render':>10}  {'source':>10}")
+    typer.echo(f"{'shot':>4}  {'frames':>11}  {'render':>10}  {'source':>10}" + ("  stroke detail (frame: ratio)" if alone else ""))
     for r in rows:
-        typer.echo(f"{r.shot.index:>4}  {r.frames:>11}  {r.render:>10.5f}  {r.source:>10.5f}")
+        typer.echo(f"{r.shot.index:>4}  {r.frames:>11}  {r.render:>10.5f}  {r.source:>10.5f}"
+                   + "".join(f"  {n}: {v:.2f}" for n, v in r.detail))
     typer.echo(f"{'all':>4}  {'':>11}  {overall(rows, 'render'):>10.5f}  {overall(rows, 'source'):>10.5f}")
     typer.echo("warping error: mean squared RGB change along the optical flow (Lai et al. 2018)")
+    if alone:
+        typer.echo("stroke detail: Laplacian energy of the render's frame over that of the frame rendered on its own")
+
+
+@app.command("flashes")
+def flashes_command(
+    path: Annotated[Path, typer.Argument(help="Folder of numbered frames, a video file, or a render's output folder (its frames and their source).")],
+    fps: Annotated[Optional[float], typer.Option(help="Frame rate of the 1-second windows and timecode (default: the video's or the render's; 24 for a folder).")] = None,
+    json_out: Annotated[bool, typer.Option("--json", help="Print the check as JSON.")] = False,
+    plot: Annotated[Optional[Path], typer.Option(help="Write the timeline plot PNG here (default for an output folder: OUT/flashes.png).")] = None,
+) -> None:
+    """Check PATH for photosensitive flashes: general and red flashes per WCAG 2.1 SC 2.3.1 and ITU-R BT.1702.
+
+    Exit code 0 when it passes, 1 when it fails (for an output folder: the render's verdict),
+    2 for bad input. An aid, not a certification: broadcasters' rules and local regulators prevail.
+    """
+    from framestyle.qc.flash_check import CAUTION, check_path, report_lines, verdict_line, write_plot
+
+    _check_path(path, "input")
+    check = _run(check_path, path, fps)
+    plotted = _run(write_plot, check, plot)
+    if json_out:
+        typer.echo(json.dumps({**check.to_dict(), "plot": str(plotted) if plotted else None}))
+    else:
+        for label, report in check.reports.items():
+            typer.echo("\n".join(report_lines(label, report.to_dict())))
+        typer.echo(f"verdict ({check.judged}): {verdict_line(check.reports[check.judged].to_dict())}")
+        if plotted:
+            typer.echo(f"timeline: {plotted}")
+        typer.echo(CAUTION)
+    raise typer.Exit(0 if check.passed else 1)
 
 
 def main() -> None:

@@ -24,8 +24,9 @@ from pathlib import Path
 
 from framestyle.errors import FramestyleError
 from framestyle.pipeline import Plan, Progress, RenderResult, finish_render, no_progress, plan_render, render_shot
+from framestyle.qc.flash_check import flash_warning
 from framestyle.settings import Settings
-from framestyle.store import Store
+from framestyle.store import FLASH_KINDS, Store
 
 RESOURCE = "shot"  # the Dask worker resource a shot task needs: one shot per worker at a time
 _CONNECT_TIMEOUT = "5s"
@@ -108,6 +109,7 @@ def _run_shots(client, plan: Plan, threads: int | None, progress: Progress) -> N
         for future in done:
             try:
                 progress("shot", summary=future.result())
+                _warn_flashes(store, futures[future], progress)
             except (FramestyleError, KilledWorker) as exc:  # a user error in one shot: start no further shot
                 if isinstance(exc, KilledWorker):
                     exc = FramestyleError(f"shot {futures[future]}: the workers rendering it died repeatedly "
@@ -122,6 +124,14 @@ def _run_shots(client, plan: Plan, threads: int | None, progress: Progress) -> N
         progress("farm", done=finished, workers=on)
     if error is not None:
         raise error
+
+
+def _warn_flashes(store: Store, shot: int, progress: Progress) -> None:
+    """Pass on the flash check a worker recorded for ``shot``, where its frames flash."""
+    reports = {kind: store.flash_check(kind, shot) for kind in FLASH_KINDS}
+    warning = all(reports.values()) and flash_warning(reports, f"shot {shot}")
+    if warning:
+        progress("warning", message=warning)
 
 
 def _shot_of(keys) -> int | None:
@@ -140,7 +150,7 @@ def _shot_task(plan: Plan, index: int, threads: int | None):
     """A shot on a worker: render it (resuming its record), with this worker's thread count."""
     _set_threads(threads or os.cpu_count() or 1)
     started = time.time()
-    summary = render_shot(plan, index, wait=True)
+    summary = render_shot(plan, index, wait=True, check_flashes=True)
     Store(plan.out).log(f"shot {index} rendered on {os.uname().nodename} pid {os.getpid()} "
                         f"in {time.time() - started:.0f} s")
     return summary

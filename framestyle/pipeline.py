@@ -20,7 +20,7 @@ import time
 from collections import deque
 from dataclasses import dataclass, field
 from pathlib import Path
-from typing import Callable, Sequence
+from typing import Callable, Iterator, Sequence
 
 import numpy as np
 import torch
@@ -32,20 +32,23 @@ from framestyle.finish.compose import to_display
 from framestyle.imaging import to_array
 from framestyle.motion import FlowPair
 from framestyle.preview import contact_sheet, sample_frames
+from framestyle.qc.flash_check import (analyse_source, flash_warning, preview_warning, record_render_check,
+                                       record_shot_check)
 from framestyle.qc.stability import flow_warping_error
+from framestyle.report import refresh_report
 from framestyle.settings import Settings
 from framestyle.shots import Shot, shots_from_boundaries
 from framestyle.shots.detect import detect_shots, frame_signature
 from framestyle.shots.continuity import starts_new_shot
-from framestyle.shots.cutlists import cut_list_adapter, cut_list_timecode
+from framestyle.shots.cutlists import clip_timecode
 from framestyle.shots.lists import frame_range, parse_shot_file, parse_shot_selection
-from framestyle.store import (Store, check_resume, environment_changes, input_fingerprints, output_names,
-                              shot_list_fingerprint)
+from framestyle.store import (FLASH_KINDS, MANIFEST, Store, check_resume, environment_changes,
+                              input_fingerprints, output_names, shot_list_fingerprint)
 from framestyle.style.look import Look, build_look
 from framestyle.style.network import FeatureNet, load_network
-from framestyle.style.solver import SolverParams, SolveStats, solve_coarse_to_fine
+from framestyle.style.solver import SolverParams, SolveStats, solve, solve_coarse_to_fine
 from framestyle.timecode import ClipTimecode
-from framestyle.temporal import fresh_problem, start_noise, temporal_problem
+from framestyle.temporal import fresh_problem, pass_problem, start_noise, temporal_problem
 from framestyle.working import Frame, deliver, prepare_frame, working_size
 
 Progress = Callable[..., None]  # progress(event: str, **info); events listed in render()
@@ -85,6 +88,7 @@ class RenderResult:
     frames: list[Path]
     shots: list[ShotSummary] = field(default_factory=list)
     videos: list[Path] = field(default_factory=list)  # the H.264 preview (video input) and the ProRes hand-off
+    flashes: dict[str, dict] = field(default_factory=dict)  # the finished render's flash check: render, source
 
 
 @dataclass(frozen=True)
@@ -131,8 +135,11 @@ def render(
     keep_shot_list : resume with the shot list the render was started with (``framestyle resume``)
     progress : called as ``progress(event, **info)`` with events ``"start"`` (frames, shots,
         done, size), ``"warning"`` (message), ``"shot_start"`` (shot, frames, done),
-        ``"frame"`` (index, shot, iterations, seconds), ``"waiting"`` (shot, holder),
-        ``"shot"`` (summary) and ``"video"`` (path)
+        ``"frame"`` (index, shot, iterations, seconds: a finished frame), ``"pass"`` (shot,
+        pass_, passes, done: a pass of a multi-pass shot begins), ``"pass_frame"`` (index,
+        shot, pass_, iterations, seconds: a frame's pass before delivery), ``"waiting"``
+        (shot, holder), ``"shot"`` (summary) and ``"video"`` (path); a ``"warning"`` says where a shot or
+        the finished render flashes (WCAG 2.1 SC 2.3.1, ITU-R BT.1702)
     """
     plan = plan_render(input_path, out, settings, shots=shots, shot_file=shot_file, restart=restart,
                        keep_shot_list=keep_shot_list, progress=progress)
@@ -187,11 +194,14 @@ def plan_render(
     done = sum(1 for s in chosen for i in range(s.start, s.end + 1) if names[i] in finished)
     size = working_size(source.width, source.height, settings.width, net.min_side)
     progress("start", frames=sum(s.length for s in chosen), shots=len(chosen), done=done, size=size)
+    refresh_report(plan.out, plan.source, plan.settings, plan.timecode)
     return plan
 
 
 def finish_render(plan: Plan, progress: Progress = no_progress) -> RenderResult:
-    """After the shots: the summary of the wanted shots, and the video once every frame is done."""
+    """After the shots: the summary of the wanted shots; once every frame is done, the videos
+    and the flash check of the render and its source (the authoritative one: a flash can
+    straddle a cut), recorded in the output folder."""
     store = Store(plan.out)
     names = plan.names
     with store.folder_lock():
@@ -203,8 +213,13 @@ def finish_render(plan: Plan, progress: Progress = no_progress) -> RenderResult:
             for video in store.write_videos(plan.source, done, plan.timecode, plan.settings.prores):
                 result.videos.append(video)
                 progress("video", path=video)
+            result.flashes = record_render_check(store, plan.source, done, plan.timecode)
+    warning = result.flashes and flash_warning(result.flashes)
+    if warning:
+        progress("warning", message=f"{warning} (timeline: {store.flash_plot()})")
     result.shots = [ShotSummary.from_record(shot, records.get(shot.index, {"frames": {}})["frames"],
                                             plan.source.numbers) for shot in plan.shots if shot.index in plan.wanted]
+    refresh_report(plan.out, plan.source, plan.settings, plan.timecode)
     return result
 
 
@@ -252,9 +267,13 @@ def check_render(source: io.FrameSource, settings: Settings) -> FeatureNet:
     return net
 
 
+def network(name: str, weights: str | None, device: str = "auto") -> FeatureNet:
+    """The perceptual network on its device (one of ``settings.DEVICES``), loaded once per process."""
+    return _network(name, weights, device)
+
+
 @functools.lru_cache(maxsize=2)
-def network(name: str, weights: str | None, device: str) -> FeatureNet:
-    """The perceptual network on its device, loaded once per process."""
+def _network(name: str, weights: str | None, device: str) -> FeatureNet:
     return load_network(name, weights, device)
 
 
@@ -273,15 +292,6 @@ def find_shots(source: io.FrameSource, settings: Settings, shot_file: Path | Non
         found = detect_shots(sigs, cut_threshold=settings.cut_threshold, gradual_threshold=settings.gradual_threshold)
     after_gaps = [i for i, (a, b) in enumerate(zip(source.numbers, source.numbers[1:]), 1) if b > a + 1]
     return shots_from_boundaries(sorted({s.start for s in found} | set(after_gaps)), source.count)
-
-
-def clip_timecode(source: io.FrameSource, settings: Settings, shot_file: Path | None = None) -> ClipTimecode:
-    """How the source's frames are labelled: the settings' rate and start timecode, else the
-    video's; an editor's cut list places a clip without timecode of its own."""
-    timecode = io.source_timecode(source, settings.fps, settings.start_timecode)
-    if shot_file is not None and cut_list_adapter(shot_file):
-        timecode = cut_list_timecode(shot_file, timecode)
-    return timecode
 
 
 def solver_params(settings: Settings) -> SolverParams:
@@ -304,13 +314,17 @@ def shot_look(net: FeatureNet, source: io.FrameSource, settings: Settings, shot:
 
 # --- one shot -------------------------------------------------------------------------------
 
-def render_shot(plan: Plan, index: int, progress: Progress = no_progress, wait: bool = True) -> ShotSummary | None:
+def render_shot(plan: Plan, index: int, progress: Progress = no_progress, wait: bool = True,
+                check_flashes: bool = False) -> ShotSummary | None:
     """Render shot ``index`` of a planned render, continuing its temporal chain where it stopped.
 
     Returns None (without ``wait``) if another process is rendering the shot. Frames already
     finished are never rewritten. Where the chain cannot continue from kept state (the state
     of the frames it needs is gone or damaged), the shot is solved again from its first
-    frame, writing only the frames that are not finished.
+    frame, writing only the frames that are not finished. With ``check_flashes`` (a farm's
+    workers) the shot's frames and source are checked for flashes and recorded, so a long
+    farmed render warns early; the whole render's check in :func:`finish_render` is the
+    authoritative one.
     """
     shot = plan.shots[index - 1]
     settings = plan.settings.for_shot(index)
@@ -327,13 +341,25 @@ def render_shot(plan: Plan, index: int, progress: Progress = no_progress, wait: 
             _ShotRender(plan, work, settings, shot).run(todo, progress)
         elif work.has_state():  # a process killed as it finished the shot left its state
             work.prune_state(None)
+        flashes = None
+        if check_flashes and (todo or not all(work.store.flash_check(kind, index) for kind in FLASH_KINDS)):
+            flashes = record_shot_check(work.store, plan.source, names, plan.timecode, shot)
         summary = ShotSummary.from_record(shot, work.record["frames"], plan.source.numbers)
+    warning = flashes and flash_warning(flashes, f"shot {index}")
+    if warning:
+        progress("warning", message=warning)
+    refresh_report(plan.out, plan.source, plan.settings, plan.timecode)
     progress("shot", summary=summary)
     return summary
 
 
 class _ShotRender:
-    """The frames of one shot, in order, each from its warped predecessors."""
+    """The frames of one shot: a forward pass, each frame from its warped predecessors; in a
+    multi-pass render then backward and forward passes in turn, each frame started from a
+    blend of its own last result and its neighbour in the pass's direction (Ruder,
+    Dosovitskiy & Brox 2016, multi-pass algorithm), and the frames delivered in order after
+    the last pass. The shot's record counts the passes each unfinished frame has had, so a
+    killed render resumes inside the pass it was in."""
 
     def __init__(self, plan: Plan, work, settings: Settings, shot: Shot):
         self.plan, self.work, self.settings, self.shot = plan, work, settings, shot
@@ -342,16 +368,94 @@ class _ShotRender:
         self.size = working_size(self.source.width, self.source.height, settings.width, self.net.min_side)
         self.params = solver_params(settings)
         self.offsets = sorted(settings.long_term) if settings.temporal else []
+        self.passes = settings.passes if settings.temporal else 1
         self.chain_start = shot.start  # the shot's first frame, or a missed cut found in it
 
     def run(self, todo: list[int], progress: Progress) -> None:
         shot, settings, finished = self.shot, self.settings, self.work.record["frames"]
-        begin = self._resume_point(todo[0])
-        self.chain_start = max([shot.start] + [i for i in range(shot.start, begin)
-                                               if finished.get(self.names[i], {}).get("fresh")])
+        first_pass, begin = self._resume_point(todo[0])
         look = shot_look(self.net, self.source, settings, shot)
         mattes = Mattes(self.source, settings.matte)
         progress("shot_start", shot=shot.index, frames=shot.length, done=shot.length - len(todo))
+        if first_pass == 1:
+            self._first_pass(begin, look, mattes, progress)
+        for pass_ in range(max(first_pass, 2), self.passes + 1):
+            self._later_pass(pass_, begin if pass_ == first_pass else None, look, progress)
+        if self.passes > 1:
+            self._deliver_passes(mattes, progress)
+        self.work.prune_state(None)
+        self.work.forget_passes()
+        summary = ShotSummary.from_record(shot, finished, self.source.numbers)
+        self.work.store.log(f"shot {shot.index} ({summary.frames}) done: {summary.frames_done} frames, {summary.seconds:.1f} s, "
+                            f"{summary.iterations / max(1, summary.frames_done):.1f} iterations/frame, "
+                            f"warping error {summary.warp_error:.5f}")
+
+    # --- where to continue ------------------------------------------------------------------
+
+    def _entry(self, index: int) -> dict:
+        """Frame ``index``'s record entry: pending in a multi-pass render, or finished."""
+        name = self.names[index]
+        return self.work.pending().get(name) or self.work.record["frames"].get(name, {})
+
+    def _passes_done(self, index: int) -> int:
+        name = self.names[index]
+        if name in self.work.pending():
+            return self.work.pending()[name]["passes"]
+        return self.passes if name in self.work.record["frames"] else 0
+
+    def _resume_point(self, first_todo: int) -> tuple[int, int]:
+        """The pass (``passes + 1``: the delivery of a multi-pass render) and the frame to solve
+        from: where the render stopped if the state its temporal terms and later passes need is
+        kept, else the first pass at the shot's first frame (the chain is then rebuilt,
+        finished frames left as they are)."""
+        shot = self.shot
+        if self.passes == 1:
+            fresh = [i for i in range(shot.start, first_todo) if self._entry(i).get("fresh")]
+            needed = [(first_todo - j, "pass1") for j in self.offsets if first_todo - j >= max([shot.start] + fresh)]
+            pass_, begin = 1, first_todo
+        else:
+            done = {i: self._passes_done(i) for i in range(shot.start, shot.end + 1)}
+            pass_ = min(done.values()) + 1
+            order = list(self._order(pass_))
+            begin = next(i for i in order if done[i] < pass_)
+            if pass_ == 1:  # the later passes need every frame's first result and working frame
+                needed = [(i, layer) for i in range(shot.start, begin) for layer in ("pass1", "content")]
+            elif pass_ > self.passes:  # only the delivery is left
+                needed = [(i, f"pass{self.passes}") for i in order if self.names[i] not in self.work.record["frames"]]
+            else:
+                needed = [(i, "content") for i in order] + [(i, f"pass{pass_ - 1}") for i in order[order.index(begin):]]
+                neighbour = self._neighbour(begin, pass_, self._chain_starts())
+                needed += [(neighbour, f"pass{pass_}")] if neighbour is not None else []
+        if all(self.work.load_state(i, layer) is not None for i, layer in needed):
+            return pass_, begin
+        self.work.store.log(f"shot {shot.index}: kept state missing, solving again from its first frame")
+        if self.passes > 1:
+            self.work.restart_passes([self.names[i] for i in range(shot.start, shot.end + 1)])
+        return 1, shot.start
+
+    def _order(self, pass_: int) -> range:
+        """The shot's frames in pass ``pass_``'s direction: odd passes forward, even backward."""
+        if pass_ % 2:
+            return range(self.shot.start, self.shot.end + 1)
+        return range(self.shot.end, self.shot.start - 1, -1)
+
+    def _chain_starts(self) -> set[int]:
+        """The shot's first frame and any frame the first pass started fresh (a missed cut)."""
+        return {self.shot.start} | {i for i in range(self.shot.start, self.shot.end + 1) if self._entry(i).get("fresh")}
+
+    def _neighbour(self, index: int, pass_: int, starts: set[int]) -> int | None:
+        """The frame solved just before ``index`` in pass ``pass_``, if in the same chain."""
+        if pass_ % 2:
+            return index - 1 if index not in starts else None
+        return index + 1 if index < self.shot.end and index + 1 not in starts else None
+
+    # --- the passes ---------------------------------------------------------------------------
+
+    def _first_pass(self, begin: int, look: Look, mattes: Mattes, progress: Progress) -> None:
+        shot, settings = self.shot, self.settings
+        self.chain_start = max([shot.start] + [i for i in range(shot.start, begin) if self._entry(i).get("fresh")])
+        if self.passes > 1:
+            progress("pass", shot=shot.index, pass_=1, passes=self.passes, done=begin - shot.start)
         reach = max(self.offsets, default=0)
         history: deque[tuple[int, np.ndarray]] = deque(maxlen=reach + 1)  # (index, working content)
         frames = ((index, prepare_frame(raw, self.size, settings, self.source.linear))
@@ -359,28 +463,13 @@ class _ShotRender:
         for (index, frame), following in _with_next(frames):
             if index >= begin:
                 sources = {k: content for k, content in history if k >= self.chain_start}
-                self._frame(index, frame, following and following[1], look, mattes, sources, progress,
-                            rebuild=self.names[index] in finished)
+                self._frame(index, frame, following and following[1], look, mattes, sources, progress)
             history.append((index, frame.content))
-        self.work.prune_state(None)
-        summary = ShotSummary.from_record(shot, finished, self.source.numbers)
-        self.work.store.log(f"shot {shot.index} ({summary.frames}) done: {summary.frames_done} frames, {summary.seconds:.1f} s, "
-                            f"{summary.iterations / max(1, summary.frames_done):.1f} iterations/frame, "
-                            f"warping error {summary.warp_error:.5f}")
-
-    def _resume_point(self, first_todo: int) -> int:
-        """The frame to solve from: the first unfinished one if the state its temporal terms
-        need is kept, else the shot's first frame (the chain is then rebuilt)."""
-        fresh = [i for i in range(self.shot.start, first_todo)
-                 if self.work.record["frames"].get(self.names[i], {}).get("fresh")]
-        needed = [first_todo - j for j in self.offsets if first_todo - j >= max([self.shot.start] + fresh)]
-        if all(self.work.load_state(k) is not None for k in needed):
-            return first_todo
-        self.work.store.log(f"shot {self.shot.index}: kept state missing, solving again from its first frame")
-        return self.shot.start
+        if self.passes > 1:
+            self.work.store.log(f"shot {shot.index}: pass 1 of {self.passes} done")
 
     def _frame(self, index: int, frame: Frame, following: Frame | None, look: Look, mattes: Mattes, sources: dict,
-               progress: Progress, rebuild: bool) -> None:
+               progress: Progress) -> None:
         t0 = time.perf_counter()
         settings, name = self.settings, self.names[index]
         earlier = [(FlowPair.between(frame.content, sources[index - j], settings.flow_preset),
@@ -392,23 +481,99 @@ class _ShotRender:
             earlier, self.chain_start = [], index
             self.work.store.log(f"frame {name}: no optical-flow correspondence with the frames before it "
                                 f"(a missed cut?); started fresh as a new shot")
-        result, stats = stylise(look, frame.content, index, earlier, self.params, settings.seed, settings.temporal)
+        result, stats = stylise(look, frame.content, index, earlier, self.params, settings.seed, settings.temporal,
+                                settings.warp_filter)
+        if self.passes > 1:  # every frame's working frame and result are kept for the next pass
+            self.work.save_state(index, frame.content, "content")
         self.work.save_state(index, result)
-        if not rebuild:  # a frame solved only to rebuild the chain stays as it was finished
-            matte = mattes(index, settings.matte_softness)
-            self.work.write_frame(name, deliver(result, frame, settings, matte, self.source.linear),
-                                  16 if self.source.bit_depth in (16, 32) else 8)
-            # the warping error of this frame and its predecessor reuses the flows of the temporal loss
-            error = flow_warping_error(earlier[0][1], result, earlier[0][0]) if earlier else None
-            seconds = time.perf_counter() - t0
-            self.work.finish_frame(name, {"iterations": stats.iterations, "seconds": round(seconds, 3),
-                                          "style": stats.style, "content": stats.content, "warp_error": error,
-                                          "fresh": fresh})
-            self.work.store.log(f"frame {name} shot {self.shot.index}: {stats.iterations} iterations, "
-                                f"{seconds:.1f} s, style {stats.style:.4f} content {stats.content:.4f} "
-                                f"temporal {stats.temporal:.5f}")
-            progress("frame", index=index, shot=self.shot.index, iterations=stats.iterations, seconds=seconds)
+        # the warping error of this frame and its predecessor, and the source's own along the same
+        # flows (the reference the report shows beside it), reuse the flows of the temporal loss
+        error = flow_warping_error(earlier[0][1], result, earlier[0][0]) if earlier else None
+        source_error = flow_warping_error(sources[index - 1], frame.content, earlier[0][0]) if earlier else None
+        entry = {"iterations": stats.iterations, "style": stats.style, "content": stats.content,
+                 "warp_error": error, "source_warp_error": source_error, "fresh": fresh}
+        if self.passes > 1:
+            self._note(index, 1, entry, time.perf_counter() - t0, progress)
+            return
+        self._deliver(index, frame, result, entry, mattes, time.perf_counter() - t0, progress, stats.temporal)
         self.work.prune_state(index + 1 - max(self.offsets, default=0))  # what the next frame needs stays
+
+    def _later_pass(self, pass_: int, begin: int | None, look: Look, progress: Progress) -> None:
+        """Pass ``pass_`` ≥ 2 over the shot (from ``begin`` when resuming inside it)."""
+        shot, settings = self.shot, self.settings
+        layer, before = f"pass{pass_}", f"pass{pass_ - 1}"
+        params = dataclasses.replace(self.params, iterations=settings.pass_iterations)
+        starts = self._chain_starts()
+        order = list(self._order(pass_))
+        order = order[order.index(begin):] if begin is not None else order
+        progress("pass", shot=shot.index, pass_=pass_, passes=self.passes, done=shot.length - len(order))
+        solved = None  # (index, working frame, result in this pass) of the frame solved just before
+        neighbour = self._neighbour(order[0], pass_, starts)
+        if neighbour is not None:
+            solved = (neighbour, self.work.load_state(neighbour, "content"), self.work.load_state(neighbour, layer))
+        for index in order:
+            t0 = time.perf_counter()
+            content, neighbour = self.work.load_state(index, "content"), self._neighbour(index, pass_, starts)
+            pair = FlowPair.between(content, solved[1], settings.flow_preset) if neighbour is not None else None
+            problem = pass_problem(content, self.work.load_state(index, before), pair and (pair, solved[2]),
+                                   settings.warp_filter)
+            image, stats = solve(look.net, problem, look.targets(self.size), params)
+            result = to_array(image)
+            self.work.save_state(index, result, layer)
+            # the frame pair's warping error: forward (neighbour, frame), backward (frame, neighbour)
+            error = None if pair is None else (
+                flow_warping_error(solved[2], result, pair) if pass_ % 2
+                else flow_warping_error(result, solved[2], FlowPair(pair.forward, pair.backward)))
+            entry = {"style": stats.style, "content": stats.content, "warp_error": error}
+            self._note(index, pass_, entry, time.perf_counter() - t0, progress, stats.iterations)
+            self.work.drop_state(index, before)
+            solved = (index, content, result)
+        self.work.store.log(f"shot {shot.index}: pass {pass_} of {self.passes} done")
+
+    def _note(self, index: int, pass_: int, entry: dict, seconds: float, progress: Progress,
+              iterations: int | None = None) -> None:
+        """Record a frame's pass ``pass_`` (not its last): its figures added to its earlier passes'."""
+        name = self.names[index]
+        so_far = self.work.pending().get(name, {}) if pass_ > 1 else {}
+        iterations = entry.get("iterations", 0) if iterations is None else iterations
+        self.work.note_pass(name, {**so_far, **entry, "passes": pass_,
+                                   "iterations": so_far.get("iterations", 0) + iterations,
+                                   "seconds": round(so_far.get("seconds", 0.0) + seconds, 3)})
+        progress("pass_frame", index=index, shot=self.shot.index, pass_=pass_, iterations=iterations, seconds=seconds)
+
+    def _deliver_passes(self, mattes: Mattes, progress: Progress) -> None:
+        """After the last pass: deliver the unfinished frames, in order, from their last results."""
+        shot, last = self.shot, f"pass{self.passes}"
+        todo = [i for i in range(shot.start, shot.end + 1) if self.names[i] not in self.work.record["frames"]]
+        if not todo:
+            return
+        for index, raw in io.iter_frames(self.source, todo[0], shot.end + 1):
+            name = self.names[index]
+            if name in self.work.record["frames"]:
+                continue
+            t0 = time.perf_counter()
+            frame = prepare_frame(raw, self.size, self.settings, self.source.linear)
+            entry = {k: v for k, v in self.work.pending()[name].items() if k != "passes"}
+            seconds = entry.pop("seconds") + time.perf_counter() - t0
+            self._deliver(index, frame, self.work.load_state(index, last), entry, mattes, seconds, progress)
+            self.work.drop_state(index, last)
+
+    def _deliver(self, index: int, frame: Frame, result: np.ndarray, entry: dict, mattes: Mattes, seconds: float,
+                 progress: Progress, temporal: float | None = None) -> None:
+        """Write a frame's final result and record it as finished, with its figures (iterations,
+        style, content, warp_error, fresh); a frame solved again only to rebuild the chain
+        stays as it was finished."""
+        settings, name = self.settings, self.names[index]
+        if name in self.work.record["frames"]:
+            return
+        matte = mattes(index, settings.matte_softness)
+        self.work.write_frame(name, deliver(result, frame, settings, matte, self.source.linear),
+                              _output_depth(self.source))
+        self.work.finish_frame(name, {**entry, "seconds": round(seconds, 3), "finished": round(time.time(), 3)})
+        self.work.store.log(f"frame {name} shot {self.shot.index}: {entry['iterations']} iterations, "
+                            f"{seconds:.1f} s, style {entry['style']:.4f} content {entry['content']:.4f}"
+                            + (f" temporal {temporal:.5f}" if temporal is not None else ""))
+        progress("frame", index=index, shot=self.shot.index, iterations=entry["iterations"], seconds=seconds)
 
 
 def _with_next(items):
@@ -423,7 +588,7 @@ def _with_next(items):
 
 def stylise(
     look: Look, content: np.ndarray, index: int, earlier: Sequence[tuple[FlowPair, np.ndarray]],
-    params: SolverParams, seed: int, temporal: bool = True,
+    params: SolverParams, seed: int, temporal: bool = True, interpolation: str = "linear",
 ) -> tuple[np.ndarray, SolveStats]:
     """Stylise one working frame: from its warped predecessor if it has one, else on its own.
 
@@ -435,6 +600,7 @@ def stylise(
         empty for a shot's first frame or without temporal consistency
     temporal : whether the render is temporal; a temporal shot's first frame anchors every
         later frame through the warp, so it is converged twice as tightly
+    interpolation : the resampling filter warping the earlier frames
 
     Returns
     -------
@@ -442,11 +608,65 @@ def stylise(
     """
     noise = start_noise((1, 3, *content.shape[:2]), seed, index)
     if earlier:
-        image, stats = solve_coarse_to_fine(look.net, temporal_problem(content, earlier, noise), look.targets, params)
+        problem = temporal_problem(content, earlier, noise, interpolation)
+        image, stats = solve_coarse_to_fine(look.net, problem, look.targets, params)
     else:
         anchor = dataclasses.replace(params, tolerance=params.tolerance / 2) if temporal else params
         image, stats = solve_coarse_to_fine(look.net, fresh_problem(content, noise), look.targets, anchor)
     return to_array(image), stats
+
+
+# --- frames stylised on their own: previews, the reference of the detail measure ---------------
+
+def _stylised_alone(source: io.FrameSource, net: FeatureNet, settings: Settings, chosen: dict[int, Shot],
+                    linear: bool) -> Iterator[tuple[int, Shot, Frame, np.ndarray, SolveStats, float]]:
+    """Each chosen frame (index → its shot) stylised on its own with its shot's look — a shot's
+    first-frame treatment, no temporal chain — and delivered (in the source's encoding if
+    ``linear``, else display-referred). Yields (index, shot, frame, delivered, stats, seconds)
+    in frame order."""
+    looks: dict[int, tuple[Settings, Look, Mattes]] = {}
+    for index, raw in io.iter_frames(source, min(chosen, default=0), max(chosen, default=-1) + 1):
+        if index not in chosen:
+            continue
+        t0 = time.perf_counter()
+        shot = chosen[index]
+        if shot.index not in looks:
+            shot_settings = settings.for_shot(shot.index)
+            looks[shot.index] = (shot_settings, shot_look(net, source, shot_settings, shot),
+                                 Mattes(source, shot_settings.matte))
+        shot_settings, look, mattes = looks[shot.index]
+        size = working_size(source.width, source.height, shot_settings.width, net.min_side)
+        frame = prepare_frame(raw, size, shot_settings, source.linear)
+        result, stats = stylise(look, frame.content, index, [], solver_params(shot_settings), shot_settings.seed,
+                                temporal=False)
+        delivered = deliver(result, frame, shot_settings, mattes(index, shot_settings.matte_softness), linear)
+        yield index, shot, frame, delivered, stats, time.perf_counter() - t0
+
+
+def frames_alone(out: Path, source_path: Path, indices: Sequence[int]) -> Iterator[tuple[int, np.ndarray]]:
+    """Frames ``indices`` of the render in ``out`` stylised each on its own with the render's
+    settings and delivered as its frames are (rounded like its 8- or 16-bit files): what the
+    render's stroke detail is measured against (:mod:`framestyle.qc.detail`).
+
+    Yields (index, (H, W, 3) frame) in frame order. ``source_path`` is the footage the
+    render was made from.
+    """
+    manifest = Store(out).manifest()
+    if manifest is None:
+        raise FramestyleError(f"{out}: no {MANIFEST}; the detail measure needs the render's settings")
+    settings = Settings.from_dict(manifest["settings"], str(Path(out) / MANIFEST))
+    source = io.open_source(Path(source_path))
+    shots = [Shot(s["shot"], s["start"], s["end"]) for s in manifest["shots"]]
+    chosen = {i: next(s for s in shots if s.start <= i <= s.end) for i in indices}
+    levels = 2 ** _output_depth(source) - 1
+    net = network(settings.network, settings.network_weights, settings.device)
+    for index, _, _, delivered, _, _ in _stylised_alone(source, net, settings, chosen, source.linear):
+        yield index, delivered if source.linear else np.round(delivered * levels) / levels
+
+
+def _output_depth(source: io.FrameSource) -> int:
+    """Bit depth of a render's PNG frames (float sources are delivered as EXR)."""
+    return 16 if source.bit_depth in (16, 32) else 8
 
 
 # --- previews -------------------------------------------------------------------------------
@@ -467,6 +687,9 @@ def preview(input_path: Path, out: Path, settings: Settings, every: int, *, widt
     Returns
     -------
     The contact sheet paths, one per previewed shot.
+
+    The source is checked for flashes (previewed frames, stylised one by one and sampled,
+    are not: a warning says when the source already flashes).
     """
     if every < 1:
         raise FramestyleError(f"--every {every}: must be 1 or more")
@@ -480,25 +703,13 @@ def preview(input_path: Path, out: Path, settings: Settings, every: int, *, widt
     size = working_size(source.width, source.height, settings.width, net.min_side)
     progress("start", frames=len(chosen), shots=len(wanted), done=0, size=size)
     tiles: dict[int, list] = {n: [] for n in wanted}
-    looks: dict[int, tuple[Settings, Look, Mattes]] = {}
     with Store(out).preview() as folder:
-        for index, raw in io.iter_frames(source):
-            if index not in chosen:
-                continue
-            t0 = time.perf_counter()
-            shot = chosen[index]
-            if shot.index not in looks:
-                shot_settings = settings.for_shot(shot.index)
-                looks[shot.index] = (shot_settings, shot_look(net, source, shot_settings, shot),
-                                     Mattes(source, shot_settings.matte))
-            shot_settings, look, mattes = looks[shot.index]
-            size = working_size(source.width, source.height, shot_settings.width, net.min_side)
-            frame = prepare_frame(raw, size, shot_settings, source.linear)
-            result, stats = stylise(look, frame.content, index, [], solver_params(shot_settings),
-                                    shot_settings.seed, temporal=False)
-            delivered = deliver(result, frame, shot_settings, mattes(index, shot_settings.matte_softness), False)
+        for index, shot, frame, delivered, stats, seconds in _stylised_alone(source, net, settings, chosen, False):
             folder.write(io.frame_name(source, index), delivered)
             tiles[shot.index].append((source.names[index], frame.display, delivered))
-            progress("frame", index=index, shot=shot.index, iterations=stats.iterations,
-                     seconds=time.perf_counter() - t0, skipped=False)
-        return [folder.write(f"contact_shot{n:03d}.png", contact_sheet(tiles[n])) for n in wanted]
+            progress("frame", index=index, shot=shot.index, iterations=stats.iterations, seconds=seconds, skipped=False)
+        sheets = [folder.write(f"contact_shot{n:03d}.png", contact_sheet(tiles[n])) for n in wanted]
+    warning = preview_warning(analyse_source(source, clip_timecode(source, settings, shot_file)).to_dict())
+    if warning:
+        progress("warning", message=warning)
+    return sheets

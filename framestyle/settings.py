@@ -21,7 +21,7 @@ from pydantic.dataclasses import dataclass
 
 from framestyle.errors import FramestyleError
 from framestyle.finish.compose import COLOURS
-from framestyle.motion import FLOW_PRESETS
+from framestyle.motion import FLOW_PRESETS, WARP_FILTERS
 
 NETWORKS = ("efficientnet-lite0", "vgg19")
 """Perceptual networks (see :mod:`framestyle.style.network`)."""
@@ -69,6 +69,9 @@ class Settings:
     temporal_weight: _NonNegative = 50.0  # weight of the (short- and long-term) temporal loss
     long_term: Annotated[tuple[Annotated[int, Field(ge=1)], ...], _List] = (1, 10, 20, 40)  # frames back tied
     flow_preset: Literal[FLOW_PRESETS] = "medium"  # DIS optical flow preset
+    warp_filter: Literal[WARP_FILTERS] = "cubic"  # resampling of the warped frames: linear, cubic, lanczos
+    passes: Annotated[int, Field(ge=1, le=32)] = 1  # 1: one forward pass; more: then backward, forward ... in turn
+    pass_iterations: Annotated[int, Field(ge=1)] = 50  # most solver iterations per frame in each later pass
     # --- shots ------------------------------------------------------------------------------
     shot_detection: bool = True  # restart the temporal chain at detected cuts
     cut_threshold: _Fraction = 0.015  # least colour+layout step (0..1] of a cut; it must also stand out

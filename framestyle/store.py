@@ -7,13 +7,22 @@ Layout of an output folder::
       <clip>_framestyle.mp4       for video input: the frames with the source's audio
       framestyle.json             manifest: settings, inputs, shot list, environment
       render.log                  a line per frame, per shot and per event, from every process
+      flashes.png                 timeline of the photosensitive flash check (render and source)
       preview/                    preview frames and contact sheets
+      report.html                 the render report, refreshed after every shot
+      report/                     its pictures: thumbnail strips, plots, style images
       .framestyle/
         locks/folder.lock         held briefly to create, check or restart the render
         locks/shot_NNN.lock       held while a process renders shot NNN
         locks/preview.lock        held while a preview writes preview/
-        shots/shot_NNN.json       shot NNN's record: its finished frames and their figures
-        state/shot_NNN/*.npy      full-precision stylised frames the temporal losses still need
+        locks/report.lock         held while a process refreshes the report
+        shots/shot_NNN.json       shot NNN's record: its finished frames and their figures (and,
+                                  in a multi-pass render, how many passes each other frame has had)
+        flashes/{render,source}.json   flash check of the whole render's frames and its source
+        flashes/shot_NNN/{render,source}.json   the same for shot NNN alone (a farm's progress)
+        state/shot_NNN/*.npy      full-precision stylised frames the temporal losses or a later pass
+                                  still need, one layer per pass (pass1_0000012.npy ...), and the
+                                  working frames of a multi-pass shot (content_0000012.npy ...)
         restarting                marks a restart in progress (finished by the next run)
         trash/                    what a restart is discarding
 
@@ -36,7 +45,7 @@ import socket
 import time
 import uuid
 from pathlib import Path
-from typing import Callable, Iterator, Sequence
+from typing import TYPE_CHECKING, Callable, Iterator, Mapping, Sequence
 
 import numpy as np
 
@@ -45,11 +54,18 @@ from framestyle.errors import FramestyleError
 from framestyle.settings import Settings
 from framestyle.timecode import ClipTimecode
 
+if TYPE_CHECKING:
+    from framestyle.qc.flashes import FlashReport
+
 MANIFEST = "framestyle.json"
 FORMAT = 2  # manifest format version
 LOG = "render.log"
 PREVIEW = "preview"
+REPORT = "report.html"
+REPORT_FILES = "report"  # the report's pictures, beside it
 VIDEO_SUFFIX = "_framestyle"
+FLASH_PLOT = "flashes.png"
+FLASH_KINDS = ("render", "source")  # the delivered frames; the footage they were made from
 _PRIVATE = ".framestyle"
 
 
@@ -147,7 +163,8 @@ class Store:
             if (self._private / "trash").exists():
                 atomic.remove(self._private / "trash")
             _remove_temporary(self._private / "shots")
-            _remove_temporary(self.out, lambda target: target == MANIFEST or f"{VIDEO_SUFFIX}." in target)
+            _remove_temporary(self._private / "flashes")
+            _remove_temporary(self.out, lambda target: target in (MANIFEST, FLASH_PLOT) or f"{VIDEO_SUFFIX}." in target)
             yield self
 
     def manifest(self) -> dict | None:
@@ -175,7 +192,7 @@ class Store:
         deleted; a kill in the middle leaves a marker, and the next run finishes the job.
         """
         locks = [Lock(path, f"shot {path.stem[5:]}") for path in sorted((self._private / "locks").glob("shot_*.lock"))]
-        locks.append(self._lock("preview"))
+        locks += [self._lock("preview"), self._lock("report")]
         held = []
         try:
             for lock in locks:
@@ -190,12 +207,14 @@ class Store:
 
     def _discard(self, names: Sequence[str]) -> None:
         trash = self._private / "trash" / uuid.uuid4().hex
-        for name in ("shots", "state"):
+        for name in ("shots", "state", "flashes"):
             if (self._private / name).exists():
                 atomic.move(self._private / name, trash / name)
-        if (self.out / PREVIEW).exists():
-            atomic.move(self.out / PREVIEW, trash / PREVIEW)
+        for name in (PREVIEW, REPORT_FILES, REPORT):
+            if (self.out / name).exists():
+                atomic.move(self.out / name, trash / name)
         products = [p for p in self.out.glob(f"*{VIDEO_SUFFIX}.*") if p.is_file()]
+        products += [self.out / FLASH_PLOT] if (self.out / FLASH_PLOT).exists() else []
         products += [self.out / name for name in dict.fromkeys(names) if (self.out / name).exists()]
         for path in products:
             atomic.move(path, trash / "frames" / path.name)
@@ -223,6 +242,13 @@ class Store:
             if record is not None:
                 merged[int(path.stem[5:])] = record
         return merged
+
+    def record_modified(self, shot: int) -> int | None:
+        """When shot ``shot``'s record last changed (ns since the epoch), or None without one."""
+        try:
+            return (self._private / "shots" / f"shot_{shot:03d}.json").stat().st_mtime_ns
+        except FileNotFoundError:
+            return None
 
     def finished(self) -> dict[str, dict]:
         """Finished frames of every shot: frame name → its entry."""
@@ -283,6 +309,64 @@ class Store:
             _remove_temporary(self.out / PREVIEW)
             yield PreviewStore(self.out / PREVIEW)
 
+    @contextlib.contextmanager
+    def report(self) -> Iterator["ReportStore"]:
+        """Hold the report lock (waiting for it: a refresh takes seconds) while the report is
+        written; first removes what a process killed while writing it left."""
+        self.out.mkdir(parents=True, exist_ok=True)
+        with _locked(self._lock("report"), self.out, wait=True):
+            _remove_temporary(self.out, REPORT.__eq__)
+            _remove_temporary(self.out / REPORT_FILES)
+            yield ReportStore(self.out)
+
+    def preview_sheets(self) -> list[str]:
+        """The preview's contact sheets, as paths relative to the folder."""
+        return [f"{PREVIEW}/{p.name}" for p in sorted((self.out / PREVIEW).glob("contact_*.png"))
+                if not atomic.is_temporary(p.name)]
+
+    def videos(self) -> list[str]:
+        """The file names of the videos made from the frames."""
+        return sorted(p.name for p in self.out.glob(f"*{VIDEO_SUFFIX}.*")
+                      if p.is_file() and not atomic.is_temporary(p.name))
+
+    # --- the photosensitive flash check ---------------------------------------------------------
+
+    def write_flash_check(self, kind: str, report: dict, shot: int | None = None) -> None:
+        """Record a flash check (:meth:`framestyle.qc.flashes.FlashReport.to_dict`).
+
+        ``kind`` is "render" (the delivered frames) or "source" (the footage); ``shot`` None
+        for the whole render (written under :meth:`folder_lock`), else shot ``shot``'s frames
+        alone (written under the shot's lock).
+        """
+        atomic.write_json(self._flash_path(kind, shot), report)
+
+    def flash_check(self, kind: str, shot: int | None = None) -> dict | None:
+        """A recorded flash check (see :meth:`write_flash_check`), or None if there is none
+        (or it does not read back)."""
+        try:
+            report = json.loads(self._flash_path(kind, shot).read_text())
+        except (OSError, ValueError):
+            return None
+        return report if isinstance(report, dict) else None
+
+    def write_flash_plot(self, reports: Mapping[str, "FlashReport"]) -> Path:
+        """Draw the flash timeline of labelled reports into ``OUT/flashes.png``; return its path."""
+        from framestyle.qc.flash_plot import plot_flash_timeline  # matplotlib only when needed
+
+        plot_flash_timeline(reports, self.out / FLASH_PLOT)
+        return self.out / FLASH_PLOT
+
+    def flash_plot(self) -> Path | None:
+        """``OUT/flashes.png`` if the render's flash check drew it, else None."""
+        path = self.out / FLASH_PLOT
+        return path if path.is_file() else None
+
+    def _flash_path(self, kind: str, shot: int | None) -> Path:
+        if kind not in FLASH_KINDS:
+            raise ValueError(f"kind must be one of {FLASH_KINDS}, got {kind!r}")
+        folder = self._private / "flashes" / ("" if shot is None else f"shot_{shot:03d}")
+        return folder / f"{kind}.json"
+
     def log(self, message: str) -> None:
         """Append a line to ``render.log``."""
         atomic.append_line(self.out / LOG, f"{time.strftime('%Y-%m-%d %H:%M:%S')} {message}")
@@ -310,6 +394,7 @@ class ShotStore:
         are rendered again and replaced).
         """
         _remove_temporary(self._state)
+        _remove_temporary(self.store._flash_path("render", self.shot).parent)
         _remove_temporary(self.store.out, set(names).__contains__)
         problems = []
         for name in list(self.record["frames"]):
@@ -331,16 +416,39 @@ class ShotStore:
     def finish_frame(self, name: str, entry: dict) -> None:
         """Record a written frame as finished, with its figures (iterations, seconds ...)."""
         self.record["frames"][name] = entry
+        self.record.get("pending", {}).pop(name, None)
         atomic.write_json(self._record_path, self.record)
 
-    def save_state(self, frame: int, image: np.ndarray) -> None:
-        """Keep the full-precision stylised ``frame`` (H, W, 3 float32) for the temporal losses."""
-        with atomic.atomic_path(self._state / f"{frame:07d}.npy") as tmp:
+    def pending(self) -> dict[str, dict]:
+        """Frames of a multi-pass render not finished yet: name → how many passes they have had
+        (``"passes"``) and what those cost (iterations, seconds ...)."""
+        return self.record.get("pending", {})
+
+    def note_pass(self, name: str, entry: dict) -> None:
+        """Record that an unfinished frame has had one more pass (``entry["passes"]``, its figures)."""
+        self.record.setdefault("pending", {})[name] = entry
+        atomic.write_json(self._record_path, self.record)
+
+    def restart_passes(self, names: Sequence[str]) -> None:
+        """Count every frame of the shot, finished or not, as having had no pass: the shot is
+        solved again from its first pass (finished frames stay as they are)."""
+        self.record["pending"] = {name: {"passes": 0} for name in names}
+        atomic.write_json(self._record_path, self.record)
+
+    def forget_passes(self) -> None:
+        """Drop the pass counts once the shot is done."""
+        if self.record.pop("pending", None) is not None:
+            atomic.write_json(self._record_path, self.record)
+
+    def save_state(self, frame: int, image: np.ndarray, layer: str = "pass1") -> None:
+        """Keep full-precision ``frame`` (H, W, 3 float32) of ``layer``: a pass's stylised frame
+        (``"pass1"``, ``"pass2"`` ...) or the working frame (``"content"``)."""
+        with atomic.atomic_path(self._state_path(frame, layer)) as tmp:
             np.save(tmp, image.astype(np.float32), allow_pickle=False)
 
-    def load_state(self, frame: int) -> np.ndarray | None:
-        """The kept stylised ``frame``, or None if it is not kept or does not read back."""
-        path = self._state / f"{frame:07d}.npy"
+    def load_state(self, frame: int, layer: str = "pass1") -> np.ndarray | None:
+        """The kept ``frame`` of ``layer``, or None if it is not kept or does not read back."""
+        path = self._state_path(frame, layer)
         try:
             return np.load(path, allow_pickle=False)
         except FileNotFoundError:
@@ -353,14 +461,23 @@ class ShotStore:
         """Whether any state of the shot is kept."""
         return self._state.exists()
 
-    def prune_state(self, keep_from: int | None) -> None:
-        """Delete kept frames older than ``keep_from`` (all of the shot's state if None)."""
+    def drop_state(self, frame: int, layer: str) -> None:
+        """Delete the kept ``frame`` of ``layer``, if kept."""
+        path = self._state_path(frame, layer)
+        if path.exists():
+            atomic.remove(path)
+
+    def prune_state(self, keep_from: int | None, layer: str = "pass1") -> None:
+        """Delete kept frames of ``layer`` older than ``keep_from`` (all of the shot's state if None)."""
         if keep_from is None:
             atomic.remove(self._state)
             return
-        for path in self._state.glob("*.npy"):
-            if int(path.stem) < keep_from:
+        for path in self._state.glob(f"{layer}_*.npy"):
+            if int(path.stem.rsplit("_", 1)[1]) < keep_from:
                 atomic.remove(path)
+
+    def _state_path(self, frame: int, layer: str) -> Path:
+        return self._state / f"{layer}_{frame:07d}.npy"
 
 
 class PreviewStore:
@@ -374,6 +491,37 @@ class PreviewStore:
         path = self.folder / name
         io.write_image(path, image)
         return path
+
+
+class ReportStore:
+    """``report.html`` and its pictures in ``report/``, while the report lock is held."""
+
+    def __init__(self, out: Path):
+        self.out = out
+
+    def write_page(self, html: str) -> Path:
+        """Atomically replace ``report.html``."""
+        atomic.write_bytes(self.out / REPORT, html.encode())
+        return self.out / REPORT
+
+    def write_image(self, name: str, image: np.ndarray) -> None:
+        """Atomically write an 8-bit picture (H, W, 3 float in [0, 1]) as ``report/<name>``."""
+        io.write_image(self.out / REPORT_FILES / name, image)
+
+    def write_file(self, name: str, data: bytes) -> None:
+        """Atomically write ``report/<name>`` (an encoded plot, say)."""
+        atomic.write_bytes(self.out / REPORT_FILES / name, data)
+
+    def read(self, name: str) -> bytes:
+        """The content of ``report/<name>``; raises FileNotFoundError if it is not there."""
+        return (self.out / REPORT_FILES / name).read_bytes()
+
+    def modified(self, name: str) -> int | None:
+        """When ``report/<name>`` was last written (ns since the epoch), or None if it is not there."""
+        try:
+            return (self.out / REPORT_FILES / name).stat().st_mtime_ns
+        except FileNotFoundError:
+            return None
 
 
 # --- what a render is checked against ----------------------------------------------------------

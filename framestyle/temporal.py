@@ -1,8 +1,11 @@
-"""A frame's starting image and temporal targets, from the stylised frames before it.
+"""A frame's starting image and temporal targets, from the stylised frames around it.
 
 Each shot starts fresh; within a shot each frame starts from the previous stylised frame
 warped along the optical flow and is tied to earlier frames by the short- and long-term
 temporal losses (Ruder, Dosovitskiy & Brox 2016, "Artistic style transfer for videos").
+A multi-pass render then goes over the shot again, backward and forward in turn, each frame
+starting from a blend of its own last result and its neighbour in the pass's direction
+(the same paper's multi-pass algorithm).
 """
 
 from __future__ import annotations
@@ -17,6 +20,7 @@ from framestyle.motion import FlowPair, long_term_masks, warp
 from framestyle.style.solver import Problem
 
 NOISE = 0.1  # std of the noise added where a frame starts from its content frame
+BLEND = 0.5  # δ, the neighbour's share of a multi-pass start (Ruder et al. 2016 used 0.5; from memory)
 
 
 def start_noise(shape: tuple[int, ...], seed: int, frame: int) -> torch.Tensor:
@@ -35,6 +39,7 @@ def fresh_problem(content: np.ndarray, noise: torch.Tensor) -> Problem:
 
 def temporal_problem(
     content: np.ndarray, earlier: Sequence[tuple[FlowPair, np.ndarray]], noise: torch.Tensor,
+    interpolation: str = "linear",
 ) -> Problem:
     """Starting image and temporal targets of a frame from earlier stylised frames.
 
@@ -44,6 +49,7 @@ def temporal_problem(
     earlier : (flows between this frame and an earlier one, that frame stylised (H, W, 3)),
         most recent first; the first is the previous frame
     noise : (1, 3, H, W) noise for pixels that start from the content frame
+    interpolation : the warp's resampling filter (:data:`framestyle.motion.WARP_FILTERS`)
 
     The previous stylised frame is warped into this frame along the backward flow; pixels the
     forward-backward check marks unreliable (disocclusions, motion boundaries) start from the
@@ -51,7 +57,7 @@ def temporal_problem(
     temporal target with the long-term weights of Ruder et al. 2016 (Sec. 3.2), so a pixel is
     tied only to the most recent frame in which it was visible.
     """
-    warped = [warp(stylised, flows.backward) for flows, stylised in earlier]
+    warped = [_warped(stylised, flows, interpolation) for flows, stylised in earlier]
     masks = [flows.current_mask() for flows, _ in earlier]
     weights = long_term_masks(masks)
     fresh = to_tensor(content) + noise
@@ -59,3 +65,68 @@ def temporal_problem(
     init = first * to_tensor(warped[0]) + (1 - first) * fresh
     pairs = [(to_tensor(w), torch.from_numpy(c)[None, None]) for w, c in zip(warped, weights)]
     return Problem(to_tensor(content), init, pairs)
+
+
+def pass_start(previous: np.ndarray, warped: np.ndarray, mask: np.ndarray, delta: float = BLEND) -> np.ndarray:
+    """The start of a frame in a pass after the first (Ruder et al. 2016, multi-pass algorithm).
+
+        x'⁽ⁱ⁾₍ⱼ₎ = δ c ∘ ω(x⁽ⁿ⁾₍ⱼ₎) + (δ̄ 1 + δ c̄) ∘ x⁽ⁱ⁾₍ⱼ₋₁₎,   δ̄ = 1 − δ, c̄ = 1 − c
+
+    with x⁽ⁱ⁾₍ⱼ₋₁₎ the frame's own result of the pass before, ω(x⁽ⁿ⁾₍ⱼ₎) its neighbour in
+    this pass's direction (n = i − 1 going forward, i + 1 going backward), already solved
+    in this pass and warped into frame i, and c the reliability of frame i's pixels for that
+    warp (``c⁽ⁿ'ⁱ⁾``). The weights of the two images add up to 1 at every pixel; where the
+    neighbour is not visible (c = 0) the frame keeps its own result.
+
+    Parameters
+    ----------
+    previous, warped : (H, W, 3) arrays
+    mask : (H, W) reliability c in [0, 1]
+    delta : δ in [0, 1]
+
+    Returns
+    -------
+    (H, W, 3) float32 array
+
+    References
+    ----------
+    Ruder, Dosovitskiy & Brox (2016), "Artistic style transfer for videos", GCPR, the
+    multi-pass algorithm (Sec. 3.3 as issue 15 cites it; section number not checked).
+    """
+    if not 0.0 <= delta <= 1.0:
+        raise ValueError(f"delta must be in [0, 1], got {delta}")
+    c = np.asarray(mask, np.float32)[..., None]  # (H, W, 1)
+    return (delta * c * warped + ((1.0 - delta) + delta * (1.0 - c)) * previous).astype(np.float32)
+
+
+def pass_problem(
+    content: np.ndarray, previous: np.ndarray, neighbour: tuple[FlowPair, np.ndarray] | None,
+    interpolation: str = "linear", delta: float = BLEND,
+) -> Problem:
+    """Starting image and temporal target of a frame in a pass after the first.
+
+    Parameters
+    ----------
+    content : (H, W, 3) source frame at working size
+    previous : (H, W, 3) the frame's own result of the pass before
+    neighbour : (flows between this frame (current) and its neighbour in the pass's direction,
+        the neighbour's result in this pass (H, W, 3)); None for the first frame of the pass
+        (or of a chain inside the shot), which starts from its own result alone
+    interpolation : the warp's resampling filter
+
+    The start is :func:`pass_start`; the temporal loss ties the frame to the warped neighbour
+    with the reliability mask as weights (Ruder et al. 2016, Eq. 7).
+    """
+    if neighbour is None:
+        return Problem(to_tensor(content), to_tensor(previous))
+    flows, stylised = neighbour
+    warped = _warped(stylised, flows, interpolation)
+    mask = flows.current_mask()
+    start = pass_start(previous, warped, mask, delta)
+    return Problem(to_tensor(content), to_tensor(start), [(to_tensor(warped), torch.from_numpy(mask)[None, None])])
+
+
+def _warped(stylised: np.ndarray, flows: FlowPair, interpolation: str) -> np.ndarray:
+    """A stylised (H, W, 3) frame warped into the current frame, kept in [0, 1] (a cubic or
+    Lanczos filter overshoots a little at sharp edges)."""
+    return np.clip(warp(stylised, flows.backward, interpolation), 0.0, 1.0)

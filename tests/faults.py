@@ -69,7 +69,10 @@ class Hook:
 
 
 def prepare_parent() -> None:
-    """Make this process safe to fork renders from: one thread for torch and OpenCV."""
+    """Make this process safe to fork renders from: one thread for torch and OpenCV; and
+    import the flash check's plotting here once rather than in every child."""
+    import framestyle.qc.flash_plot  # noqa: F401  (matplotlib)
+
     torch.set_num_threads(1)
     cv2.setNumThreads(1)
 

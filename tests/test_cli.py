@@ -172,13 +172,30 @@ def test_shots_command_cut_list_longer_than_the_clip_is_one_line_error(plate, tm
 
 def test_stability_command_reports_render_and_source(small_clip, tmp_path):
     _run("stylise", small_clip, "--style", STYLE, "--out", tmp_path, "-q", *FAST)
-    code, out, _ = _run("stability", tmp_path, "--source", small_clip, "--json")
+    code, out, _ = _run("stability", tmp_path, "--source", small_clip, "--json", "--detail-frames", "0")
     assert code == 0
     report = json.loads(out)
     assert [s["shot"] for s in report["shots"]] == [1, 2]
     assert report["overall"]["render"] > 0 and report["overall"]["source"] > 0
-    code, out, _ = _run("stability", tmp_path, "--source", small_clip)
+    assert all(s["detail"] == [] for s in report["shots"])
+    code, out, _ = _run("stability", tmp_path, "--source", small_clip, "--detail-frames", "2")
     assert "all" in out and "warping error" in out
+    # frames 5 and 10 of shot 1, 15 and 20 of shot 2 (the folder's numbers), each with its ratio
+    assert [line.split()[4::2] for line in out.splitlines()[1:3]] == [["5:", "10:"], ["15:", "20:"]]
+    assert "stroke detail" in out
+
+
+def test_a_frame_by_frame_render_keeps_exactly_the_detail_of_frames_rendered_on_their_own(small_clip, tmp_path):
+    # With the temporal terms off every frame is rendered on its own: the reference the
+    # detail measure renders again must be the very same frame, ratio 1.
+    _run("stylise", small_clip, "--style", STYLE, "--out", tmp_path, "-q", *FAST, "--no-temporal", "--shots", "1")
+    code, out, err = _run("stability", tmp_path, "--source", small_clip, "--json", "--detail-frames", "2")
+    assert code == 2 and "holds 10 frames but the source has 20" in err  # half a render is refused
+    _run("stylise", small_clip, "--style", STYLE, "--out", tmp_path, "-q", *FAST, "--no-temporal")
+    code, out, _ = _run("stability", tmp_path, "--source", small_clip, "--json", "--detail-frames", "2")
+    assert code == 0
+    ratios = [d["ratio"] for s in json.loads(out)["shots"] for d in s["detail"]]
+    assert ratios == [1.0, 1.0, 1.0, 1.0]
 
 
 # --- bad input: one line naming the file and the problem, exit 2, nothing finished touched ---

@@ -7,6 +7,7 @@ from scipy import ndimage
 
 from framestyle.motion import (
     FLOW_PRESETS,
+    WARP_FILTERS,
     _to_gray_u8,
     compute_flow,
     long_term_masks,
@@ -88,6 +89,66 @@ def test_warp_by_rotation_flow_matches_analytic_rotation_and_warp_affine():
     ref = cv2.warpAffine(image, m, (W, H), flags=cv2.INTER_LINEAR | cv2.WARP_INVERSE_MAP,
                          borderMode=cv2.BORDER_REPLICATE)
     np.testing.assert_allclose(out[inside], ref[inside], atol=2e-3)
+
+
+def _keys_cubic(t):
+    """Keys (1981) cubic convolution kernel with a = -0.75, the value OpenCV's INTER_CUBIC uses
+    (OpenCV imgproc's interpolateCubic; from memory)."""
+    a, t = -0.75, np.abs(t)
+    return np.where(t <= 1, (a + 2) * t**3 - (a + 3) * t**2 + 1,
+                    np.where(t < 2, a * t**3 - 5 * a * t**2 + 8 * a * t - 4 * a, 0.0))
+
+
+def _lanczos4(t):
+    """Lanczos kernel with a = 4 (8 taps), sinc(t) sinc(t / 4) (Duchon 1979); OpenCV's
+    INTER_LANCZOS4 normalises the 8 taps to sum to 1 (from memory)."""
+    return np.where(np.abs(t) < 4, np.sinc(t) * np.sinc(t / 4), 0.0)
+
+
+@pytest.mark.parametrize("name, flag, kernel, taps", [
+    ("linear", cv2.INTER_LINEAR, lambda t: np.maximum(1 - np.abs(t), 0), 2),
+    ("cubic", cv2.INTER_CUBIC, _keys_cubic, 4),
+    ("lanczos", cv2.INTER_LANCZOS4, _lanczos4, 8),
+])
+def test_warp_filters_match_opencv_and_their_published_kernels_on_a_known_shift(name, flag, kernel, taps):
+    rng = np.random.default_rng(7)
+    image = rng.random((H, W, 3), dtype=np.float32)  # white noise: every frequency counts
+    dx, dy = 2.25, -1.0  # 2.25 lies on OpenCV's 1/32-pixel interpolation grid: no rounding
+    out = warp(image, _constant_flow(dx, dy), name)
+    # Reference library: OpenCV's remap and warpAffine (inverse map) with the same interpolation.
+    xs, ys = np.meshgrid(np.arange(W, dtype=np.float32), np.arange(H, dtype=np.float32))
+    np.testing.assert_array_equal(out, cv2.remap(image, xs + dx, ys + dy, flag, borderMode=cv2.BORDER_REPLICATE))
+    m = np.float32([[1, 0, dx], [0, 1, dy]])
+    ref = cv2.warpAffine(image, m, (W, H), flags=flag | cv2.WARP_INVERSE_MAP, borderMode=cv2.BORDER_REPLICATE)
+    np.testing.assert_allclose(out, ref, atol=1e-5)
+    # The published kernel: out(x) = sum_k w(x + dx - k) I(k) over the taps around x + dx, the
+    # weights normalised to sum to 1; the whole-pixel dy is an exact row shift.
+    offsets = np.arange(-(taps // 2) + 1, taps // 2 + 1)  # taps at floor(x + dx) + offsets
+    weights = kernel(0.25 - offsets)
+    weights = weights / weights.sum()
+    expected = sum(w * np.roll(image, (1, -(2 + int(o))), axis=(0, 1)) for w, o in zip(weights, offsets))
+    interior = np.s_[2:-2, 8:-8]
+    np.testing.assert_allclose(out[interior], expected[interior], atol=2e-5)
+
+
+def test_sharper_warp_filters_keep_more_detail_through_a_chain_of_half_pixel_warps():
+    # Why the render warps with more than bilinear: ten warps by half a pixel (there and back)
+    # should give the image back; each filter loses some of the finest detail on the way.
+    image = _rgb(_texture((H, W), 0.7, np.random.default_rng(8)))
+    def energy(x):
+        return float(np.mean(cv2.Laplacian(x[8:-8, 8:-8], cv2.CV_32F) ** 2))
+    kept = {}
+    for name in WARP_FILTERS:
+        out = image
+        for k in range(10):
+            out = warp(out, _constant_flow(0.5 if k % 2 == 0 else -0.5, 0.0), name)
+        kept[name] = energy(out) / energy(image)
+    assert kept["linear"] < 0.5 < kept["cubic"] < kept["lanczos"] < 1.05
+
+
+def test_warp_rejects_an_unknown_filter():
+    with pytest.raises(ValueError, match="unknown warp filter"):
+        warp(np.zeros((H, W, 3), np.float32), np.zeros((H, W, 2), np.float32), "nearest")
 
 
 @pytest.mark.parametrize("shape", [(H, W), (H, W, 1), (H, W, 2), (H, W, 5)])

@@ -48,7 +48,7 @@ def test_manifest_records_settings_shots_and_every_frame(full_render, small_clip
     assert len(store.Store(out).finished()) == 20
     assert manifest["settings"] == fast_settings().to_dict()
     assert manifest["inputs"]["input"] == str(small_clip.resolve())
-    assert (out / "render.log").read_text().count("shot 2 done") == 1
+    assert (out / "render.log").read_text().count("shot 2 (11-20) done") == 1
     assert not any(out.rglob("*.npy"))  # the kept state goes when its shot is done
 
 

@@ -22,9 +22,13 @@ from framestyle.qc.flashes import AREA_LIMIT, KINDS, MAX_FLASHES, FlashReport
 
 _COLOURS = {"general": "#1f4e9c", "red": "#c0392b"}
 _SHORT_NAMES = {"wcag21": "WCAG 2.1", "bt1702": "BT.1702"}
-_PANEL_HEIGHT = 3.6  # inches per labelled report
 _WIDTH = 11.0  # inches
 _DPI = 100
+# A panel's rows in inches, top to bottom: title, flashes axis, gap, area axis, time labels.
+# Fixed margins rather than a layout engine: constrained layout doubled the drawing time.
+_TITLE, _FLASH_AXIS, _GAP, _AREA_AXIS, _TIME_LABELS = 0.35, 1.25, 0.12, 1.35, 0.55
+_PANEL_HEIGHT = _TITLE + _FLASH_AXIS + _GAP + _AREA_AXIS + _TIME_LABELS
+_LEFT, _RIGHT = 0.8, 0.15  # inches
 
 
 def _time_formatter(report: FlashReport) -> FuncFormatter:
@@ -93,12 +97,18 @@ def plot_flash_timeline(reports: Mapping[str, FlashReport], path: str | os.PathL
     """
     if not reports:
         raise ValueError("no flash reports to plot")
-    fig = Figure(figsize=(_WIDTH, _PANEL_HEIGHT * len(reports)), dpi=_DPI, layout="constrained")
+    height = _PANEL_HEIGHT * len(reports)
+    fig = Figure(figsize=(_WIDTH, height), dpi=_DPI)
     FigureCanvasAgg(fig)
-    axes = fig.subplots(2 * len(reports), 1, squeeze=False)[:, 0]
+
+    def axis(top: float, rows: float, share=None):  # top and rows in inches from the figure's top
+        box = (_LEFT / _WIDTH, 1 - (top + rows) / height, 1 - (_LEFT + _RIGHT) / _WIDTH, rows / height)
+        return fig.add_axes(box, sharex=share)
+
     for i, (label, report) in enumerate(reports.items()):
-        flash_axis, area_axis = axes[2 * i], axes[2 * i + 1]
-        area_axis.sharex(flash_axis)
+        top = i * _PANEL_HEIGHT + _TITLE
+        flash_axis = axis(top, _FLASH_AXIS)
+        area_axis = axis(top + _FLASH_AXIS + _GAP, _AREA_AXIS, share=flash_axis)
         flash_axis.tick_params(labelbottom=False)
         _draw(report, label, flash_axis, area_axis)
     with atomic.atomic_path(path) as tmp:

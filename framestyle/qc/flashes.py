@@ -145,10 +145,12 @@ def linear_rgb(rgb: np.ndarray) -> np.ndarray:
     IEC 61966-2-1:1999 (sRGB transfer function); WCAG 2.1 "relative luminance".
     """
     rgb = _check_frame(rgb)
-    # THRESH_TOZERO sets negatives and NaN to black (convertScaleAbs alone would mirror
-    # negatives); the 8-bit conversion rounds and saturates above 1. Both run vectorised
-    # in OpenCV, and the table replaces a per-pixel power.
-    _, clipped = cv2.threshold(rgb, 0.0, 0.0, cv2.THRESH_TOZERO)
+    # THRESH_TOZERO sets negatives to black (convertScaleAbs alone would mirror them) and
+    # patchNaNs NaN (which the threshold passes through, and the 8-bit conversion would
+    # saturate to white); the 8-bit conversion rounds and saturates above 1. All run
+    # vectorised in OpenCV, and the table replaces a per-pixel power.
+    _, clipped = cv2.threshold(rgb.astype(np.float32, copy=False), 0.0, 0.0, cv2.THRESH_TOZERO)
+    cv2.patchNaNs(clipped, 0.0)  # float32 only in OpenCV 4
     codes = cv2.convertScaleAbs(clipped, alpha=255.0)
     return cv2.LUT(codes, _LINEAR_LUT)
 

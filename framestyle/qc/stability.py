@@ -4,7 +4,8 @@ The flow and the occlusion mask come from the *source* frames, so the measure as
 stylised frames change where the source scene itself only moved. It is computed between
 consecutive frames of the same shot only (a cut is meant to change), and the same figure for
 the source footage is the reference: a render cannot be steadier than its footage's own
-change along the motion.
+change along the motion. Beside it, each shot's stroke-detail ratio at a few frames
+(:mod:`framestyle.qc.detail`) shows what the steadiness costs in fine detail.
 
 References
 ----------
@@ -15,8 +16,8 @@ ECCV (the warping error of its evaluation section; section number not checked).
 from __future__ import annotations
 
 import math
-from collections.abc import Iterable
-from dataclasses import dataclass
+from collections.abc import Callable, Iterable, Iterator, Sequence
+from dataclasses import dataclass, field
 from pathlib import Path
 
 import numpy as np
@@ -29,6 +30,9 @@ from framestyle.shots.lists import frame_range
 
 from framestyle.imaging import resize
 from framestyle.motion import FlowPair, check_rgb, warp
+from framestyle.qc.detail import detail_frames, detail_ratio
+from framestyle.settings import Settings
+from framestyle.working import working_size
 
 _END = object()  # end-of-sequence marker for next()
 
@@ -154,6 +158,11 @@ class ShotStability:
     frames: str  # first and last frame in the source's numbers
     render: float  # mean warping error of the stylised frames
     source: float  # the same for the source footage
+    detail: list[tuple[int, float]] = field(default_factory=list)  # (frame number, stroke-detail ratio)
+
+
+Alone = Callable[[Sequence[int]], Iterator[tuple[int, np.ndarray]]]
+"""Renders frames of a render each on its own, as :func:`framestyle.pipeline.frames_alone`."""
 
 
 def _shots(out: Path, source: io.FrameSource) -> list[Shot]:
@@ -163,26 +172,39 @@ def _shots(out: Path, source: io.FrameSource) -> list[Shot]:
     return detect_shots([frame_signature(f) for _, f in io.iter_frames(source)])
 
 
-def stability(out: Path, source_path: Path, preset: str = "medium") -> list[ShotStability]:
-    """Warping error per shot of the frames in ``out`` against the source at ``source_path``.
+def stability(out: Path, source_path: Path, preset: str = "medium", alone: Alone | None = None,
+              detail_count: int = 3) -> list[ShotStability]:
+    """Warping error per shot of the frames in ``out`` against the source at ``source_path``,
+    and with ``alone`` the stroke-detail ratio of ``detail_count`` frames of each shot.
 
-    The shot list comes from the render's manifest, or is detected on the source.
+    The shot list comes from the render's manifest, or is detected on the source. The detail
+    ratios compare the render's frames with the same frames rendered on their own by
+    ``alone``, both brought to the render's working size; they need the manifest.
     """
     out = Path(out)
     source = io.open_source(Path(source_path))
     rendered = io.open_source(out)
     if rendered.count != source.count:
         raise FramestyleError(f"{out}: holds {rendered.count} frames but the source has {source.count}")
+    manifest = store.read_manifest(out)
+    if alone is not None and manifest is None:
+        raise FramestyleError(f"{out}: no {store.MANIFEST}; the detail measure needs the render's settings")
     result = []
     for shot in _shots(out, source):
         def stream(clip):  # frames of this shot, read as needed: memory does not grow
             return (f for _, f in io.iter_frames(clip, shot.start, shot.end + 1))
 
-        result.append(ShotStability(
+        row = ShotStability(
             shot, frame_range(shot, source.numbers),
             sequence_warping_error(stream(rendered), stream(source), preset),
             sequence_warping_error(stream(source), stream(source), preset),
-        ))
+        )
+        if alone is not None:
+            width = Settings.from_dict(manifest["settings"]).for_shot(shot.index).width
+            size = working_size(source.width, source.height, width, 1)
+            row.detail = [(source.numbers[i], detail_ratio(io.read_frame(rendered, i), image, size))
+                          for i, image in alone(detail_frames(shot, detail_count))]
+        result.append(row)
     return result
 
 

@@ -23,14 +23,18 @@ from __future__ import annotations
 import copy
 import os
 from pathlib import Path
-from typing import Sequence
+from typing import TYPE_CHECKING, Sequence
 
 import opentimelineio as otio
 
+from framestyle import io
 from framestyle.atomic import write_bytes
 from framestyle.errors import FramestyleError
 from framestyle.shots.shot import Shot, check_contiguous
 from framestyle.timecode import ClipTimecode, exact_rate, frame_to_timecode, ntsc_nominal
+
+if TYPE_CHECKING:
+    from framestyle.settings import Settings
 
 # OpenTimelineIO adapters by file extension; an EDL is CMX 3600, the common interchange
 # layout (the cmx_3600 adapter is a plugin package since OpenTimelineIO 0.16).
@@ -121,6 +125,15 @@ def cut_list_timecode(path: str | os.PathLike, timecode: ClipTimecode) -> ClipTi
     if timecode.start is not None:
         return timecode
     return ClipTimecode(timecode.fps, _label(_record_ranges(path, timecode)[0][0], timecode))
+
+
+def clip_timecode(source: io.FrameSource, settings: Settings, shot_file: Path | None = None) -> ClipTimecode:
+    """How the source's frames are labelled: the settings' rate and start timecode, else the
+    video's; an editor's cut list places a clip without timecode of its own."""
+    timecode = io.source_timecode(source, settings.fps, settings.start_timecode)
+    if shot_file is not None and cut_list_adapter(shot_file):
+        timecode = cut_list_timecode(shot_file, timecode)
+    return timecode
 
 
 def _record_ranges(path: str | os.PathLike, timecode: ClipTimecode) -> list[tuple[int, int]]:
