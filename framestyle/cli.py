@@ -49,7 +49,7 @@ def _check_path(path: Path, what: str) -> Path:
 def _settings_options(
     style: Annotated[Optional[list[Path]], typer.Option("--style", "-s", help="Style image; repeat to mix several.")] = None,
     look: Annotated[Optional[Path], typer.Option(help="TOML look file with settings (and per-shot looks); options given here override it.")] = None,
-    width: Annotated[Optional[int], typer.Option(help=f"Working width in pixels, never above the source's (default {Settings.width}).")] = None,
+    width: Annotated[Optional[int], typer.Option(help="Working width in pixels, never above the source's (default 480; 1280 for sources wider than 1280).")] = None,
     iterations: Annotated[Optional[int], typer.Option(help=f"Most solver iterations per frame (default {Settings.iterations}).")] = None,
     style_weight: Annotated[Optional[float], typer.Option(help=f"Weight of the Gram style loss: higher, more paint (default {Settings.style_weight}).")] = None,
     content_weight: Annotated[Optional[float], typer.Option(help=f"Weight of the content loss: higher, more footage (default {Settings.content_weight}).")] = None,
@@ -59,7 +59,7 @@ def _settings_options(
     strength: Annotated[Optional[float], typer.Option(help="0 = the footage, 1 = full style (default 1).")] = None,
     matte: Annotated[Optional[str], typer.Option(help="Folder of matte frames (white = stylise), or 'alpha' for the input's alpha.")] = None,
     matte_softness: Annotated[Optional[float], typer.Option(help=f"Soft matte edge, Gaussian sigma in pixels (default {Settings.matte_softness}).")] = None,
-    levels: Annotated[Optional[int], typer.Option(help="Coarse-to-fine levels: solve at 1/2, 1/4 ... of the size first (default 1 = off).")] = None,
+    levels: Annotated[Optional[int], typer.Option(help="Coarse-to-fine levels for a shot's first frame: solve at 1/2, 1/4 ... of the size first (default: 1 up to 640 pixels wide, above that enough for the first level to be at most 480 wide).")] = None,
     warm_levels: Annotated[Optional[int], typer.Option(help=f"Coarse-to-fine levels for frames that start from the previous stylised frame (default {Settings.warm_levels}).")] = None,
     network: Annotated[Optional[str], typer.Option(help=f"Perceptual network: efficientnet-lite0 or vgg19 (default {Settings.network}).")] = None,
     network_weights: Annotated[Optional[Path], typer.Option(help="Weights file for the network (needed for vgg19 offline).")] = None,

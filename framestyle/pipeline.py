@@ -693,7 +693,7 @@ def preview(input_path: Path, out: Path, settings: Settings, every: int, *, widt
     """
     if every < 1:
         raise FramestyleError(f"--every {every}: must be 1 or more")
-    width = width or min(settings.width, PREVIEW_WIDTH)
+    width = width or min(settings.width or PREVIEW_WIDTH, PREVIEW_WIDTH)
     settings = dataclasses.replace(settings, width=width, shot_looks={
         n: {**look, "width": width} for n, look in settings.shot_looks.items()})
     source, net = open_render(input_path, out, settings)

@@ -49,7 +49,8 @@ class Settings:
     strength: Annotated[float, Field(ge=0, le=1)] = 1.0  # 0 = the footage, 1 = full style
     matte: str | None = None  # folder of matte frames (white = stylise), or "alpha" for the input's
     matte_softness: _NonNegative = 2.0  # soft matte edge: Gaussian sigma in source pixels
-    levels: Annotated[int, Field(ge=1, le=6)] = 1  # coarse-to-fine levels: first solve at 1/2**(levels-1)
+    levels: Annotated[int, Field(ge=1, le=6)] | None = None  # coarse-to-fine levels: first solve at
+    #                                 1/2**(levels-1); None: by working width (style.solver.coarse_levels)
     warm_levels: Annotated[int, Field(ge=1, le=6)] = 1  # the same for frames that start from the previous one
     shot_looks: dict[str, dict[str, Any]] = dataclasses.field(default_factory=dict)  # {"2": {"strength": 0.5}}
     # --- network and solver -----------------------------------------------------------------
@@ -57,7 +58,8 @@ class Settings:
     network_weights: str | None = None  # a state_dict file instead of the network's default weights
     style_layers: Annotated[tuple[str, ...], _List] = ()  # empty: the network's default style layers
     content_layer: str = ""  # empty: the network's default content layer
-    width: Annotated[int, Field(ge=1)] = 480  # working width in pixels (never above the source width)
+    width: Annotated[int, Field(ge=1)] | None = None  # working width in pixels (never above the source
+    #                                 width); None: 480, or 1280 for sources wider than 1280 (working.py)
     iterations: Annotated[int, Field(ge=1)] = 300  # most L-BFGS iterations for one frame
     tolerance: _NonNegative = 0.01  # stop when the loss falls by less than this fraction in 10
     #                                 iterations (half of it for a shot's first frame)

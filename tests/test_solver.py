@@ -118,3 +118,14 @@ def test_warm_coarse_to_fine_keeps_temporal_terms_at_every_level_and_the_starts_
     assert seen == [[(72, 128)] * 2, [(144, 256)] * 2]
     lost_by_upsampling = (resize_tensor(resize_tensor(previous, (128, 72)), size) - previous).abs().mean()
     assert (image - previous).abs().mean() < 0.5 * lost_by_upsampling
+
+
+def test_hd_sources_work_at_1280_by_default_and_solve_their_first_frames_coarse_to_fine():
+    # Defaults of our own (README "HD sources"): a 1080p source works at 1280×720, a 720p or
+    # smaller one at 480 as before; first frames above 640 pixels start at most 480 wide.
+    from framestyle.working import working_size
+
+    assert working_size(1920, 1080, None, 64) == (1280, 720)
+    assert working_size(1280, 720, None, 64) == (480, 270)
+    assert working_size(1920, 1080, 1920, 64) == (1920, 1080)
+    assert [solver.coarse_levels(w) for w in (480, 640, 960, 1280, 1920)] == [1, 1, 2, 3, 3]

@@ -17,6 +17,7 @@ Example
 from __future__ import annotations
 
 import functools
+import math
 from dataclasses import dataclass, field, replace
 from typing import Callable, Sequence
 
@@ -40,7 +41,7 @@ class SolverParams:
     temporal_weight: float = 50.0  # weight of the short- and long-term temporal losses
     iterations: int = 300  # most L-BFGS iterations (at the coarsest level with several)
     tolerance: float = 0.01  # stop when the loss falls by less than this fraction per 10 iterations
-    levels: int = 1  # coarse-to-fine levels for frames without temporal terms
+    levels: int | None = None  # coarse-to-fine levels for frames without temporal terms (None: coarse_levels)
     warm_levels: int = 1  # coarse-to-fine levels for frames with temporal terms (warm-started)
     content_layer: str = ""  # empty: the network's default content layer
     precision: str = "float32"  # the network's arithmetic: "float32" or "bfloat16" (autocast)
@@ -195,14 +196,14 @@ def solve_coarse_to_fine(
     Parameters
     ----------
     targets : style targets for a frame size (w, h), e.g. :meth:`framestyle.style.look.Look.targets`
-    params : ``levels`` and ``warm_levels`` (1 = plain :func:`solve`)
+    params : ``levels`` (None: :func:`coarse_levels`) and ``warm_levels`` (1 = plain :func:`solve`)
 
     Returns
     -------
     image, stats (iterations summed over the levels)
     """
     h, w = problem.content.shape[-2:]
-    levels = params.warm_levels if problem.temporal else params.levels
+    levels = params.warm_levels if problem.temporal else params.levels or coarse_levels(w)
     sizes = [(round(w / 2**k), round(h / 2**k)) for k in reversed(range(levels))]
     sizes = [s for s in sizes[:-1] if min(s) >= net.min_side] + [(w, h)]
     image, used = None, 0
@@ -212,6 +213,16 @@ def solve_coarse_to_fine(
         image, stats = solve(net, level, targets(size), params, min(cap, max(2 * _CHUNK, cap // 4**k)))
         used += stats.iterations
     return image, replace(stats, iterations=used)
+
+
+def coarse_levels(width: int) -> int:
+    """Default levels for a frame ``width`` wide: 1 up to 640 pixels, else enough that the
+    coarsest level is at most 480 wide (960 → 2, 1280 → 3, 1920 → 3).
+
+    Measured on a 1280×720 first frame (benchmarks/coarse_to_fine.py): three levels 96 s,
+    one level 281 s; the warm-started frames that follow refine it at full size.
+    """
+    return 1 if width <= 640 else 1 + math.ceil(math.log2(width / 480))
 
 
 def _at_size(problem: Problem, size: tuple[int, int], coarser: torch.Tensor | None) -> Problem:
