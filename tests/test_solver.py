@@ -82,7 +82,7 @@ def test_bfloat16_network_losses_stay_within_a_few_percent_of_float32(setup):
     # paths then differ, so style and content may trade places a little).
     net, targets, content = setup
     problem = _problem(content)
-    f32 = SolverParams(iterations=15, tolerance=0.0)
+    f32 = SolverParams(iterations=10, tolerance=0.0)
     b16 = dataclasses.replace(f32, precision="bfloat16")
     _, a = solve(net, problem, targets, f32, 1)
     _, b = solve(net, problem, targets, b16, 1)
