@@ -170,7 +170,7 @@ def plan_render(
         manifest = store.manifest()
         if manifest is not None:
             check_resume(manifest, settings, inputs, None if keep_shot_list else shot_list, store.out)
-            for change in environment_changes(manifest, environment()):
+            for change in environment_changes(manifest, environment(net)):
                 progress("warning", message=f"resumed under {change}: frames may differ in the last bits "
                                             f"from an uninterrupted render")
             shot_list_ = tuple(Shot(s["shot"], s["start"], s["end"]) for s in manifest["shots"])
@@ -180,7 +180,7 @@ def plan_render(
             store.log(f"frames numbered {source.numbers[0]}-{source.numbers[-1]}, first frame at timecode "
                       f"{clip_timecode(source, settings, shot_file).label(0)}")
             store.create({"settings": settings.to_dict(), "inputs": inputs, "shot_list": shot_list,
-                          "shots": [s.to_dict() for s in shot_list_], "environment": environment(),
+                          "shots": [s.to_dict() for s in shot_list_], "environment": environment(net),
                           "created": time.strftime("%Y-%m-%dT%H:%M:%S%z")})
             store.log(f"new render of {source.path}, settings {settings.digest()}, "
                       f"shots {', '.join(f'{s.index}:{frame_range(s, source.numbers)}' for s in shot_list_)}")
@@ -226,11 +226,12 @@ def finish_render(plan: Plan, progress: Progress = no_progress) -> RenderResult:
     return result
 
 
-def environment() -> dict:
-    """Library versions and thread count a render runs under (recorded; a resume compares)."""
+def environment(net: FeatureNet) -> dict:
+    """Library versions, thread count and the network's device a render runs under (recorded;
+    a resume compares)."""
     versions = {name: _version(name) for name in ("framestyle", "torch", "numpy", "opencv-python-headless",
                                                    "openimageio")}
-    return {**versions, "torch threads": torch.get_num_threads()}
+    return {**versions, "torch threads": torch.get_num_threads(), "device": str(net.device)}
 
 
 def _version(package: str) -> str | None:
@@ -251,7 +252,7 @@ def open_render(input_path: Path, out: Path, settings: Settings) -> tuple[io.Fra
 
 def check_render(source: io.FrameSource, settings: Settings) -> FeatureNet:
     """Check every setting (and every shot's overrides) against ``source``; return the network."""
-    net = network(settings.network, settings.network_weights)
+    net = network(settings.network, settings.network_weights, settings.device)
     clip_timecode(source, settings)
     if settings.prores and source.linear:
         raise FramestyleError(f"{source.path}: the ProRes hand-off is made from display-referred frames; "
@@ -259,8 +260,9 @@ def check_render(source: io.FrameSource, settings: Settings) -> FeatureNet:
     first = io.read_frame(source, 0)
     variants = [settings] + [settings.for_shot(int(n)) for n in settings.shot_looks]
     for variant in variants:
-        if (variant.network, variant.network_weights) != (settings.network, settings.network_weights):
-            raise FramestyleError("the network cannot change from shot to shot")
+        if (variant.network, variant.network_weights, variant.device) != (settings.network, settings.network_weights,
+                                                                          settings.device):
+            raise FramestyleError("the network and its device cannot change from shot to shot")
         size = working_size(source.width, source.height, variant.width, net.min_side)
         frame = prepare_frame(first, size, variant, source.linear)
         build_look(net, variant, frame.display).targets(size)
@@ -268,10 +270,14 @@ def check_render(source: io.FrameSource, settings: Settings) -> FeatureNet:
     return net
 
 
+def network(name: str, weights: str | None, device: str = "auto") -> FeatureNet:
+    """The perceptual network on its device (one of ``settings.DEVICES``), loaded once per process."""
+    return _network(name, weights, device)
+
+
 @functools.lru_cache(maxsize=2)
-def network(name: str, weights: str | None) -> FeatureNet:
-    """The perceptual network, loaded once per process."""
-    return load_network(name, weights)
+def _network(name: str, weights: str | None, device: str) -> FeatureNet:
+    return load_network(name, weights, device)
 
 
 def find_shots(source: io.FrameSource, settings: Settings, shot_file: Path | None) -> list[Shot]:
@@ -297,7 +303,7 @@ def solver_params(settings: Settings) -> SolverParams:
         style_weight=settings.style_weight, content_weight=settings.content_weight,
         tv_weight=settings.tv_weight, temporal_weight=settings.temporal_weight,
         iterations=settings.iterations, tolerance=settings.tolerance, levels=settings.levels,
-        content_layer=settings.content_layer,
+        warm_levels=settings.warm_levels, content_layer=settings.content_layer, precision=settings.precision,
     )
 
 
@@ -363,7 +369,7 @@ class _ShotRender:
     def __init__(self, plan: Plan, work, settings: Settings, shot: Shot):
         self.plan, self.work, self.settings, self.shot = plan, work, settings, shot
         self.source, self.names = plan.source, plan.names
-        self.net = network(settings.network, settings.network_weights)
+        self.net = network(settings.network, settings.network_weights, settings.device)
         self.size = working_size(self.source.width, self.source.height, settings.width, self.net.min_side)
         self.params = solver_params(settings)
         self.offsets = sorted(settings.long_term) if settings.temporal else []
@@ -606,10 +612,9 @@ def stylise(
     (h, w, 3) float32 result in [0, 1], and the solver's statistics
     """
     noise = start_noise((1, 3, *content.shape[:2]), seed, index)
-    size = (content.shape[1], content.shape[0])
     if earlier:
         problem = temporal_problem(content, earlier, noise, interpolation)
-        image, stats = solve(look.net, problem, look.targets(size), params)
+        image, stats = solve_coarse_to_fine(look.net, problem, look.targets, params)
     else:
         anchor = dataclasses.replace(params, tolerance=params.tolerance / 2) if temporal else params
         image, stats = solve_coarse_to_fine(look.net, fresh_problem(content, noise), look.targets, anchor)
@@ -659,8 +664,8 @@ def frames_alone(out: Path, source_path: Path, indices: Sequence[int]) -> Iterat
     shots = [Shot(s["shot"], s["start"], s["end"]) for s in manifest["shots"]]
     chosen = {i: next(s for s in shots if s.start <= i <= s.end) for i in indices}
     levels = 2 ** _output_depth(source) - 1
-    for index, _, _, delivered, _, _ in _stylised_alone(source, network(settings.network, settings.network_weights),
-                                                        settings, chosen, source.linear):
+    net = network(settings.network, settings.network_weights, settings.device)
+    for index, _, _, delivered, _, _ in _stylised_alone(source, net, settings, chosen, source.linear):
         yield index, delivered if source.linear else np.round(delivered * levels) / levels
 
 
@@ -693,7 +698,7 @@ def preview(input_path: Path, out: Path, settings: Settings, every: int, *, widt
     """
     if every < 1:
         raise FramestyleError(f"--every {every}: must be 1 or more")
-    width = width or min(settings.width, PREVIEW_WIDTH)
+    width = width or min(settings.width or PREVIEW_WIDTH, PREVIEW_WIDTH)
     settings = dataclasses.replace(settings, width=width, shot_looks={
         n: {**look, "width": width} for n, look in settings.shot_looks.items()})
     source, net = open_render(input_path, out, settings)

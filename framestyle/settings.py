@@ -24,8 +24,11 @@ from framestyle.finish.compose import COLOURS
 from framestyle.motion import FLOW_PRESETS, WARP_FILTERS
 
 NETWORKS = ("efficientnet-lite0", "vgg19")
-DEVICES = ("auto", "cpu", "cuda", "mps")  # where the network runs (style.network.resolve_device)
 """Perceptual networks (see :mod:`framestyle.style.network`)."""
+DEVICES = ("auto", "cpu", "cuda", "mps")
+"""Where the network runs; "auto" is a GPU torch sees (CUDA, then Apple's MPS), else the CPU."""
+PRECISIONS = ("float32", "bfloat16")
+"""The network's arithmetic; bfloat16 runs it under autocast, Gram matrices and losses stay float32."""
 
 _NonNegative = Annotated[float, Field(ge=0)]
 _Fraction = Annotated[float, Field(gt=0, le=1)]
@@ -46,18 +49,23 @@ class Settings:
     strength: Annotated[float, Field(ge=0, le=1)] = 1.0  # 0 = the footage, 1 = full style
     matte: str | None = None  # folder of matte frames (white = stylise), or "alpha" for the input's
     matte_softness: _NonNegative = 2.0  # soft matte edge: Gaussian sigma in source pixels
-    levels: Annotated[int, Field(ge=1, le=6)] = 1  # coarse-to-fine levels: first solve at 1/2**(levels-1)
+    levels: Annotated[int, Field(ge=1, le=6)] | None = None  # coarse-to-fine levels: first solve at
+    #                                 1/2**(levels-1); None: by working width (style.solver.coarse_levels)
+    warm_levels: Annotated[int, Field(ge=1, le=6)] = 1  # the same for frames that start from the previous one
     shot_looks: dict[str, dict[str, Any]] = dataclasses.field(default_factory=dict)  # {"2": {"strength": 0.5}}
     # --- network and solver -----------------------------------------------------------------
     network: Literal[NETWORKS] = "efficientnet-lite0"  # perceptual network
     network_weights: str | None = None  # a state_dict file instead of the network's default weights
     style_layers: Annotated[tuple[str, ...], _List] = ()  # empty: the network's default style layers
     content_layer: str = ""  # empty: the network's default content layer
-    width: Annotated[int, Field(ge=1)] = 480  # working width in pixels (never above the source width)
+    width: Annotated[int, Field(ge=1)] | None = None  # working width in pixels (never above the source
+    #                                 width); None: 480, or 1280 for sources wider than 1280 (working.py)
     iterations: Annotated[int, Field(ge=1)] = 300  # most L-BFGS iterations for one frame
     tolerance: _NonNegative = 0.01  # stop when the loss falls by less than this fraction in 10
     #                                 iterations (half of it for a shot's first frame)
     seed: Annotated[int, Field(ge=0)] = 0  # seeds the noise added where a frame starts from its content
+    device: Literal[DEVICES] = "auto"  # where the network runs (results differ from the CPU's in the last bits)
+    precision: Literal[PRECISIONS] = "float32"  # the network's arithmetic (bfloat16: autocast)
     # --- temporal stability (Ruder et al. 2016) -----------------------------------------------
     temporal: bool = True  # warm start from the warped previous frame + temporal losses
     temporal_weight: _NonNegative = 50.0  # weight of the (short- and long-term) temporal loss

@@ -11,6 +11,7 @@ from typer.testing import CliRunner
 
 from framestyle import store
 from framestyle.cli import app
+from framestyle.style import network
 
 from conftest import SAMPLE, STYLE
 
@@ -298,3 +299,31 @@ def test_a_look_file_with_a_wrong_value_is_one_line_naming_the_file_and_the_key(
     code, _, err = _run("stylise", small_clip, "--look", look, "--out", tmp_path / "o")
     _one_line_error(code, err, "bad.toml")
     assert expected in err
+
+
+@pytest.fixture
+def no_gpu(monkeypatch):
+    """A machine where torch sees no GPU, whatever this one has (the tests run on the CPU)."""
+    monkeypatch.setattr(network, "gpus_seen", lambda: {"cuda": False, "mps": False})
+
+
+def test_device_cpu_gives_the_default_frames(small_clip, tmp_path, no_gpu):
+    # Without a GPU, --device auto is the CPU: the same frames, bit for bit.
+    clip = tmp_path / "clip"
+    clip.mkdir()
+    for path in sorted(small_clip.glob("*.png"))[:3]:  # a warm-started frame after the first, and its next
+        (clip / path.name).write_bytes(path.read_bytes())
+    for out, extra in (("default", []), ("cpu", ["--device", "cpu"])):
+        code, _, err = _run("stylise", clip, "--style", STYLE, "--out", tmp_path / out, "-q", *FAST, *extra)
+        assert code == 0, err
+    names = sorted(p.name for p in (tmp_path / "default").glob("take_*.png"))
+    assert len(names) == 3
+    for name in names:
+        assert np.array_equal(cv2.imread(str(tmp_path / "default" / name)), cv2.imread(str(tmp_path / "cpu" / name)))
+
+
+def test_a_gpu_torch_cannot_see_and_unknown_device_or_precision_are_one_line_errors(small_clip, tmp_path, no_gpu):
+    for option, value in (("--device", "cuda"), ("--device", "mps"), ("--device", "tpu"), ("--precision", "float16")):
+        _one_line_error(*_run("stylise", small_clip, "--style", STYLE, "--out", tmp_path / "o", option, value)[::2],
+                        value)
+    assert not (tmp_path / "o").exists()

@@ -1,5 +1,6 @@
 """The per-frame solver on a real sample frame: style appears, content stays, runs repeat."""
 
+import dataclasses
 from pathlib import Path
 
 import numpy as np
@@ -8,7 +9,8 @@ import torch
 
 from framestyle.io import read_image
 from framestyle.style.network import load_network
-from framestyle.imaging import resize, to_array, to_tensor
+from framestyle.imaging import resize, resize_tensor, to_array, to_tensor
+from framestyle.style import solver
 from framestyle.temporal import fresh_problem, start_noise
 from framestyle.settings import Settings
 from framestyle.style.solver import Problem, SolverParams, solve, style_targets
@@ -71,3 +73,59 @@ def test_style_targets_mix_gram_matrices_by_weight(setup):
     gb = style_targets(net, [b], [1.0], ["stem"])["stem"]
     mixed = style_targets(net, [a, b], [3.0, 1.0], ["stem"])["stem"]
     torch.testing.assert_close(mixed, 0.75 * ga + 0.25 * gb)
+
+
+def test_bfloat16_network_losses_stay_within_a_few_percent_of_float32(setup):
+    # bfloat16 keeps 8 significant bits (relative rounding 2**-8 ≈ 0.4 %; the format's
+    # definition, from memory); Gram matrices and losses stay float32, so a frame's losses agree
+    # to a few percent at the start, and so does the objective after a short solve (the two
+    # paths then differ, so style and content may trade places a little).
+    net, targets, content = setup
+    problem = _problem(content)
+    f32 = SolverParams(iterations=10, tolerance=0.0)
+    b16 = dataclasses.replace(f32, precision="bfloat16")
+    _, a = solve(net, problem, targets, f32, 1)
+    _, b = solve(net, problem, targets, b16, 1)
+    assert abs(b.style - a.style) <= 0.05 * a.style
+    assert abs(b.content - a.content) <= 0.05 * a.content
+    _, a = solve(net, problem, targets, f32)
+    _, b = solve(net, problem, targets, b16)
+    objective = lambda s: f32.style_weight * s.style + f32.content_weight * s.content
+    assert abs(objective(b) - objective(a)) <= 0.05 * objective(a)
+
+
+def test_warm_coarse_to_fine_keeps_temporal_terms_at_every_level_and_the_starts_detail(setup, monkeypatch):
+    # Ruder et al. 2016: a warm-started frame is tied to its warped predecessor; solved
+    # coarse-to-fine (Gatys et al. 2017) it must stay tied at each level, and the fine level
+    # must start from the warped frame's own detail, not from an upsampled coarse image.
+    net, _, _ = setup
+    size = (256, 144)  # two levels: 128×72 is above the network's 64-pixel minimum
+    style = to_tensor(resize(read_image(CLIP / "style.png"), (256, 256)))
+    content = resize(read_image(CLIP / "frames" / "drift_0001.png"), size)
+    targets = lambda s: style_targets(net, [resize_tensor(style, (max(s), max(s)))], [1.0], net.style_layers)
+    params = SolverParams(iterations=10, tolerance=0.0, warm_levels=2)
+    previous, _ = solve(net, fresh_problem(content, start_noise((1, 3, 144, 256), 0, 0)), targets(size), params)
+    seen = []
+    real_solve = solver.solve
+
+    def spy(net, problem, style, params, iterations=None):
+        seen.append([tuple(t.shape[-2:]) for pair in problem.temporal for t in pair])
+        return real_solve(net, problem, style, params, iterations)
+
+    monkeypatch.setattr(solver, "solve", spy)
+    warm = Problem(to_tensor(content), previous, [(previous, torch.ones(1, 1, 144, 256))])
+    image, _ = solver.solve_coarse_to_fine(net, warm, targets, dataclasses.replace(params, temporal_weight=500.0))
+    assert seen == [[(72, 128)] * 2, [(144, 256)] * 2]
+    lost_by_upsampling = (resize_tensor(resize_tensor(previous, (128, 72)), size) - previous).abs().mean()
+    assert (image - previous).abs().mean() < 0.5 * lost_by_upsampling
+
+
+def test_hd_sources_work_at_1280_by_default_and_solve_their_first_frames_coarse_to_fine():
+    # Defaults of our own (README "HD sources"): a 1080p source works at 1280×720, a 720p or
+    # smaller one at 480 as before; first frames above 640 pixels start at most 480 wide.
+    from framestyle.working import working_size
+
+    assert working_size(1920, 1080, None, 64) == (1280, 720)
+    assert working_size(1280, 720, None, 64) == (480, 270)
+    assert working_size(1920, 1080, 1920, 64) == (1920, 1080)
+    assert [solver.coarse_levels(w) for w in (480, 640, 960, 1280, 1920)] == [1, 1, 2, 3, 3]

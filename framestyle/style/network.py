@@ -430,11 +430,16 @@ def load_network(name: str, weights: str | Path | None = None, device: str = "cp
     raise FramestyleError(f"unknown network {name!r}; choose one of: {', '.join(NETWORKS)}")
 
 
+def gpus_seen() -> dict[str, bool]:
+    """Which kinds of GPU torch sees on this machine: {"cuda": ..., "mps": ...}."""
+    return {"cuda": torch.cuda.is_available(), "mps": torch.backends.mps.is_available()}
+
+
 def resolve_device(device: str) -> torch.device:
     """The torch device for one of :data:`DEVICES`: "auto" is CUDA if torch sees a CUDA GPU,
     else Apple's MPS if available, else the CPU; a named GPU that torch cannot see is a user
     error."""
-    available = {"cuda": torch.cuda.is_available(), "mps": torch.backends.mps.is_available()}
+    available = gpus_seen()
     if device == "auto":
         return torch.device(next((name for name, ok in available.items() if ok), "cpu"))
     if device not in DEVICES:

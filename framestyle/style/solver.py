@@ -16,6 +16,8 @@ Example
 
 from __future__ import annotations
 
+import functools
+import math
 from dataclasses import dataclass, field, replace
 from typing import Callable, Sequence
 
@@ -39,8 +41,10 @@ class SolverParams:
     temporal_weight: float = 50.0  # weight of the short- and long-term temporal losses
     iterations: int = 300  # most L-BFGS iterations (at the coarsest level with several)
     tolerance: float = 0.01  # stop when the loss falls by less than this fraction per 10 iterations
-    levels: int = 1  # coarse-to-fine levels for frames without temporal terms
+    levels: int | None = None  # coarse-to-fine levels for frames without temporal terms (None: coarse_levels)
+    warm_levels: int = 1  # coarse-to-fine levels for frames with temporal terms (warm-started)
     content_layer: str = ""  # empty: the network's default content layer
+    precision: str = "float32"  # the network's arithmetic: "float32" or "bfloat16" (autocast)
 
 
 @dataclass
@@ -90,9 +94,10 @@ def style_targets(
         raise ValueError("need one mix weight per style image, and at least one image")
     total = float(sum(mix))
     targets: dict[str, torch.Tensor] = {}
+    device = net.device
     with torch.no_grad():
         for image, weight in zip(images, mix):
-            feats = net(image, layers)
+            feats = net(image.to(device), layers)
             for layer in layers:
                 g = gram_matrix(feats[layer]) * (weight / total)
                 targets[layer] = targets[layer] + g if layer in targets else g
@@ -123,9 +128,12 @@ def solve(
     """
     content_layer = params.content_layer or net.content_layer
     layers = list(dict.fromkeys([*style, content_layer]))
+    device = net.device
+    features = functools.partial(_features, net, precision=params.precision)
     with torch.no_grad():
-        content_target = net(problem.content, [content_layer])[content_layer]
-    x = problem.init.detach().clone().requires_grad_(True)
+        content_target = features(problem.content.to(device), [content_layer])[content_layer]
+    temporal = [(warped.to(device), weight.to(device)) for warped, weight in problem.temporal]
+    x = problem.init.detach().to(device, copy=True).requires_grad_(True)
     # No line search: one closure call per iteration, so "iterations" is also the cost unit.
     opt = torch.optim.LBFGS([x], lr=1.0, max_iter=_CHUNK, history_size=20,
                             tolerance_grad=0.0, tolerance_change=0.0)
@@ -136,10 +144,10 @@ def solve(
         nonlocal calls
         calls += 1
         opt.zero_grad()
-        feats = net(x, layers)
+        feats = features(x, layers)
         terms["style"] = sum(style_loss(gram_matrix(feats[l]), style[l]) for l in style) / len(style)
         terms["content"] = content_loss(feats[content_layer], content_target)
-        terms["temporal"] = sum((temporal_loss(x, w, c) for w, c in problem.temporal), x.new_zeros(()))
+        terms["temporal"] = sum((temporal_loss(x, w, c) for w, c in temporal), x.new_zeros(()))
         loss = (params.style_weight * terms["style"] + params.content_weight * terms["content"]
                 + params.tv_weight * total_variation(x) + params.temporal_weight * terms["temporal"])
         loss.backward()
@@ -156,7 +164,18 @@ def solve(
             break
         previous = loss
     stats = SolveStats(calls, float(terms["style"]), float(terms["content"]), float(terms["temporal"]))
-    return x.detach().clamp(0.0, 1.0), stats
+    return x.detach().clamp(0.0, 1.0).cpu(), stats
+
+
+def _features(net: FeatureNet, image: torch.Tensor, layers: Sequence[str], precision: str) -> dict[str, torch.Tensor]:
+    """The network's activations, in float32 whatever the precision of its arithmetic.
+
+    With ``precision="bfloat16"`` the network runs under autocast (convolutions in
+    bfloat16); the activations are cast back so Gram matrices and losses stay float32.
+    """
+    with torch.autocast(image.device.type, dtype=torch.bfloat16, enabled=precision == "bfloat16"):
+        feats = net(image, layers)
+    return {name: value.float() for name, value in feats.items()}
 
 
 def solve_coarse_to_fine(
@@ -169,29 +188,57 @@ def solve_coarse_to_fine(
     Style Transfer", Sec. 6) places large structures cheaply at low resolution, which makes
     large frames practical on a CPU: the coarsest level gets the full iteration cap, each
     finer level (4× the pixels) only a quarter of the previous cap, as it refines an
-    upsampled solution. Frames with temporal terms already start from the warped previous
-    frame at full resolution, so they are solved at full size only.
+    upsampled solution. A frame without temporal terms uses ``params.levels``; a
+    warm-started frame ``params.warm_levels``, with its temporal terms (Ruder et al. 2016)
+    at every level, and each finer level starts from the warped start plus the coarser
+    level's upsampled correction of it, so the warped frame's fine detail is kept.
 
     Parameters
     ----------
     targets : style targets for a frame size (w, h), e.g. :meth:`framestyle.style.look.Look.targets`
-    params : ``levels`` (1 = plain :func:`solve`)
+    params : ``levels`` (None: :func:`coarse_levels`) and ``warm_levels`` (1 = plain :func:`solve`)
 
     Returns
     -------
     image, stats (iterations summed over the levels)
     """
     h, w = problem.content.shape[-2:]
-    levels = 1 if problem.temporal else params.levels
+    levels = params.warm_levels if problem.temporal else params.levels or coarse_levels(w)
     sizes = [(round(w / 2**k), round(h / 2**k)) for k in reversed(range(levels))]
     sizes = [s for s in sizes[:-1] if min(s) >= net.min_side] + [(w, h)]
     image, used = None, 0
     cap = params.iterations
     for k, size in enumerate(sizes):
-        init = resize_tensor(problem.init if image is None else image, size)
-        level = Problem(resize_tensor(problem.content, size), init)
-        if size == (w, h):
-            level = Problem(problem.content, init, problem.temporal)
+        level = _at_size(problem, size, image)
         image, stats = solve(net, level, targets(size), params, min(cap, max(2 * _CHUNK, cap // 4**k)))
         used += stats.iterations
     return image, replace(stats, iterations=used)
+
+
+def coarse_levels(width: int) -> int:
+    """Default levels for a frame ``width`` wide: 1 up to 640 pixels, else enough that the
+    coarsest level is at most 480 wide (960 → 2, 1280 → 3, 1920 → 3).
+
+    Measured on a 1280×720 first frame (benchmarks/coarse_to_fine.py): three levels 96 s,
+    one level 281 s; the warm-started frames that follow refine it at full size.
+    """
+    return 1 if width <= 640 else 1 + math.ceil(math.log2(width / 480))
+
+
+def _at_size(problem: Problem, size: tuple[int, int], coarser: torch.Tensor | None) -> Problem:
+    """``problem`` resized to ``size`` (w, h), starting from the coarser level's result if any.
+
+    coarser : (1, 3, h', w') the solution one level down, or None at the coarsest level
+    """
+    start = resize_tensor(problem.init, size)
+    if coarser is not None and problem.temporal:  # the warped start, corrected at low frequencies
+        start = start + resize_tensor(coarser - resize_tensor(problem.init, _size_of(coarser)), size)
+    elif coarser is not None:
+        start = resize_tensor(coarser, size)
+    temporal = [(resize_tensor(warped, size), resize_tensor(weight, size)) for warped, weight in problem.temporal]
+    return Problem(resize_tensor(problem.content, size), start, temporal)
+
+
+def _size_of(image: torch.Tensor) -> tuple[int, int]:
+    """(w, h) of a (B, C, H, W) tensor."""
+    return image.shape[-1], image.shape[-2]
