@@ -78,8 +78,9 @@ def test_style_targets_mix_gram_matrices_by_weight(setup):
 def test_bfloat16_network_losses_stay_within_a_few_percent_of_float32(setup):
     # bfloat16 keeps 8 significant bits (relative rounding 2**-8 ≈ 0.4 %; the format's
     # definition, from memory); Gram matrices and losses stay float32, so a frame's losses agree
-    # to a few percent at the start, and so does the objective after a short solve (the two
-    # paths then differ, so style and content may trade places a little).
+    # to a few percent at the start; after a short solve the two paths differ (style and
+    # content may trade places, and either may end lower), so the bfloat16 objective is held
+    # to no worse than float32's by a few percent.
     net, targets, content = setup
     problem = _problem(content)
     f32 = SolverParams(iterations=10, tolerance=0.0)
@@ -91,7 +92,7 @@ def test_bfloat16_network_losses_stay_within_a_few_percent_of_float32(setup):
     _, a = solve(net, problem, targets, f32)
     _, b = solve(net, problem, targets, b16)
     objective = lambda s: f32.style_weight * s.style + f32.content_weight * s.content
-    assert abs(objective(b) - objective(a)) <= 0.05 * objective(a)
+    assert objective(b) <= 1.05 * objective(a)
 
 
 def test_warm_coarse_to_fine_keeps_temporal_terms_at_every_level_and_the_starts_detail(setup, monkeypatch):
