@@ -43,6 +43,8 @@ class Settings:
     style_weight: _NonNegative = 5.0  # weight of the relative Gram style loss
     content_weight: _NonNegative = 1.0  # weight of the relative content loss
     tv_weight: _NonNegative = 10.0  # total-variation weight: suppresses pixel-level speckle
+    warm_tv_weight: _NonNegative | None = None  # the same for frames that start from a warped
+    #                                 frame (None: tv_weight); lower keeps strokes crisp along a shot
     stroke_size: Annotated[float, Field(gt=0)] = 1.0  # style image resized to this × the working size
     colour: Literal[COLOURS] = "style"  # palette: the painting's, the footage's (luma), recoloured
     luma_standard: Literal["bt709", "bt601"] = "bt709"  # luma weights for "luma": HD or SD

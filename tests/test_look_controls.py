@@ -137,6 +137,9 @@ def test_a_bad_look_file_names_the_file_and_the_problem(tmp_path):
     look.write_text('strength = 2.0\n')
     with pytest.raises(FramestyleError, match="bad.toml: strength: expected less than or equal to 1"):
         load_look(look)
+    look.write_text('warm_tv_weight = -1.0\n')
+    with pytest.raises(FramestyleError, match="bad.toml: warm_tv_weight: expected greater than or equal to 0"):
+        load_look(look)
     look.write_text('[shots.2]\nsparkle = 1\n')
     with pytest.raises(FramestyleError, match="sparkle"):
         load_look(look)

@@ -13,6 +13,7 @@ from framestyle.imaging import resize, resize_tensor, to_array, to_tensor
 from framestyle.style import solver
 from framestyle.temporal import fresh_problem, start_noise
 from framestyle.settings import Settings
+from framestyle.style.losses import total_variation
 from framestyle.style.solver import Problem, SolverParams, solve, style_targets
 
 CLIP = Path(__file__).resolve().parents[1] / "sample_clip"
@@ -130,3 +131,21 @@ def test_hd_sources_work_at_1280_by_default_and_solve_their_first_frames_coarse_
     assert working_size(1280, 720, None, 64) == (480, 270)
     assert working_size(1920, 1080, 1920, 64) == (1920, 1080)
     assert [solver.coarse_levels(w) for w in (480, 640, 960, 1280, 1920)] == [1, 1, 2, 3, 3]
+
+
+def test_the_warm_tv_weight_applies_to_frames_with_temporal_terms_only(setup):
+    # Total variation (Mahendran & Vedaldi 2015) smooths; a warm-started frame (Ruder et al.
+    # 2016) has temporal terms and takes warm_tv_weight, a frame on its own keeps tv_weight.
+    net, targets, content = setup
+    fresh = _problem(content)
+    start = to_tensor(content)
+    warm = Problem(start, start, [(start, torch.ones(1, 1, SIZE[1], SIZE[0]))])
+    base = SolverParams(iterations=10, tolerance=0.0)
+    same = dataclasses.replace(base, warm_tv_weight=base.tv_weight)
+    lighter = dataclasses.replace(base, warm_tv_weight=0.0)
+    assert torch.equal(solve(net, fresh, targets, base)[0], solve(net, fresh, targets, lighter)[0])
+    assert torch.equal(solve(net, warm, targets, base)[0], solve(net, warm, targets, same)[0])
+    smooth, _ = solve(net, warm, targets, base)
+    crisp, _ = solve(net, warm, targets, lighter)
+    tv = lambda image: float(total_variation(image))
+    assert tv(crisp) > tv(smooth)

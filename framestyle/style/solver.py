@@ -38,6 +38,7 @@ class SolverParams:
     style_weight: float = 5.0  # weight of the relative Gram style loss
     content_weight: float = 1.0  # weight of the relative content loss
     tv_weight: float = 10.0  # total-variation weight: suppresses pixel-level speckle
+    warm_tv_weight: float | None = None  # the same for frames with temporal terms (None: tv_weight)
     temporal_weight: float = 50.0  # weight of the short- and long-term temporal losses
     iterations: int = 300  # most L-BFGS iterations (at the coarsest level with several)
     tolerance: float = 0.01  # stop when the loss falls by less than this fraction per 10 iterations
@@ -111,7 +112,10 @@ def solve(
     """Optimise the frame's pixels with L-BFGS.
 
     Loss: content_weight·L_content + style_weight·mean_l L_style,l + tv_weight·L_tv +
-    temporal_weight·Σ_j L_temporal,j (Gatys et al. 2016, Eq. 7; Ruder et al. 2016, Eq. 8).
+    temporal_weight·Σ_j L_temporal,j (Gatys et al. 2016, Eq. 7; Ruder et al. 2016, Eq. 8);
+    a problem with temporal terms uses ``warm_tv_weight`` for the TV term: its frame starts
+    from strokes the TV term already smoothed in the frame before, and applying the full
+    weight again at every frame of a chain softens them along the shot.
 
     Parameters
     ----------
@@ -134,6 +138,7 @@ def solve(
         content_target = features(problem.content.to(device), [content_layer])[content_layer]
     temporal = [(warped.to(device), weight.to(device)) for warped, weight in problem.temporal]
     x = problem.init.detach().to(device, copy=True).requires_grad_(True)
+    tv_weight = params.tv_weight if not temporal or params.warm_tv_weight is None else params.warm_tv_weight
     # No line search: one closure call per iteration, so "iterations" is also the cost unit.
     opt = torch.optim.LBFGS([x], lr=1.0, max_iter=_CHUNK, history_size=20,
                             tolerance_grad=0.0, tolerance_change=0.0)
@@ -149,7 +154,7 @@ def solve(
         terms["content"] = content_loss(feats[content_layer], content_target)
         terms["temporal"] = sum((temporal_loss(x, w, c) for w, c in temporal), x.new_zeros(()))
         loss = (params.style_weight * terms["style"] + params.content_weight * terms["content"]
-                + params.tv_weight * total_variation(x) + params.temporal_weight * terms["temporal"])
+                + tv_weight * total_variation(x) + params.temporal_weight * terms["temporal"])
         loss.backward()
         terms.update({k: v.detach() for k, v in terms.items()}, total=loss.detach())
         return loss
