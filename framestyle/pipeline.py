@@ -271,7 +271,10 @@ def check_render(source: io.FrameSource, settings: Settings) -> FeatureNet:
 
 
 def network(name: str, weights: str | None, device: str = "auto") -> FeatureNet:
-    """The perceptual network on its device (one of ``settings.DEVICES``), loaded once per process."""
+    """The perceptual network on its device (one of ``settings.DEVICES``), loaded once per process.
+
+    The cache sits behind this function so that a call with and one without ``device`` share
+    one entry (``functools.lru_cache`` keys on the arguments as given)."""
     return _network(name, weights, device)
 
 
