@@ -22,6 +22,16 @@ def to_array(image: torch.Tensor) -> np.ndarray:
     return image[0].permute(1, 2, 0).contiguous().numpy()
 
 
+def to_8bit(image: np.ndarray) -> np.ndarray:
+    """(H, W, C) float in [0, 1] → uint8 (rounded): a frame kept compactly, a quarter of float32."""
+    return np.round(np.clip(image, 0.0, 1.0) * 255.0).astype(np.uint8)
+
+
+def from_8bit(image: np.ndarray) -> np.ndarray:
+    """uint8 (H, W, C) → float32 in [0, 1]."""
+    return image.astype(np.float32) / 255.0
+
+
 def resize(image: np.ndarray, size: tuple[int, int]) -> np.ndarray:
     """Resize (H, W, C) or (H, W) to (w, h) = ``size``: area filter down, bicubic up, in [0, 1]."""
     if image.shape[1] == size[0] and image.shape[0] == size[1]:

@@ -32,7 +32,7 @@ from framestyle import io
 from framestyle.errors import FramestyleError
 from framestyle.finish.matte import Mattes
 from framestyle.finish.compose import to_display
-from framestyle.imaging import to_array
+from framestyle.imaging import from_8bit, to_8bit, to_array
 from framestyle.motion import FlowPair
 from framestyle.preview import contact_sheet, sample_frames
 from framestyle.qc.flash_check import (analyse_source, flash_warning, preview_warning, record_render_check,
@@ -466,14 +466,17 @@ class _ShotRender:
         if self.passes > 1:
             progress("pass", shot=shot.index, pass_=1, passes=self.passes, done=begin - shot.start)
         reach = max(self.offsets, default=0)
-        history: deque[tuple[int, np.ndarray]] = deque(maxlen=reach + 1)  # (index, working content)
+        # (index, working frame in 8 bits): the flows to frames up to ``reach`` back need them, and
+        # 41 float frames at 1280×720 were 450 MB (DIS works on 8-bit grey frames anyway)
+        history: deque[tuple[int, np.ndarray]] = deque(maxlen=reach + 1)
+        wanted = {*self.offsets, 2}  # frame t−2 for the missed-cut check
         frames = ((index, prepare_frame(raw, self.size, settings, self.source.linear))
                   for index, raw in io.iter_frames(self.source, max(shot.start, begin - reach), shot.end + 1))
         for (index, frame), following in _with_next(frames):
             if index >= begin:
-                sources = {k: content for k, content in history if k >= self.chain_start}
+                sources = {k: from_8bit(kept) for k, kept in history if k >= self.chain_start and index - k in wanted}
                 self._frame(index, frame, following and following[1], look, mattes, sources, progress)
-            history.append((index, frame.content))
+            history.append((index, to_8bit(frame.content)))
         if self.passes > 1:
             self.work.store.log(f"shot {shot.index}: pass 1 of {self.passes} done")
 
