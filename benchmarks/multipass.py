@@ -97,6 +97,7 @@ def main() -> None:
     parser.add_argument("--pass-iterations", type=int, help="iteration cap of each later pass")
     parser.add_argument("--warp-filter", help="resampling of the warped frames (default: the Settings default)")
     parser.add_argument("--warm-tv-weight", type=float, help="TV weight of warm-started frames (default: the Settings default)")
+    parser.add_argument("--detail-probe", type=int, help="frames between detail probes, 0: off (default: the Settings default)")
     parser.add_argument("--strip", type=Path, default=OUT / "multipass_strip.png")
     args = parser.parse_args()
 
@@ -104,7 +105,8 @@ def main() -> None:
     if max(counts) < 2:
         raise SystemExit("--passes: the results of each pass are taken from a render of 2 passes or more")
     chosen = {k: v for k, v in (("iterations", args.iterations), ("pass_iterations", args.pass_iterations),
-                                ("warp_filter", args.warp_filter), ("warm_tv_weight", args.warm_tv_weight))
+                                ("warp_filter", args.warp_filter), ("warm_tv_weight", args.warm_tv_weight),
+                                ("detail_probe", args.detail_probe))
               if v is not None}
     settings = Settings(styles=(str(args.style),), width=args.width, passes=max(counts), shot_detection=False,
                         **chosen)
@@ -145,7 +147,8 @@ def main() -> None:
 
         print(f"\n{input_path.name}: {source.count} frames at {size[0]}×{size[1]}, {settings.iterations} iterations "
               f"cap, later passes {settings.pass_iterations}, warp filter {settings.warp_filter}, "
-              f"TV weight {settings.tv_weight} (warm-started frames {settings.warm_tv_weight})")
+              f"TV weight {settings.tv_weight} (warm-started frames {settings.warm_tv_weight}), "
+              f"detail probe every {settings.detail_probe} frames")
         print(f"warping error of the source {source_error:.5f}; of the per-frame render on the pairs ending at "
               f"frames {', '.join(str(p + 1) for p in points)}: {per_frame:.5f}; "
               f"per-frame render {mean(alone_seconds):.2f} s per frame")

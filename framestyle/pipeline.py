@@ -37,6 +37,7 @@ from framestyle.motion import FlowPair
 from framestyle.preview import contact_sheet, sample_frames
 from framestyle.qc.flash_check import (analyse_source, flash_warning, preview_warning, record_render_check,
                                        record_shot_check)
+from framestyle.qc.detail import laplacian_energy
 from framestyle.qc.stability import flow_warping_error
 from framestyle.report import refresh_report
 from framestyle.settings import Settings
@@ -51,7 +52,7 @@ from framestyle.style.look import Look, build_look
 from framestyle.style.network import FeatureNet, load_network
 from framestyle.style.solver import SolverParams, SolveStats, solve, solve_coarse_to_fine
 from framestyle.timecode import ClipTimecode
-from framestyle.temporal import fresh_problem, pass_problem, start_noise, temporal_problem
+from framestyle.temporal import fresh_problem, pass_problem, start_noise, steered_tv, temporal_problem
 from framestyle.working import Frame, deliver, prepare_frame, working_size
 
 Progress = Callable[..., None]  # progress(event: str, **info); events listed in render()
@@ -368,7 +369,10 @@ class _ShotRender:
     blend of its own last result and its neighbour in the pass's direction (Ruder,
     Dosovitskiy & Brox 2016, multi-pass algorithm), and the frames delivered in order after
     the last pass. The shot's record counts the passes each unfinished frame has had, so a
-    killed render resumes inside the pass it was in."""
+    killed render resumes inside the pass it was in. Along the first pass the warm-started
+    frames' TV weight is steered toward the stroke detail of frames solved on their own
+    (:func:`framestyle.temporal.steered_tv`); each frame's record entry keeps its weight, its
+    detail and the reference (``steer``), so a resumed chain steers exactly as an unbroken one."""
 
     def __init__(self, plan: Plan, work, settings: Settings, shot: Shot):
         self.plan, self.work, self.settings, self.shot = plan, work, settings, shot
@@ -378,6 +382,8 @@ class _ShotRender:
         self.params = solver_params(settings)
         self.offsets = sorted(settings.long_term) if settings.temporal else []
         self.passes = settings.passes if settings.temporal else 1
+        self.probe = settings.detail_probe if settings.temporal else 0
+        self.base_tv = settings.tv_weight if settings.warm_tv_weight is None else settings.warm_tv_weight
         self.chain_start = shot.start  # the shot's first frame, or a missed cut found in it
 
     def run(self, todo: list[int], progress: Progress) -> None:
@@ -493,7 +499,10 @@ class _ShotRender:
             earlier, self.chain_start = [], index
             self.work.store.log(f"frame {name}: no optical-flow correspondence with the frames before it "
                                 f"(a missed cut?); started fresh as a new shot")
-        result, stats = stylise(look, frame.content, index, earlier, self.params, settings.seed, settings.temporal,
+        steering = bool(earlier) and self.probe > 0
+        tv, reference = self._steer(index, frame.content, look) if steering else (self.base_tv, None)
+        params = dataclasses.replace(self.params, warm_tv_weight=tv) if steering else self.params
+        result, stats = stylise(look, frame.content, index, earlier, params, settings.seed, settings.temporal,
                                 settings.warp_filter)
         if self.passes > 1:  # every frame's working frame and result are kept for the next pass
             self.work.save_state(index, frame.content, "content")
@@ -504,6 +513,9 @@ class _ShotRender:
         source_error = flow_warping_error(sources[index - 1], frame.content, earlier[0][0]) if earlier else None
         entry = {"iterations": stats.iterations, "style": stats.style, "content": stats.content,
                  "warp_error": error, "source_warp_error": source_error, "fresh": fresh}
+        if self.probe:  # a chain's start is solved on its own: its detail is the first reference
+            energy = laplacian_energy(result)
+            entry["steer"] = [tv, energy, reference if steering else energy]
         if self.passes > 1:
             self._note(index, 1, entry, time.perf_counter() - t0, progress)
             return
@@ -529,7 +541,9 @@ class _ShotRender:
             pair = FlowPair.between(content, solved[1], settings.flow_preset) if neighbour is not None else None
             problem = pass_problem(content, self.work.load_state(index, before), pair and (pair, solved[2]),
                                    settings.warp_filter)
-            image, stats = solve(look.net, problem, look.targets(self.size), params)
+            steer = self._entry(index).get("steer")  # a frame keeps its first pass's TV weight
+            frame_params = dataclasses.replace(params, warm_tv_weight=steer[0]) if steer else params
+            image, stats = solve(look.net, problem, look.targets(self.size), frame_params)
             result = to_array(image)
             self.work.save_state(index, result, layer)
             # the frame pair's warping error: forward (neighbour, frame), backward (frame, neighbour)
@@ -541,6 +555,23 @@ class _ShotRender:
             self.work.drop_state(index, before)
             solved = (index, content, result)
         self.work.store.log(f"shot {shot.index}: pass {pass_} of {self.passes} done")
+
+    def _steer(self, index: int, content: np.ndarray, look: Look) -> tuple[float, float]:
+        """The TV weight of warm-started frame ``index`` and the stroke detail it is steered toward.
+
+        From the previous frame's weight, detail and reference in its record entry
+        (:func:`framestyle.temporal.steered_tv`); every ``detail_probe`` frames from the
+        chain's start the frame is first solved on its own (a shot's first-frame treatment)
+        and its Laplacian energy becomes the reference: what the style gives this part of the
+        shot, which drifts as the shot's content changes.
+        """
+        tv, energy, reference = self._entry(index - 1)["steer"]
+        if (index - self.chain_start) % self.probe == 0:
+            alone, _ = stylise(look, content, index, [], self.params, self.settings.seed, temporal=False)
+            reference = laplacian_energy(alone)
+            self.work.store.log(f"frame {self.names[index]}: detail probe: solved on its own too; the chain had "
+                                f"{energy / reference:.3f} of its stroke detail")
+        return steered_tv(tv, energy, reference, self.base_tv), reference
 
     def _note(self, index: int, pass_: int, entry: dict, seconds: float, progress: Progress,
               iterations: int | None = None) -> None:

@@ -5,7 +5,9 @@ warped along the optical flow and is tied to earlier frames by the short- and lo
 temporal losses (Ruder, Dosovitskiy & Brox 2016, "Artistic style transfer for videos").
 A multi-pass render then goes over the shot again, backward and forward in turn, each frame
 starting from a blend of its own last result and its neighbour in the pass's direction
-(the same paper's multi-pass algorithm).
+(the same paper's multi-pass algorithm). Along the first pass the total-variation weight of
+the warm-started frames is steered so that the chain keeps the stroke detail of frames
+solved on their own (:func:`steered_tv`).
 """
 
 from __future__ import annotations
@@ -21,6 +23,8 @@ from framestyle.style.solver import Problem
 
 NOISE = 0.1  # std of the noise added where a frame starts from its content frame
 BLEND = 0.5  # δ, the neighbour's share of a multi-pass start (Ruder et al. 2016 used 0.5; from memory)
+STEER_GAIN = 0.5  # γ of steered_tv: how much of a detail error one frame corrects (in log terms)
+STEER_RANGE = (0.25, 2.0)  # steered TV weights stay within these multiples of the base weight
 
 
 def start_noise(shape: tuple[int, ...], seed: int, frame: int) -> torch.Tensor:
@@ -124,6 +128,45 @@ def pass_problem(
     mask = flows.current_mask()
     start = pass_start(previous, warped, mask, delta)
     return Problem(to_tensor(content), to_tensor(start), [(to_tensor(warped), torch.from_numpy(mask)[None, None])])
+
+
+def steered_tv(tv: float, energy: float, reference: float, base: float, gain: float = STEER_GAIN) -> float:
+    """The TV weight of a warm-started frame, steered from its predecessor's stroke detail.
+
+        tv_t = clip(tv_{t−1} · (E_{t−1} / E_ref)^γ,  0.25·base,  2·base)
+
+    with E_{t−1} the Laplacian energy (:func:`framestyle.qc.detail.laplacian_energy`) of the
+    previous frame's result, E_ref that of a nearby frame of the shot solved on its own, and
+    γ = ``gain``. A chain that has gone softer than frames solved alone (E_{t−1} < E_ref)
+    gets less smoothing, one that is busier gets more: a multiplicative (integral)
+    controller, which corrects a steady drift — the blur each warp adds, and the total
+    variation applied again to strokes already smoothed — rather than one frame's error. Our
+    own rule (no paper): the temporal loss of Ruder et al. (2016) holds the paint steady,
+    this holds its detail at what the style gives a frame solved alone.
+
+    Parameters
+    ----------
+    tv : tv_{t−1}, the previous frame's TV weight
+    energy, reference : E_{t−1} and E_ref, ≥ 0; where either is 0 (a flat frame: no detail to
+        compare) the weight stays ``tv``
+    base : the TV weight without steering (``warm_tv_weight``, else ``tv_weight``), ≥ 0
+    gain : γ ≥ 0; 0 keeps ``tv``
+
+    Returns
+    -------
+    float, tv_t
+
+    Examples
+    --------
+    >>> round(steered_tv(10.0, 2.0, 1.0, 10.0), 4)  # twice the detail: 10 · √2
+    14.1421
+    >>> steered_tv(10.0, 0.01, 1.0, 10.0)  # far too soft: held at a quarter of the base
+    2.5
+    """
+    if energy <= 0 or reference <= 0:
+        return tv
+    low, high = STEER_RANGE
+    return float(np.clip(tv * (energy / reference) ** gain, low * base, high * base))
 
 
 def _warped(stylised: np.ndarray, flows: FlowPair, interpolation: str) -> np.ndarray:

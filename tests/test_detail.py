@@ -1,12 +1,18 @@
-"""Tests for framestyle.qc.detail: the stroke-detail ratio of a render."""
+"""Stroke detail: the ratio of framestyle.qc.detail, and the render steering its warm frames toward it."""
+
+import re
 
 import cv2
 import numpy as np
 import pytest
 from scipy import ndimage
 
+from framestyle import pipeline, store
 from framestyle.qc.detail import detail_frames, detail_ratio, laplacian_energy
 from framestyle.shots import Shot
+from framestyle.temporal import STEER_RANGE, steered_tv
+
+from conftest import fast_settings
 
 
 def test_laplacian_energy_matches_scipys_laplace_with_the_same_border():
@@ -61,3 +67,50 @@ def test_detail_frames_spread_over_the_shot_and_end_on_its_last_frame():
     assert detail_frames(Shot(3, 5, 6), 3) == [5, 6]
     with pytest.raises(ValueError):
         detail_frames(Shot(1, 0, 9), 0)
+
+
+def test_steered_tv_follows_its_formula_on_a_worked_example():
+    # tv_t = clip(tv_{t-1} · (E_{t-1} / E_ref)^γ, 0.25·base, 2·base): our own rule (no paper),
+    # checked by hand: 10 · (2 / 1)^0.5 = 14.142; 10 · 0.5^0.5 = 7.071; with γ = 1, 10 · 1.5 = 15.
+    assert steered_tv(10.0, 2.0, 1.0, 10.0) == pytest.approx(14.1421, abs=1e-4)
+    assert steered_tv(10.0, 0.5, 1.0, 10.0) == pytest.approx(7.0711, abs=1e-4)
+    assert steered_tv(10.0, 1.5, 1.0, 10.0, gain=1.0) == pytest.approx(15.0)
+    assert steered_tv(10.0, 1.0, 1.0, 10.0) == 10.0  # on target: unchanged
+    assert steered_tv(18.0, 4.0, 1.0, 10.0) == 20.0  # held at twice the base
+    assert steered_tv(3.0, 0.01, 1.0, 10.0) == 2.5  # and at a quarter of it
+    assert steered_tv(7.0, 0.0, 1.0, 10.0) == 7.0  # a flat frame: nothing to compare
+    assert STEER_RANGE == (0.25, 2.0)
+
+
+def _steer(out):
+    return {name: entry.get("steer") for record in store.Store(out).records().values()
+            for name, entry in record["frames"].items()}
+
+
+def test_a_render_steers_its_warm_frames_tv_weight_toward_the_detail_of_frames_solved_alone(small_clip, tmp_path):
+    steered, fixed = tmp_path / "steered", tmp_path / "fixed"
+    pipeline.render(small_clip, steered, fast_settings(detail_probe=4))
+    pipeline.render(small_clip, fixed, fast_settings(detail_probe=0))
+    steer = _steer(steered)
+    names = sorted(steer)
+    assert len(names) == 20 and all(v is None for v in _steer(fixed).values())
+    for shot in (names[:10], names[10:]):  # shot 1: frames 0-9, shot 2: frames 10-19
+        tv, energy, reference = steer[shot[0]]
+        assert tv == 10.0 and energy == reference > 0  # a shot's first frame is its own reference
+        for k in range(1, 10):
+            prev, (tv, energy, reference) = steer[shot[k - 1]], steer[shot[k]]
+            if k % 4:  # the reference carries on between probes
+                assert reference == prev[2]
+            else:  # a probe: a new reference, from the frame solved on its own
+                assert reference != prev[2]
+            assert tv == steered_tv(prev[0], prev[1], reference, 10.0)
+    log = (steered / store.LOG).read_text()
+    assert re.findall(r"frame (\S+): detail probe", log) == [names[i] for i in (4, 8, 14, 18)]
+    # frame 1 starts on target (its predecessor is the reference itself) and matches the fixed
+    # render; from frame 2 on the weight moves and so do the frames
+    def frame(folder, name):
+        return cv2.imread(str(folder / name))
+    assert steer[names[1]][0] == 10.0
+    assert np.array_equal(frame(steered, names[1]), frame(fixed, names[1]))
+    assert steer[names[2]][0] != 10.0
+    assert not np.array_equal(frame(steered, names[2]), frame(fixed, names[2]))

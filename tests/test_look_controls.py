@@ -170,6 +170,6 @@ def test_every_control_survives_sigkill_and_resume(small_clip, tmp_path):
     look.write_text(
         f'styles = ["{STYLE}", "{INK}"]\nstyle_mix = [0.7, 0.3]\ncolour = "luma"\nstrength = 0.8\n'
         f'matte = "{mattes}"\nlevels = 2\nstroke_size = 1.5\nwidth = 128\niterations = 25\n'
-        f'tolerance = 0.0\nlong_term = [1, 4]\n[shots.1]\ncolour = "match"\n'
+        f'tolerance = 0.0\nlong_term = [1, 4]\ndetail_probe = 3\n[shots.1]\ncolour = "match"\n'
     )
     kill_and_resume(small_clip, tmp_path, ["--look", str(look), "--shots", "1"])
