@@ -369,7 +369,7 @@ class _ShotRender:
     blend of its own last result and its neighbour in the pass's direction (Ruder,
     Dosovitskiy & Brox 2016, multi-pass algorithm), and the frames delivered in order after
     the last pass. The shot's record counts the passes each unfinished frame has had, so a
-    killed render resumes inside the pass it was in. Along the first pass the warm-started
+    killed render resumes inside the pass it was in. Along every pass the warm-started
     frames' TV weight is steered toward the stroke detail of frames solved on their own
     (:func:`framestyle.temporal.steered_tv`); each frame's record entry keeps its weight, its
     detail and the reference (``steer``), so a resumed chain steers exactly as an unbroken one."""
@@ -541,7 +541,10 @@ class _ShotRender:
             pair = FlowPair.between(content, solved[1], settings.flow_preset) if neighbour is not None else None
             problem = pass_problem(content, self.work.load_state(index, before), pair and (pair, solved[2]),
                                    settings.warp_filter)
-            steer = self._entry(index).get("steer")  # a frame keeps its first pass's TV weight
+            steer = self._entry(index).get("steer")  # the reference stays the one of its first pass
+            if steer:  # steered from the frame solved before it in this pass, the pass's first from its last pass
+                tv, energy, _ = self._entry(index if neighbour is None else neighbour)["steer"]
+                steer = [steered_tv(tv, energy, steer[2], self.base_tv), None, steer[2]]
             frame_params = dataclasses.replace(params, warm_tv_weight=steer[0]) if steer else params
             image, stats = solve(look.net, problem, look.targets(self.size), frame_params)
             result = to_array(image)
@@ -551,6 +554,8 @@ class _ShotRender:
                 flow_warping_error(solved[2], result, pair) if pass_ % 2
                 else flow_warping_error(result, solved[2], FlowPair(pair.forward, pair.backward)))
             entry = {"style": stats.style, "content": stats.content, "warp_error": error}
+            if steer:
+                entry["steer"] = [steer[0], laplacian_energy(result), steer[2]]
             self._note(index, pass_, entry, time.perf_counter() - t0, progress, stats.iterations)
             self.work.drop_state(index, before)
             solved = (index, content, result)

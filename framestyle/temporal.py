@@ -23,7 +23,7 @@ from framestyle.style.solver import Problem
 
 NOISE = 0.1  # std of the noise added where a frame starts from its content frame
 BLEND = 0.5  # δ, the neighbour's share of a multi-pass start (Ruder et al. 2016 used 0.5; from memory)
-STEER_GAIN = 0.5  # γ of steered_tv: how much of a detail error one frame corrects (in log terms)
+STEER_GAIN = 1.0  # γ of steered_tv: how much of a detail error one frame corrects (in log terms)
 STEER_RANGE = (0.25, 2.0)  # steered TV weights stay within these multiples of the base weight
 
 
@@ -158,8 +158,8 @@ def steered_tv(tv: float, energy: float, reference: float, base: float, gain: fl
 
     Examples
     --------
-    >>> round(steered_tv(10.0, 2.0, 1.0, 10.0), 4)  # twice the detail: 10 · √2
-    14.1421
+    >>> steered_tv(10.0, 1.5, 1.0, 10.0)  # half as much detail again: 10 · 1.5
+    15.0
     >>> steered_tv(10.0, 0.01, 1.0, 10.0)  # far too soft: held at a quarter of the base
     2.5
     """

@@ -71,10 +71,12 @@ def test_detail_frames_spread_over_the_shot_and_end_on_its_last_frame():
 
 def test_steered_tv_follows_its_formula_on_a_worked_example():
     # tv_t = clip(tv_{t-1} · (E_{t-1} / E_ref)^γ, 0.25·base, 2·base): our own rule (no paper),
-    # checked by hand: 10 · (2 / 1)^0.5 = 14.142; 10 · 0.5^0.5 = 7.071; with γ = 1, 10 · 1.5 = 15.
-    assert steered_tv(10.0, 2.0, 1.0, 10.0) == pytest.approx(14.1421, abs=1e-4)
-    assert steered_tv(10.0, 0.5, 1.0, 10.0) == pytest.approx(7.0711, abs=1e-4)
-    assert steered_tv(10.0, 1.5, 1.0, 10.0, gain=1.0) == pytest.approx(15.0)
+    # checked by hand: with γ = 0.5, 10 · (2 / 1)^0.5 = 14.142 and 10 · 0.5^0.5 = 7.071; with the
+    # default γ = 1, 10 · 1.5 = 15 and 10 · 0.8 = 8.
+    assert steered_tv(10.0, 2.0, 1.0, 10.0, gain=0.5) == pytest.approx(14.1421, abs=1e-4)
+    assert steered_tv(10.0, 0.5, 1.0, 10.0, gain=0.5) == pytest.approx(7.0711, abs=1e-4)
+    assert steered_tv(10.0, 1.5, 1.0, 10.0) == pytest.approx(15.0)
+    assert steered_tv(10.0, 0.8, 1.0, 10.0) == pytest.approx(8.0)
     assert steered_tv(10.0, 1.0, 1.0, 10.0) == 10.0  # on target: unchanged
     assert steered_tv(18.0, 4.0, 1.0, 10.0) == 20.0  # held at twice the base
     assert steered_tv(3.0, 0.01, 1.0, 10.0) == 2.5  # and at a quarter of it
@@ -114,3 +116,23 @@ def test_a_render_steers_its_warm_frames_tv_weight_toward_the_detail_of_frames_s
     assert np.array_equal(frame(steered, names[1]), frame(fixed, names[1]))
     assert steer[names[2]][0] != 10.0
     assert not np.array_equal(frame(steered, names[2]), frame(fixed, names[2]))
+
+
+def test_a_later_pass_steers_along_its_own_direction_toward_the_first_pass_references(small_clip, tmp_path):
+    # pass 2 runs backward: each frame's weight comes from the frame after it, solved just
+    # before it in that pass; the pass's first frame (the shot's last) from its own pass-1 entry
+    out = tmp_path / "two_passes"
+    pipeline.render(small_clip, out, fast_settings(detail_probe=4, passes=2, pass_iterations=2))
+    first = _steer(out)
+    pipeline.render(small_clip, tmp_path / "one_pass", fast_settings(detail_probe=4))
+    one_pass = _steer(tmp_path / "one_pass")  # pass 1 of the two-pass render, frame for frame
+    names = sorted(first)
+    for shot in (names[:10], names[10:]):
+        last = shot[-1]
+        assert first[last][2] == one_pass[last][2]  # the reference of pass 1 is kept
+        assert first[last][0] == steered_tv(one_pass[last][0], one_pass[last][1], one_pass[last][2], 10.0)
+        for k in range(len(shot) - 2, -1, -1):
+            (tv, energy, reference), after = first[shot[k]], first[shot[k + 1]]
+            assert reference == one_pass[shot[k]][2]
+            assert tv == steered_tv(after[0], after[1], reference, 10.0)
+            assert energy != one_pass[shot[k]][1]  # the frame was solved again
