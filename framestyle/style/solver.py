@@ -140,7 +140,7 @@ def solve(
     x = problem.init.detach().to(device, copy=True).requires_grad_(True)
     tv_weight = params.tv_weight if not temporal or params.warm_tv_weight is None else params.warm_tv_weight
     # No line search: one closure call per iteration, so "iterations" is also the cost unit.
-    opt = torch.optim.LBFGS([x], lr=1.0, max_iter=_CHUNK, history_size=20,
+    opt = torch.optim.LBFGS([x], lr=1.0, max_iter=_CHUNK, history_size=10,
                             tolerance_grad=0.0, tolerance_change=0.0)
     terms: dict[str, torch.Tensor] = {}
     calls = 0
