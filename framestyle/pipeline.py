@@ -541,11 +541,12 @@ class _ShotRender:
             pair = FlowPair.between(content, solved[1], settings.flow_preset) if neighbour is not None else None
             problem = pass_problem(content, self.work.load_state(index, before), pair and (pair, solved[2]),
                                    settings.warp_filter)
-            steer = self._entry(index).get("steer")  # the reference stays the one of its first pass
-            if steer:  # steered from the frame solved before it in this pass, the pass's first from its last pass
+            steer = self._entry(index).get("steer")
+            if steer:  # steered from the frame solved before it in this pass (the pass's first: from its
+                # own last pass) toward the reference of its first pass
                 tv, energy, _ = self._entry(index if neighbour is None else neighbour)["steer"]
-                steer = [steered_tv(tv, energy, steer[2], self.base_tv), None, steer[2]]
-            frame_params = dataclasses.replace(params, warm_tv_weight=steer[0]) if steer else params
+                tv, reference = steered_tv(tv, energy, steer[2], self.base_tv), steer[2]
+            frame_params = dataclasses.replace(params, warm_tv_weight=tv) if steer else params
             image, stats = solve(look.net, problem, look.targets(self.size), frame_params)
             result = to_array(image)
             self.work.save_state(index, result, layer)
@@ -555,7 +556,7 @@ class _ShotRender:
                 else flow_warping_error(result, solved[2], FlowPair(pair.forward, pair.backward)))
             entry = {"style": stats.style, "content": stats.content, "warp_error": error}
             if steer:
-                entry["steer"] = [steer[0], laplacian_energy(result), steer[2]]
+                entry["steer"] = [tv, laplacian_energy(result), reference]
             self._note(index, pass_, entry, time.perf_counter() - t0, progress, stats.iterations)
             self.work.drop_state(index, before)
             solved = (index, content, result)

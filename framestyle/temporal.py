@@ -5,7 +5,7 @@ warped along the optical flow and is tied to earlier frames by the short- and lo
 temporal losses (Ruder, Dosovitskiy & Brox 2016, "Artistic style transfer for videos").
 A multi-pass render then goes over the shot again, backward and forward in turn, each frame
 starting from a blend of its own last result and its neighbour in the pass's direction
-(the same paper's multi-pass algorithm). Along the first pass the total-variation weight of
+(the same paper's multi-pass algorithm). Along every pass the total-variation weight of
 the warm-started frames is steered so that the chain keeps the stroke detail of frames
 solved on their own (:func:`steered_tv`).
 """
