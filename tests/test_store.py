@@ -12,16 +12,13 @@ import subprocess
 import sys
 from pathlib import Path
 
-import cv2
 import imageio_ffmpeg
-import numpy as np
 import pytest
 
 from framestyle import pipeline, store
-from framestyle.settings import Settings
 
 from conftest import ROOT, STYLE, fast_settings
-from faults import CRASH, EACCES, ENOSPC, Hook, frames_of, prepare_parent, run_cli, start_cli
+from faults import EACCES, ENOSPC, Hook, frames_of, in_groups, prepare_parent, run_all, run_cli, start_cli
 
 
 @pytest.fixture(scope="module")
@@ -36,8 +33,7 @@ def clip(small_clip, tmp_path_factory) -> tuple[Path, Path]:
                     "-frames:v", "6", "-r", "25", "-c:v", "libx264", "-pix_fmt", "yuv420p", str(video)], check=True)
     shots = folder / "shots.txt"
     shots.write_text("0\n3\n")
-    prepare_parent()
-    pipeline.network(Settings.network, None)  # loaded once here, shared by every forked render
+    prepare_parent(_args((video, shots), folder / "warm_up"))
     return video, shots
 
 
@@ -69,18 +65,20 @@ def _no_leftovers(out: Path) -> None:
 def test_a_crash_at_every_write_then_the_same_command_finishes_bit_identical(clip, reference, tmp_path):
     ref, writes = reference
     assert writes > 20  # frames, state, records, manifest, log lines, video
-    for n in range(1, writes + 1):
-        out = tmp_path / f"crash_{n}"
-        code, err, _ = run_cli(_args(clip, out), Hook(n))
-        assert code == 99, f"write {n}: {err}"
-        stamps = _finished_stamps(out) if (out / store.MANIFEST).exists() else {}
-        code, err, _ = run_cli(_args(clip, out))
-        assert code == 0 and "Traceback" not in err, f"after a crash at write {n}: {err}"
-        assert frames_of(out) == frames_of(ref), f"after a crash at write {n}"
-        assert (out / "cut_framestyle.mp4").read_bytes() == (ref / "cut_framestyle.mp4").read_bytes()
-        assert {k: v for k, v in _finished_stamps(out).items() if k in stamps} == stamps, "a finished frame was rewritten"
-        _no_leftovers(out)
-        shutil.rmtree(out)
+    for group in in_groups(list(range(1, writes + 1))):  # a few crashes at once, each in its own folder
+        outs = {n: tmp_path / f"crash_{n}" for n in group}
+        for n, (code, err, _) in zip(group, run_all([(_args(clip, outs[n]), Hook(n)) for n in group])):
+            assert code == 99, f"write {n}: {err}"
+        stamps = {n: _finished_stamps(out) if (out / store.MANIFEST).exists() else {} for n, out in outs.items()}
+        for n, (code, err, _) in zip(group, run_all([(_args(clip, outs[n]), None) for n in group])):
+            out = outs[n]
+            assert code == 0 and "Traceback" not in err, f"after a crash at write {n}: {err}"
+            assert frames_of(out) == frames_of(ref), f"after a crash at write {n}"
+            assert (out / "cut_framestyle.mp4").read_bytes() == (ref / "cut_framestyle.mp4").read_bytes()
+            finished = {k: v for k, v in _finished_stamps(out).items() if k in stamps[n]}
+            assert finished == stamps[n], "a finished frame was rewritten"
+            _no_leftovers(out)
+            shutil.rmtree(out)
 
 
 def test_an_io_error_at_every_write_is_one_line_and_loses_nothing(clip, reference, tmp_path):
@@ -88,20 +86,20 @@ def test_an_io_error_at_every_write_is_one_line_and_loses_nothing(clip, referenc
     # denied (EACCES) in turn, so each kind of write (they recur per frame) meets both errors
     # in one pass over the render; two full passes would double the suite's slowest test.
     ref, writes = reference
-    for n in range(1, writes + 1):
-        fault = ENOSPC if n % 2 else EACCES
-        out = tmp_path / f"fault_{n}"
-        code, err, _ = run_cli(_args(clip, out), Hook(n, fault))
-        lines = err.strip().splitlines()
-        assert code == 2 and len(lines) == 1 and "Traceback" not in err, f"write {n}: {err}"
-        assert os.strerror(fault) in lines[0] and str(out) in lines[0]
-        for name in store.Store(out).finished():  # what was finished is intact
-            assert (out / name).read_bytes() == (ref / name).read_bytes()
-        code, err, _ = run_cli(_args(clip, out))
-        assert code == 0, f"after an I/O error at write {n}: {err}"
-        assert frames_of(out) == frames_of(ref)
-        _no_leftovers(out)
-        shutil.rmtree(out)
+    for group in in_groups(list(range(1, writes + 1))):
+        faults = {n: ENOSPC if n % 2 else EACCES for n in group}
+        outs = {n: tmp_path / f"fault_{n}" for n in group}
+        for n, (code, err, _) in zip(group, run_all([(_args(clip, outs[n]), Hook(n, faults[n])) for n in group])):
+            lines = err.strip().splitlines()
+            assert code == 2 and len(lines) == 1 and "Traceback" not in err, f"write {n}: {err}"
+            assert os.strerror(faults[n]) in lines[0] and str(outs[n]) in lines[0]
+            for name in store.Store(outs[n]).finished():  # what was finished is intact
+                assert (outs[n] / name).read_bytes() == (ref / name).read_bytes()
+        for n, (code, err, _) in zip(group, run_all([(_args(clip, outs[n]), None) for n in group])):
+            assert code == 0, f"after an I/O error at write {n}: {err}"
+            assert frames_of(outs[n]) == frames_of(ref)
+            _no_leftovers(outs[n])
+            shutil.rmtree(outs[n])
 
 
 def test_a_crash_at_every_write_of_a_restart_leaves_nothing_of_the_old_render(clip, reference, tmp_path):
@@ -113,22 +111,28 @@ def test_a_crash_at_every_write_of_a_restart_leaves_nothing_of_the_old_render(cl
     (base / store.PREVIEW).mkdir()
     (base / store.PREVIEW / "contact_shot001.png").write_bytes(b"an old preview")
     _, _, writes = run_cli(_args(clip, tmp_path / "count", "--iterations", "3", "--restart"))
-    for n in range(1, writes + 1, 2):  # every other write: the restart's moves and the new render
-        out = tmp_path / f"restart_{n}"
-        shutil.copytree(base, out)
-        code, err, _ = run_cli(_args(clip, out, "--iterations", "3", "--restart"), Hook(n))
-        assert code == 99, err
-        code, err, _ = run_cli(_args(clip, out, "--iterations", "3"))  # the same options, without --restart
-        lines = err.strip().splitlines()
-        if code == 2:  # killed before the old manifest went: refused by name, nothing touched
-            assert len(lines) == 1 and "different settings (iterations)" in lines[0]
-            code, err, _ = run_cli(_args(clip, out, "--iterations", "3", "--restart"))
-        assert code == 0, err
-        assert frames_of(out) == frames_of(new_ref)
-        assert (out / "cut_framestyle.mp4").read_bytes() == (new_ref / "cut_framestyle.mp4").read_bytes()
-        assert not (out / store.PREVIEW).exists()
-        _no_leftovers(out)
-        shutil.rmtree(out)
+    # every other write: the restart's moves and the new render
+    for group in in_groups(list(range(1, writes + 1, 2))):
+        outs = {n: tmp_path / f"restart_{n}" for n in group}
+        for out in outs.values():
+            shutil.copytree(base, out)
+        restart = {n: _args(clip, outs[n], "--iterations", "3", "--restart") for n in group}
+        for code, err, _ in run_all([(restart[n], Hook(n)) for n in group]):
+            assert code == 99, err
+        # the same options, without --restart
+        again = run_all([(_args(clip, outs[n], "--iterations", "3"), None) for n in group])
+        for n, (code, err, _) in zip(group, again):
+            lines = err.strip().splitlines()
+            if code == 2:  # killed before the old manifest went: refused by name, nothing touched
+                assert len(lines) == 1 and "different settings (iterations)" in lines[0]
+                code, err, _ = run_cli(restart[n])
+            assert code == 0, err
+            out = outs[n]
+            assert frames_of(out) == frames_of(new_ref)
+            assert (out / "cut_framestyle.mp4").read_bytes() == (new_ref / "cut_framestyle.mp4").read_bytes()
+            assert not (out / store.PREVIEW).exists()
+            _no_leftovers(out)
+            shutil.rmtree(out)
 
 
 def test_restart_works_when_the_manifest_is_unreadable(clip, reference, tmp_path):
