@@ -124,3 +124,18 @@ def test_frozen_convolution_gradient_equals_autograds(stride, groups, kernel):
     (expected,) = torch.autograd.grad(F.conv2d(x, weight, stride=stride, padding=kernel // 2, groups=groups), x, grad)
     (got,) = torch.autograd.grad(_conv(x, weight, stride=stride, padding=kernel // 2, groups=groups), x, grad)
     torch.testing.assert_close(got, expected)
+
+
+def test_blurpool_padding_gives_autograds_gradient_and_keeps_nothing_of_its_input():
+    # Reference: autograd's gradient of torch's own F.pad(mode="replicate"), bit for bit.
+    from framestyle.style.network import _ReplicatePad
+
+    x = torch.rand(1, 32, 23, 31, requires_grad=True)
+    grad = torch.rand(1, 32, 25, 33)
+    (expected,) = torch.autograd.grad(F.pad(x, (1, 1, 1, 1), mode="replicate"), x, grad)
+    kept = []  # what the backward pass keeps (torch's own pad keeps x)
+    with torch.autograd.graph.saved_tensors_hooks(lambda t: kept.append(t) or t, lambda t: t):
+        padded = _ReplicatePad.apply(x)
+    assert torch.equal(padded, F.pad(x, (1, 1, 1, 1), mode="replicate")) and kept == []
+    (got,) = torch.autograd.grad(padded, x, grad)
+    assert torch.equal(got, expected)

@@ -154,6 +154,25 @@ def _conv(x: torch.Tensor, weight: torch.Tensor, bias: torch.Tensor | None = Non
     return _FrozenConv.apply(x, weight, bias, stride, padding, groups)
 
 
+class _ReplicatePad(torch.autograd.Function):
+    """``F.pad(x, (1, 1, 1, 1), mode="replicate")`` that keeps nothing for the backward pass.
+
+    Its gradient sums the padded gradient's edges back onto the input's and needs only the
+    input's shape, but torch's own keeps the whole input (at 1280×720 the stem's output,
+    112 MB); the backward kernel is handed an uninitialised stand-in of that shape, which it
+    never reads (as in :class:`_FrozenConv`).
+    """
+
+    @staticmethod
+    def forward(ctx, x: torch.Tensor) -> torch.Tensor:
+        ctx.shape = x.shape
+        return F.pad(x, (1, 1, 1, 1), mode="replicate")
+
+    @staticmethod
+    def backward(ctx, grad: torch.Tensor):
+        return torch.ops.aten.replication_pad2d_backward(grad, grad.new_empty(ctx.shape), [1, 1, 1, 1])
+
+
 class _BlurDown(nn.Module):
     """Binomial [1, 2, 1]² low-pass filter then 2× subsampling (BlurPool, Zhang 2019)."""
 
@@ -165,7 +184,7 @@ class _BlurDown(nn.Module):
 
     def forward(self, x: torch.Tensor) -> torch.Tensor:
         # Output size ceil(n / 2), matching the stride-2 "same" convolution it replaces.
-        x = F.pad(x, (1, 1, 1, 1), mode="replicate")
+        x = _ReplicatePad.apply(x) if x.requires_grad else F.pad(x, (1, 1, 1, 1), mode="replicate")
         return _conv(x, self.kernel, stride=2, groups=x.shape[1])
 
 
