@@ -77,11 +77,12 @@ def prepare_parent(warm_up: list) -> None:
     a forked 6-frame render 2.6 s -> 1.6 s)."""
     torch.set_num_threads(1)
     cv2.setNumThreads(1)
-    sys.argv = ["framestyle", *map(str, warm_up)]
     from framestyle.cli import main
 
-    with contextlib.suppress(SystemExit), contextlib.redirect_stdout(open(os.devnull, "w")):
+    argv, sys.argv = sys.argv, ["framestyle", *map(str, warm_up)]
+    with open(os.devnull, "w") as null, contextlib.redirect_stdout(null), contextlib.suppress(SystemExit):
         main()
+    sys.argv = argv
     assert threading.active_count() == 1, "a thread outlived the warm-up render: forking would be unsafe"
 
 

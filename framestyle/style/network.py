@@ -184,7 +184,7 @@ class _BlurDown(nn.Module):
 
     def forward(self, x: torch.Tensor) -> torch.Tensor:
         # Output size ceil(n / 2), matching the stride-2 "same" convolution it replaces.
-        x = _ReplicatePad.apply(x) if x.requires_grad else F.pad(x, (1, 1, 1, 1), mode="replicate")
+        x = _ReplicatePad.apply(x)
         return _conv(x, self.kernel, stride=2, groups=x.shape[1])
 
 
