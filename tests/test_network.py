@@ -139,3 +139,20 @@ def test_blurpool_padding_gives_autograds_gradient_and_keeps_nothing_of_its_inpu
     assert torch.equal(padded, F.pad(x, (1, 1, 1, 1), mode="replicate")) and kept == []
     (got,) = torch.autograd.grad(padded, x, grad)
     assert torch.equal(got, expected)
+
+
+def test_relu6_gives_autograds_gradient_from_its_output_at_the_edges_too():
+    # Reference: autograd's gradient of torch's own F.relu6, bit for bit, with inputs exactly
+    # at the clamp's edges (0 and 6, where the gradient is 0) and on both sides of them.
+    from framestyle.style.network import _ReLU6
+
+    x = torch.tensor([-1.0, -0.0, 0.0, 1e-7, 3.0, 6.0 - 1e-6, 6.0, 7.0]).repeat(4, 1).requires_grad_(True)
+    grad = torch.rand_like(x)
+    (expected,) = torch.autograd.grad(F.relu6(x), x, grad)
+    kept = []
+    with torch.autograd.graph.saved_tensors_hooks(lambda t: kept.append(t) or t, lambda t: t):
+        y = _ReLU6.apply(x)
+    assert torch.equal(y, F.relu6(x)) and len(kept) == 1 and kept[0].data_ptr() == y.data_ptr()
+    (got,) = torch.autograd.grad(y, x, grad)
+    assert torch.equal(got, expected)
+    assert torch.equal(expected[0], torch.tensor([0, 0, 0, 1, 1, 1, 0, 0.0]) * grad[0])

