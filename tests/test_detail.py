@@ -10,7 +10,7 @@ from scipy import ndimage
 from framestyle import pipeline, store
 from framestyle.qc.detail import detail_frames, detail_ratio, laplacian_energy
 from framestyle.shots import Shot
-from framestyle.temporal import STEER_RANGE, steered_tv
+from framestyle.temporal import DETAIL_AIM, STEER_RANGE, steered_tv
 
 from conftest import fast_settings
 
@@ -70,14 +70,18 @@ def test_detail_frames_spread_over_the_shot_and_end_on_its_last_frame():
 
 
 def test_steered_tv_follows_its_formula_on_a_worked_example():
-    # tv_t = clip(tv_{t-1} · (E_{t-1} / E_ref)^γ, 0.25·base, 2·base): our own rule (no paper),
-    # checked by hand: with γ = 0.5, 10 · (2 / 1)^0.5 = 14.142 and 10 · 0.5^0.5 = 7.071; with the
-    # default γ = 1, 10 · 1.5 = 15 and 10 · 0.8 = 8.
-    assert steered_tv(10.0, 2.0, 1.0, 10.0, gain=0.5) == pytest.approx(14.1421, abs=1e-4)
-    assert steered_tv(10.0, 0.5, 1.0, 10.0, gain=0.5) == pytest.approx(7.0711, abs=1e-4)
-    assert steered_tv(10.0, 1.5, 1.0, 10.0) == pytest.approx(15.0)
-    assert steered_tv(10.0, 0.8, 1.0, 10.0) == pytest.approx(8.0)
-    assert steered_tv(10.0, 1.0, 1.0, 10.0) == 10.0  # on target: unchanged
+    # tv_t = clip(tv_{t-1} · (E_{t-1} / (a·E_ref))^γ, 0.25·base, 2·base): our own rule (no
+    # paper), checked by hand: with a = 1 and γ = 0.5, 10 · (2 / 1)^0.5 = 14.142 and
+    # 10 · 0.5^0.5 = 7.071; with γ = 1, 10 · 1.5 = 15 and 10 · 0.8 = 8; with the default
+    # a = 1.05, 10 · 1 / 1.05 = 9.524 and 10 · 1.05 / 1.05 = 10.
+    assert steered_tv(10.0, 2.0, 1.0, 10.0, gain=0.5, aim=1.0) == pytest.approx(14.1421, abs=1e-4)
+    assert steered_tv(10.0, 0.5, 1.0, 10.0, gain=0.5, aim=1.0) == pytest.approx(7.0711, abs=1e-4)
+    assert steered_tv(10.0, 1.5, 1.0, 10.0, aim=1.0) == pytest.approx(15.0)
+    assert steered_tv(10.0, 0.8, 1.0, 10.0, aim=1.0) == pytest.approx(8.0)
+    assert steered_tv(10.0, 1.0, 1.0, 10.0, aim=1.0) == 10.0  # on target: unchanged
+    assert DETAIL_AIM == 1.05
+    assert steered_tv(10.0, 1.0, 1.0, 10.0) == pytest.approx(9.5238, abs=1e-4)  # as detailed as the probe: a little less TV
+    assert steered_tv(10.0, 1.05, 1.0, 10.0) == 10.0  # on the aim: unchanged
     assert steered_tv(18.0, 4.0, 1.0, 10.0) == 20.0  # held at twice the base
     assert steered_tv(3.0, 0.01, 1.0, 10.0) == 2.5  # and at a quarter of it
     assert steered_tv(7.0, 0.0, 1.0, 10.0) == 7.0  # a flat frame: nothing to compare
@@ -108,14 +112,13 @@ def test_a_render_steers_its_warm_frames_tv_weight_toward_the_detail_of_frames_s
             assert tv == steered_tv(prev[0], prev[1], reference, 10.0)
     log = (steered / store.LOG).read_text()
     assert re.findall(r"frame (\S+): detail probe", log) == [names[i] for i in (4, 8, 14, 18)]
-    # frame 1 starts on target (its predecessor is the reference itself) and matches the fixed
-    # render; from frame 2 on the weight moves and so do the frames
+    # frame 1's predecessor is the reference itself: one aim's worth less smoothing than the
+    # fixed render, and from there on the frames differ from it
     def frame(folder, name):
         return cv2.imread(str(folder / name))
-    assert steer[names[1]][0] == 10.0
-    assert np.array_equal(frame(steered, names[1]), frame(fixed, names[1]))
-    assert steer[names[2]][0] != 10.0
-    assert not np.array_equal(frame(steered, names[2]), frame(fixed, names[2]))
+    assert steer[names[1]][0] == pytest.approx(10.0 / DETAIL_AIM)
+    assert not np.array_equal(frame(steered, names[1]), frame(fixed, names[1]))
+    assert steer[names[2]][0] != steer[names[1]][0]
 
 
 def test_a_later_pass_steers_along_its_own_direction_toward_the_first_pass_references(small_clip, tmp_path):
