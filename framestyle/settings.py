@@ -74,7 +74,7 @@ class Settings:
     long_term: Annotated[tuple[Annotated[int, Field(ge=1)], ...], _List] = (1, 10, 20, 40)  # frames back tied
     flow_preset: Literal[FLOW_PRESETS] = "medium"  # DIS optical flow preset
     warp_filter: Literal[WARP_FILTERS] = "cubic"  # resampling of the warped frames: linear, cubic, lanczos
-    detail_probe: Annotated[int, Field(ge=0)] = 20  # every N frames of a chain one is also solved on
+    detail_probe: Annotated[int, Field(ge=0)] = 10  # every N frames of a chain one is also solved on
     #                                 its own; warm frames' TV weight is steered to keep its stroke detail (0: off)
     passes: Annotated[int, Field(ge=1, le=32)] = 1  # 1: one forward pass; more: then backward, forward ... in turn
     pass_iterations: Annotated[int, Field(ge=1)] = 50  # most solver iterations per frame in each later pass
