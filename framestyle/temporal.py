@@ -156,8 +156,8 @@ def steered_tv(tv: float, energy: float, reference: float, base: float, gain: fl
     aim : a > 0. The frames of a shot solved on their own differ in stroke detail by about
         ±7 % from one to the next (measured on bigbuckbunny, 12 frames along its 132), so a
         probe's E_ref stands for the frames around it only to that: aiming at a = 1 leaves
-        about half of them softer than their own frame solved alone, a = 1.05 keeps the chain
-        at or above them (benchmarks/multipass.py) at a small cost in steadiness
+        the chain softer than about half of them solved alone, a = 1.05 keeps it at or above
+        them (benchmarks/multipass.py) at a small cost in steadiness
 
     Returns
     -------
