@@ -8,6 +8,7 @@ iteration cap, so warm-started frames naturally take fewer iterations than a sho
 
 Example
 -------
+>>> from framestyle.style.network import load_network
 >>> net = load_network("efficientnet-lite0")
 >>> style = style_targets(net, [torch.rand(1, 3, 96, 96)], [1.0], net.style_layers)
 >>> frame = torch.rand(1, 3, 96, 96)
