@@ -8,7 +8,10 @@ each page zeroed by the kernel. Measured on a 2-core CPU, rendering three 1280×
 with 4 solver iterations each: 11.6 million page faults and 7.6–7.8 s per warm-started
 frame; with freed blocks kept (``M_MMAP_MAX`` 0, ``M_TRIM_THRESHOLD`` 1 GiB) 0.69 million
 and 4.2–4.5 s (8 iterations: 14.4–15.1 s → 8.0 s). The price is peak memory: 2683 → 3046
-MiB in that render, as freed blocks are reused where they fit rather than handed back.
+MiB in that render, as freed blocks are reused where they fit rather than handed back. So
+what lives across a solve's iterations is allocated once, before the first: a block made in
+every iteration and kept for several (torch's L-BFGS history) scatters over the heap and the
+activations stop fitting the holes (:mod:`framestyle.style.lbfgs`).
 
 The settings are glibc's documented ``mallopt`` parameters (``man 3 mallopt``); on other C
 libraries (macOS, Windows, musl) nothing is changed.

@@ -25,10 +25,12 @@ from typing import Callable, Sequence
 import torch
 
 from framestyle.imaging import resize_tensor
+from framestyle.style.lbfgs import LBFGS
 from framestyle.style.losses import content_loss, gram_matrix, style_loss, temporal_loss, total_variation
 from framestyle.style.network import FeatureNet
 
 _CHUNK = 5  # iterations between convergence checks (the tolerance is stated per 10)
+_HISTORY = 10  # L-BFGS curvature pairs kept
 
 
 @dataclass(frozen=True)
@@ -140,16 +142,14 @@ def solve(
     temporal = [(warped.to(device), weight.to(device)) for warped, weight in problem.temporal]
     x = problem.init.detach().to(device, copy=True).requires_grad_(True)
     tv_weight = params.tv_weight if not temporal or params.warm_tv_weight is None else params.warm_tv_weight
-    # No line search: one closure call per iteration, so "iterations" is also the cost unit.
-    opt = torch.optim.LBFGS([x], lr=1.0, max_iter=_CHUNK, history_size=10,
-                            tolerance_grad=0.0, tolerance_change=0.0)
+    # No line search: one evaluation per iteration, so "iterations" is also the cost unit.
+    opt = LBFGS(x, _HISTORY)  # its buffers first, below the activations on the heap
     terms: dict[str, torch.Tensor] = {}
-    calls = 0
 
-    def closure() -> torch.Tensor:
-        nonlocal calls
-        calls += 1
-        opt.zero_grad()
+    @torch.enable_grad()  # as torch's optimisers evaluate a closure, even if solve() is called without
+    def evaluate() -> None:
+        """The loss terms at ``x`` and the loss's gradient in ``x.grad``."""
+        x.grad = None
         feats = features(x, layers)
         terms["style"] = sum(style_loss(gram_matrix(feats[l]), style[l]) for l in style) / len(style)
         terms["content"] = content_loss(feats[content_layer], content_target)
@@ -158,17 +158,19 @@ def solve(
                 + tv_weight * total_variation(x) + params.temporal_weight * terms["temporal"])
         loss.backward()
         terms.update({k: v.detach() for k, v in terms.items()}, total=loss.detach())
-        return loss
 
     cap = params.iterations if iterations is None else iterations
-    previous = None
+    calls, previous = 0, None
     while calls < cap:
-        opt.param_groups[0]["max_iter"] = min(_CHUNK, cap - calls)
-        opt.step(closure)
-        loss = float(terms["total"])  # the last evaluation (step() returns the chunk's first)
-        if previous is not None and previous - loss < params.tolerance * _CHUNK / 10 * abs(previous):
-            break
-        previous = loss
+        evaluate()
+        calls += 1
+        if not opt.step():
+            break  # no descent direction: a stationary point
+        if calls % _CHUNK == 0:
+            loss = float(terms["total"])
+            if previous is not None and previous - loss < params.tolerance * _CHUNK / 10 * abs(previous):
+                break
+            previous = loss
     stats = SolveStats(calls, float(terms["style"]), float(terms["content"]), float(terms["temporal"]))
     return x.detach().clamp(0.0, 1.0).cpu(), stats
 
