@@ -21,15 +21,19 @@ two cores: warm 720p ≤ 10 s and ≤ 12 pass-equivalents, first 720p ≤ 30 s, 
 ≤ 25 s, peak memory at 720p ≤ 3 GiB, and at every size the warm frames' style and content
 losses and warping error after / before ≤ 1.05.
 
-``--lengths 24,96`` also renders that many 720p frames (2 solver iterations a frame, the
+``--lengths 48,192`` also renders that many 720p frames (2 solver iterations a frame, the
 way ``shots_and_memory.py`` does at 320×180) and prints the peak memory of each, so one can
-see it stays flat in the clip's length.
+see it stays flat in the clip's length. Compare lengths of 48 frames and more: until frame 41
+a render is still taking on its long-term temporal targets (up to 40 frames back) and the
+source frames their flows need, which legitimately add about 250 MB (measured with the heap
+trimmed before each solve: the process outside its solves held 822 MiB at frame 6 and
+1070 MiB from frame 41 on).
 
 Run from the repository root on an otherwise idle machine::
 
     python benchmarks/hd_speed.py                                      # ~10-15 min on 2 cores
     python benchmarks/hd_speed.py --sizes 640x360 --warm 1 --iterations 6   # smoke test
-    python benchmarks/hd_speed.py --lengths 24,96 --sizes ""            # memory against clip length
+    python benchmarks/hd_speed.py --lengths 48,192 --sizes ""           # memory against clip length
     python benchmarks/hd_speed.py --sizes 1920x1080 --warm 1 --renders after   # the after row alone
 """
 
