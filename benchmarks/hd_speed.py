@@ -21,7 +21,7 @@ two cores: warm 720p ≤ 10 s and ≤ 12 pass-equivalents, first 720p ≤ 30 s, 
 ≤ 25 s, peak memory at 720p ≤ 3 GiB, and at every size the warm frames' style and content
 losses and warping error after / before ≤ 1.05.
 
-``--lengths 48,192`` also renders that many 720p frames (2 solver iterations a frame, the
+``--lengths 48,132`` also renders that many 720p frames (2 solver iterations a frame, the
 way ``shots_and_memory.py`` does at 320×180) and prints the peak memory of each, so one can
 see it stays flat in the clip's length. Compare lengths of 48 frames and more: until frame 41
 a render is still taking on its long-term temporal targets (up to 40 frames back) and the
@@ -33,7 +33,7 @@ Run from the repository root on an otherwise idle machine::
 
     python benchmarks/hd_speed.py                                      # ~10-15 min on 2 cores
     python benchmarks/hd_speed.py --sizes 640x360 --warm 1 --iterations 6   # smoke test
-    python benchmarks/hd_speed.py --lengths 48,192 --sizes ""           # memory against clip length
+    python benchmarks/hd_speed.py --lengths 48,132 --sizes ""           # memory against clip length
     python benchmarks/hd_speed.py --sizes 1920x1080 --warm 1 --renders after   # the after row alone
 """
 
@@ -89,7 +89,9 @@ def write_frames(folder: Path, size: tuple[int, int], count: int, start: int) ->
     folder.mkdir(parents=True)
     reader = footage_frame_reader(start)
     for k in range(count):
-        frame = next(reader)
+        frame = next(reader, None)
+        if frame is None:
+            sys.exit(f"hd_speed.py: {CLIP} has {start + k} frames; {start + count} were asked for")
         interpolation = cv2.INTER_AREA if size[0] <= frame.shape[1] else cv2.INTER_CUBIC
         cv2.imwrite(str(folder / f"bbb_{k + 1:04d}.png"), cv2.resize(frame, size, interpolation=interpolation))
     return folder
@@ -170,7 +172,7 @@ def main() -> None:
     parser.add_argument("--device", default="auto", help="device of the renders and the bare pass")
     parser.add_argument("--before-tree", type=Path, help="a framestyle checkout for the 'before' renders")
     parser.add_argument("--renders", default="before,after", help="the renders to run, comma-separated: before,after (default) or one of them")
-    parser.add_argument("--lengths", default="", help="also: peak memory of 720p renders this many frames long")
+    parser.add_argument("--lengths", default="", help="also: peak memory of 720p renders this many frames long (the clip has 132)")
     args = parser.parse_args()
 
     import torch
