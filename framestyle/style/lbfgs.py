@@ -72,11 +72,12 @@ class LBFGS:
             return False
         if self.steps == 0:
             torch.neg(g, out=self.d)
+            self.t = min(1.0, 1.0 / g.abs().sum()) * self.lr
         else:
-            self._remember(g)
+            self._remember(g)  # from the last step's d and t
             self._direction(g)
+            self.t = self.lr
         self.g_prev.copy_(g)
-        self.t = min(1.0, 1.0 / g.abs().sum()) * self.lr if self.steps == 0 else self.lr
         if g.dot(self.d) > 0:
             return False
         self.x.add_(self.d.view_as(self.x), alpha=self.t)
