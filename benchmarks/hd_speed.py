@@ -35,6 +35,7 @@ Run from the repository root on an otherwise idle machine::
     python benchmarks/hd_speed.py --sizes 640x360 --warm 1 --iterations 6   # smoke test
     python benchmarks/hd_speed.py --lengths 48,132 --sizes ""           # memory against clip length
     python benchmarks/hd_speed.py --sizes 1920x1080 --warm 1 --renders after   # the after row alone
+    python benchmarks/hd_speed.py --sizes 1280x720 --after '{"warm_iterations": 40}'   # a setting's price
 """
 
 from __future__ import annotations
@@ -172,6 +173,7 @@ def main() -> None:
     parser.add_argument("--device", default="auto", help="device of the renders and the bare pass")
     parser.add_argument("--before-tree", type=Path, help="a framestyle checkout for the 'before' renders")
     parser.add_argument("--renders", default="before,after", help="the renders to run, comma-separated: before,after (default) or one of them")
+    parser.add_argument("--after", default="{}", help='settings of the "after" render on top of the defaults, as JSON, e.g. \'{"warm_iterations": 40}\'')
     parser.add_argument("--lengths", default="", help="also: peak memory of 720p renders this many frames long (the clip has 132)")
     args = parser.parse_args()
 
@@ -198,7 +200,7 @@ def main() -> None:
             print(f"  {'':<7} {'first s':>8} {'it':>6} {'warm s':>8} {'it':>6} {'passes':>8} {'peak MiB':>8} "
                   f"{'style':>8} {'content':>8} {'warp error':>10}")
             figures[size] = {}
-            for label, settings, tree in (("before", before, before_tree), ("after", {**common, **AFTER}, ROOT)):
+            for label, settings, tree in (("before", before, before_tree), ("after", {**common, **AFTER, **json.loads(args.after)}, ROOT)):
                 if label not in args.renders.split(","):
                     continue
                 settings = {**settings, "width": size[0]}
