@@ -1,6 +1,5 @@
 """Shared fixtures: a small two-shot clip cut from the bundled sample, and fast settings."""
 
-import json
 import os
 import signal
 import subprocess

@@ -1,10 +1,6 @@
 """The render loop: one frame per input frame, shots restart the chain, resume is exact."""
 
-import dataclasses
 import json
-import os
-import subprocess
-import sys
 from pathlib import Path
 
 import cv2
