@@ -71,6 +71,7 @@ def _settings_options(
     flow_preset: Annotated[Optional[str], typer.Option(help=f"Optical flow quality: ultrafast, fast or medium (default {Settings.flow_preset}).")] = None,
     warp_filter: Annotated[Optional[str], typer.Option(help=f"Resampling of the frames carried along the optical flow: linear, cubic or lanczos (default {Settings.warp_filter}).")] = None,
     passes: Annotated[Optional[int], typer.Option(help=f"Passes over each shot: after the first (forward), backward and forward in turn, each refining every frame from its neighbour; crisper and steadier, each pass costs time (default {Settings.passes}).")] = None,
+    warm_iterations: Annotated[Optional[int], typer.Option(help="Most solver iterations for a frame started from its warped predecessor (default: as --iterations).")] = None,
     pass_iterations: Annotated[Optional[int], typer.Option(help=f"Most solver iterations per frame in each pass after the first (default {Settings.pass_iterations}).")] = None,
     tolerance: Annotated[Optional[float], typer.Option(help=f"Stop a frame when the loss falls by less than this fraction per 10 iterations (default {Settings.tolerance}).")] = None,
     fps: Annotated[Optional[float], typer.Option(help="Frame rate of a folder of frames, for timecode and videos (default 24; a video has its own).")] = None,

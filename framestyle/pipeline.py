@@ -307,7 +307,7 @@ def solver_params(settings: Settings) -> SolverParams:
         style_weight=settings.style_weight, content_weight=settings.content_weight,
         tv_weight=settings.tv_weight, warm_tv_weight=settings.warm_tv_weight,
         temporal_weight=settings.temporal_weight,
-        iterations=settings.iterations, tolerance=settings.tolerance, levels=settings.levels,
+        iterations=settings.iterations, warm_iterations=settings.warm_iterations, tolerance=settings.tolerance, levels=settings.levels,
         warm_levels=settings.warm_levels, content_layer=settings.content_layer, precision=settings.precision,
     )
 

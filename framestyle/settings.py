@@ -63,6 +63,8 @@ class Settings:
     width: Annotated[int, Field(ge=1)] | None = None  # working width in pixels (never above the source
     #                                 width); None: 480, or 1280 for sources wider than 1280 (working.py)
     iterations: Annotated[int, Field(ge=1)] = 300  # most L-BFGS iterations for one frame
+    warm_iterations: Annotated[int, Field(ge=1)] | None = None  # the same for a frame started from its
+    #                                 warped predecessor (None: iterations)
     tolerance: _NonNegative = 0.01  # stop when the loss falls by less than this fraction in 10
     #                                 iterations (half of it for a shot's first frame)
     seed: Annotated[int, Field(ge=0)] = 0  # seeds the noise added where a frame starts from its content

@@ -12,7 +12,6 @@ from framestyle.style.network import load_network
 from framestyle.imaging import resize, resize_tensor, to_array, to_tensor
 from framestyle.style import solver
 from framestyle.temporal import fresh_problem, start_noise
-from framestyle.settings import Settings
 from framestyle.style.losses import total_variation
 from framestyle.style.solver import Problem, SolverParams, solve, style_targets
 
@@ -149,3 +148,17 @@ def test_the_warm_tv_weight_applies_to_frames_with_temporal_terms_only(setup):
     crisp, _ = solve(net, warm, targets, lighter)
     tv = lambda image: float(total_variation(image))
     assert tv(crisp) > tv(smooth)
+
+
+def test_warm_iterations_caps_frames_with_temporal_terms_only(setup):
+    # A warm-started frame (Ruder et al. 2016) stops at warm_iterations; a frame on its own
+    # keeps the iteration cap; without warm_iterations both take the cap.
+    net, targets, content = setup
+    start = to_tensor(content)
+    warm = Problem(start, _problem(content).init, [(start, torch.ones(1, 1, SIZE[1], SIZE[0]))])
+    params = SolverParams(iterations=12, tolerance=0.0, warm_iterations=4)
+    one_level = lambda size: targets
+    assert solver.solve_coarse_to_fine(net, warm, one_level, params)[1].iterations == 4
+    assert solver.solve_coarse_to_fine(net, _problem(content), one_level, params)[1].iterations == 12
+    uncapped = dataclasses.replace(params, warm_iterations=None)
+    assert solver.solve_coarse_to_fine(net, warm, one_level, uncapped)[1].iterations == 12

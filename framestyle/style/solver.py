@@ -44,6 +44,7 @@ class SolverParams:
     warm_tv_weight: float | None = None  # the same for frames with temporal terms (None: tv_weight)
     temporal_weight: float = 50.0  # weight of the short- and long-term temporal losses
     iterations: int = 300  # most L-BFGS iterations (at the coarsest level with several)
+    warm_iterations: int | None = None  # the same for frames with temporal terms (None: iterations)
     tolerance: float = 0.01  # stop when the loss falls by less than this fraction per 10 iterations
     levels: int | None = None  # coarse-to-fine levels for frames without temporal terms (None: coarse_levels)
     warm_levels: int = 1  # coarse-to-fine levels for frames with temporal terms (warm-started)
@@ -215,7 +216,7 @@ def solve_coarse_to_fine(
     sizes = [(round(w / 2**k), round(h / 2**k)) for k in reversed(range(levels))]
     sizes = [s for s in sizes[:-1] if min(s) >= net.min_side] + [(w, h)]
     image, used = None, 0
-    cap = params.iterations
+    cap = params.warm_iterations or params.iterations if problem.temporal else params.iterations
     for k, size in enumerate(sizes):
         level = _at_size(problem, size, image)
         image, stats = solve(net, level, targets(size), params, min(cap, max(2 * _CHUNK, cap // 4**k)))
