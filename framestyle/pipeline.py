@@ -253,7 +253,7 @@ def open_render(input_path: Path, out: Path, settings: Settings) -> tuple[io.Fra
 
 def check_render(source: io.FrameSource, settings: Settings) -> FeatureNet:
     """Check every setting (and every shot's overrides) against ``source``; return the network."""
-    net = network(settings.network, settings.network_weights, settings.device)
+    net = network(settings.network, settings.network_weights, settings.device, settings.feature_blur)
     clip_timecode(source, settings)
     if settings.prores and source.linear:
         raise FramestyleError(f"{source.path}: the ProRes hand-off is made from display-referred frames; "
@@ -271,17 +271,17 @@ def check_render(source: io.FrameSource, settings: Settings) -> FeatureNet:
     return net
 
 
-def network(name: str, weights: str | None, device: str = "auto") -> FeatureNet:
+def network(name: str, weights: str | None, device: str = "auto", blur: int = 3) -> FeatureNet:
     """The perceptual network on its device (one of ``settings.DEVICES``), loaded once per process.
 
     The cache sits behind this function so that a call with and one without ``device`` share
     one entry (``functools.lru_cache`` keys on the arguments as given)."""
-    return _network(name, weights, device)
+    return _network(name, weights, device, blur)
 
 
 @functools.lru_cache(maxsize=2)
-def _network(name: str, weights: str | None, device: str) -> FeatureNet:
-    return load_network(name, weights, device)
+def _network(name: str, weights: str | None, device: str, blur: int) -> FeatureNet:
+    return load_network(name, weights, device, blur)
 
 
 def find_shots(source: io.FrameSource, settings: Settings, shot_file: Path | None) -> list[Shot]:
@@ -377,7 +377,7 @@ class _ShotRender:
     def __init__(self, plan: Plan, work, settings: Settings, shot: Shot):
         self.plan, self.work, self.settings, self.shot = plan, work, settings, shot
         self.source, self.names = plan.source, plan.names
-        self.net = network(settings.network, settings.network_weights, settings.device)
+        self.net = network(settings.network, settings.network_weights, settings.device, settings.feature_blur)
         self.size = working_size(self.source.width, self.source.height, settings.width, self.net.min_side)
         self.params = solver_params(settings)
         self.offsets = sorted(settings.long_term) if settings.temporal else []
@@ -708,7 +708,7 @@ def frames_alone(out: Path, source_path: Path, indices: Sequence[int]) -> Iterat
     shots = [Shot(s["shot"], s["start"], s["end"]) for s in manifest["shots"]]
     chosen = {i: next(s for s in shots if s.start <= i <= s.end) for i in indices}
     levels = 2 ** _output_depth(source) - 1
-    net = network(settings.network, settings.network_weights, settings.device)
+    net = network(settings.network, settings.network_weights, settings.device, settings.feature_blur)
     for index, _, _, delivered, _, _ in _stylised_alone(source, net, settings, chosen, source.linear):
         yield index, delivered if source.linear else np.round(delivered * levels) / levels
 

@@ -13,7 +13,7 @@ from framestyle.style.network import EfficientNetLite0, lite0_weights_file, rema
 
 @pytest.fixture(scope="module")
 def plain_net():
-    return EfficientNetLite0(blur=False)
+    return EfficientNetLite0(blur=0)
 
 
 def _imagenet_input(image: np.ndarray) -> torch.Tensor:
@@ -55,9 +55,10 @@ def test_feature_layers_have_the_documented_shapes():
     }
 
 
-def test_blurpool_features_move_less_under_a_one_pixel_shift(plain_net):
-    # Zhang 2019: low-pass filtering before subsampling makes features more shift-invariant.
-    blur_net = load_network("efficientnet-lite0")
+def test_blurpool_features_move_less_under_a_one_pixel_shift_and_less_with_the_wider_filter(plain_net):
+    # Zhang 2019: low-pass filtering before subsampling makes features more shift-invariant,
+    # the 5-tap binomial filter ("Bin-5") more so than the 3-tap one ("Bin-3").
+    blur_net, blur5_net = load_network("efficientnet-lite0"), load_network("efficientnet-lite0", blur=5)
     img = _imagenet_input(data.astronaut())[..., :160, :160]
     shifted = torch.roll(img, shifts=1, dims=-1)
 
@@ -66,7 +67,11 @@ def test_blurpool_features_move_less_under_a_one_pixel_shift(plain_net):
         return float((a - b).norm() / a.norm())
 
     with torch.no_grad():
-        assert change(blur_net) < change(plain_net)
+        assert change(blur5_net) < change(blur_net) < change(plain_net)
+    k = blur5_net.stem.down.kernel[0, 0]  # Zhang 2019's Bin-5: [1, 4, 6, 4, 1] / 16 in each direction
+    torch.testing.assert_close(k, torch.outer(*[torch.tensor([1.0, 4, 6, 4, 1]) / 16] * 2), rtol=0, atol=0)
+    with pytest.raises(FramestyleError, match="efficientnet-lite0 only"):
+        load_network("vgg19", blur=5)
 
 
 def test_unknown_layer_and_network_are_user_errors():
@@ -126,17 +131,18 @@ def test_frozen_convolution_gradient_equals_autograds(stride, groups, kernel):
     torch.testing.assert_close(got, expected)
 
 
-def test_blurpool_padding_gives_autograds_gradient_and_keeps_nothing_of_its_input():
+@pytest.mark.parametrize("p", [1, 2])
+def test_blurpool_padding_gives_autograds_gradient_and_keeps_nothing_of_its_input(p):
     # Reference: autograd's gradient of torch's own F.pad(mode="replicate"), bit for bit.
     from framestyle.style.network import _ReplicatePad
 
     x = torch.rand(1, 32, 23, 31, requires_grad=True)
-    grad = torch.rand(1, 32, 25, 33)
-    (expected,) = torch.autograd.grad(F.pad(x, (1, 1, 1, 1), mode="replicate"), x, grad)
+    grad = torch.rand(1, 32, 23 + 2 * p, 31 + 2 * p)
+    (expected,) = torch.autograd.grad(F.pad(x, (p,) * 4, mode="replicate"), x, grad)
     kept = []  # what the backward pass keeps (torch's own pad keeps x)
     with torch.autograd.graph.saved_tensors_hooks(lambda t: kept.append(t) or t, lambda t: t):
-        padded = _ReplicatePad.apply(x)
-    assert torch.equal(padded, F.pad(x, (1, 1, 1, 1), mode="replicate")) and kept == []
+        padded = _ReplicatePad.apply(x, p)
+    assert torch.equal(padded, F.pad(x, (p,) * 4, mode="replicate")) and kept == []
     (got,) = torch.autograd.grad(padded, x, grad)
     assert torch.equal(got, expected)
 

