@@ -116,7 +116,7 @@ def main() -> None:
             input_path = first_frames(input_path, args.frames, Path(tmp) / "input")
         source = io.open_source(input_path)
         shot = Shot(1, 0, source.count - 1)
-        net = network(settings.network, settings.network_weights, settings.device, settings.feature_blur)
+        net = network(settings)
         size = working_size(source.width, source.height, settings.width, net.min_side)
         contents = np.stack([prepare_frame(f, size, settings, source.linear).content for _, f in io.iter_frames(source)])
 

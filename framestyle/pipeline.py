@@ -253,7 +253,7 @@ def open_render(input_path: Path, out: Path, settings: Settings) -> tuple[io.Fra
 
 def check_render(source: io.FrameSource, settings: Settings) -> FeatureNet:
     """Check every setting (and every shot's overrides) against ``source``; return the network."""
-    net = network(settings.network, settings.network_weights, settings.device, settings.feature_blur)
+    net = network(settings)
     clip_timecode(source, settings)
     if settings.prores and source.linear:
         raise FramestyleError(f"{source.path}: the ProRes hand-off is made from display-referred frames; "
@@ -271,12 +271,10 @@ def check_render(source: io.FrameSource, settings: Settings) -> FeatureNet:
     return net
 
 
-def network(name: str, weights: str | None, device: str = "auto", blur: int = 3) -> FeatureNet:
-    """The perceptual network on its device (one of ``settings.DEVICES``), loaded once per process.
-
-    The cache sits behind this function so that a call with and one without ``device`` share
-    one entry (``functools.lru_cache`` keys on the arguments as given)."""
-    return _network(name, weights, device, blur)
+def network(settings: Settings) -> FeatureNet:
+    """The perceptual network of ``settings`` (network, weights, device, feature blur), loaded
+    once per process for each combination of them."""
+    return _network(settings.network, settings.network_weights, settings.device, settings.feature_blur)
 
 
 @functools.lru_cache(maxsize=2)
@@ -377,7 +375,7 @@ class _ShotRender:
     def __init__(self, plan: Plan, work, settings: Settings, shot: Shot):
         self.plan, self.work, self.settings, self.shot = plan, work, settings, shot
         self.source, self.names = plan.source, plan.names
-        self.net = network(settings.network, settings.network_weights, settings.device, settings.feature_blur)
+        self.net = network(settings)
         self.size = working_size(self.source.width, self.source.height, settings.width, self.net.min_side)
         self.params = solver_params(settings)
         self.offsets = sorted(settings.long_term) if settings.temporal else []
@@ -708,7 +706,7 @@ def frames_alone(out: Path, source_path: Path, indices: Sequence[int]) -> Iterat
     shots = [Shot(s["shot"], s["start"], s["end"]) for s in manifest["shots"]]
     chosen = {i: next(s for s in shots if s.start <= i <= s.end) for i in indices}
     levels = 2 ** _output_depth(source) - 1
-    net = network(settings.network, settings.network_weights, settings.device, settings.feature_blur)
+    net = network(settings)
     for index, _, _, delivered, _, _ in _stylised_alone(source, net, settings, chosen, source.linear):
         yield index, delivered if source.linear else np.round(delivered * levels) / levels
 

@@ -216,7 +216,7 @@ def solve_coarse_to_fine(
     sizes = [(round(w / 2**k), round(h / 2**k)) for k in reversed(range(levels))]
     sizes = [s for s in sizes[:-1] if min(s) >= net.min_side] + [(w, h)]
     image, used = None, 0
-    cap = params.warm_iterations or params.iterations if problem.temporal else params.iterations
+    cap = (problem.temporal and params.warm_iterations) or params.iterations
     for k, size in enumerate(sizes):
         level = _at_size(problem, size, image)
         image, stats = solve(net, level, targets(size), params, min(cap, max(2 * _CHUNK, cap // 4**k)))
