@@ -63,7 +63,7 @@ def _settings_options(
     warm_levels: Annotated[Optional[int], typer.Option(help=f"Coarse-to-fine levels for frames that start from the previous stylised frame (default {Settings.warm_levels}).")] = None,
     network: Annotated[Optional[str], typer.Option(help=f"Perceptual network: efficientnet-lite0 or vgg19 (default {Settings.network}).")] = None,
     network_weights: Annotated[Optional[Path], typer.Option(help="Weights file for the network (needed for vgg19 offline).")] = None,
-    feature_blur: Annotated[Optional[int], typer.Option(help=f"EfficientNet-Lite0's low-pass filter before each subsampling, 3 or 5 taps: 5 is steadier and faster along a shot, with slightly softer fine texture (default {Settings.feature_blur}).")] = None,
+    feature_blur: Annotated[Optional[int], typer.Option(help=f"EfficientNet-Lite0's low-pass filter before each subsampling, 3 or 5 taps: 5 is steadier along a shot and paints a little more over the footage, with slightly softer fine texture (default {Settings.feature_blur}).")] = None,
     seed: Annotated[Optional[int], typer.Option(help="Random seed; the same seed gives the same frames (default 0).")] = None,
     device: Annotated[Optional[str], typer.Option(help="Where the network runs: auto (a GPU torch sees, else the CPU), cpu, cuda or mps (default auto).")] = None,
     precision: Annotated[Optional[str], typer.Option(help=f"The network's arithmetic: float32, or bfloat16 with Gram matrices and losses kept in float32 (default {Settings.precision}).")] = None,

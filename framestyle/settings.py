@@ -58,7 +58,7 @@ class Settings:
     # --- network and solver -----------------------------------------------------------------
     network: Literal[NETWORKS] = "efficientnet-lite0"  # perceptual network
     feature_blur: Literal[3, 5] = 3  # EfficientNet-Lite0's low-pass filter before each subsampling
-    #                                 (BlurPool, Zhang 2019): 5 is steadier and faster along a shot
+    #                                 (BlurPool, Zhang 2019): 5 is steadier along a shot
     network_weights: str | None = None  # a state_dict file instead of the network's default weights
     style_layers: Annotated[tuple[str, ...], _List] = ()  # empty: the network's default style layers
     content_layer: str = ""  # empty: the network's default content layer
