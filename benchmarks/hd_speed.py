@@ -185,6 +185,8 @@ def main() -> None:
 
     import torch
 
+    from framestyle.settings import Settings
+
     print(f"hd_speed: {args.clip} frames {args.start}-{args.start + args.warm}, style {Path(args.style).name}, "
           f"torch {torch.__version__}, {torch.get_num_threads()} threads, device {args.device}, "
           f"load average {os.getloadavg()[0]:.2f} at start")
@@ -224,8 +226,8 @@ def main() -> None:
                                   json.dumps(settings)], ROOT)["peak_mib"]
             print(f"\n1280×720, {count} frames, 2 iterations a frame: peak memory {peaks[count]:.0f} MiB", flush=True)
     print(f"\nload average {os.getloadavg()[0]:.2f} at the end")
-    same = [before.get(key, default) == after.get(key, default)
-            for key, default in (("network", "efficientnet-lite0"), ("feature_blur", 3))]
+    same = [before.get(key, getattr(Settings, key)) == after.get(key, getattr(Settings, key))
+            for key in ("network", "feature_blur")]
     report(figures, peaks, all(same))
 
 
