@@ -200,21 +200,25 @@ def reliability_mask(flow_back: np.ndarray, flow_fwd: np.ndarray) -> np.ndarray:
     grad_sq = du_dx**2 + du_dy**2 + dv_dx**2 + dv_dy**2
     boundary = grad_sq > _BOUNDARY_REL * w_hat_sq + _BOUNDARY_ABS
 
-    return (~(disoccluded | boundary) & (inside_mask(w_hat) > 0)).astype(np.float32)
+    return (~(disoccluded | boundary | _outside(w_hat))).astype(np.float32)
+
+
+def _outside(flow: np.ndarray) -> np.ndarray:
+    """(H, W) bool: where ``p + flow(p)`` leaves the image. Pixel p covers the unit square
+    around its centre, so the image spans [-0.5, W - 0.5] x [-0.5, H - 0.5]."""
+    h, w = flow.shape[:2]
+    map_x, map_y = _sample_coords(flow.astype(np.float32, copy=False))
+    return (map_x < -0.5) | (map_x > w - 0.5) | (map_y < -0.5) | (map_y > h - 0.5)
 
 
 def inside_mask(flow: np.ndarray) -> np.ndarray:
-    """Where ``p + flow(p)`` lands inside the image: ``(H, W)`` float32, 1 inside, 0 outside.
+    """``(H, W)`` float32: 1 where ``p + flow(p)`` lands inside the image, 0 where it leaves it.
 
-    Pixel p covers the unit square around its centre, so the image spans
-    [-0.5, W - 0.5] x [-0.5, H - 0.5]. For the backward flow current → earlier, the 0s are
-    the picture that has entered the frame across its edges since the earlier frame.
+    For the backward flow current → earlier, the 0s are the picture that has entered the frame
+    across its edges since the earlier frame.
     """
     _check_flow("flow", flow)
-    h, w = flow.shape[:2]
-    map_x, map_y = _sample_coords(flow.astype(np.float32, copy=False))
-    outside = (map_x < -0.5) | (map_x > w - 0.5) | (map_y < -0.5) | (map_y > h - 0.5)
-    return (~outside).astype(np.float32)
+    return (~_outside(flow)).astype(np.float32)
 
 
 def long_term_masks(masks: Sequence[np.ndarray]) -> list[np.ndarray]:
