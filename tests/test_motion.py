@@ -10,6 +10,7 @@ from framestyle.motion import (
     WARP_FILTERS,
     _to_gray_u8,
     compute_flow,
+    inside_mask,
     long_term_masks,
     reliability_mask,
     warp,
@@ -223,6 +224,16 @@ def test_mask_of_consistent_translation_is_one_except_where_it_leaves_the_image(
     cols, rows = np.arange(W) + dx, np.arange(H) + dy
     expected = ((rows >= 0) & (rows <= H - 1))[:, None] & ((cols >= 0) & (cols <= W - 1))[None, :]
     assert expected.sum() == (H - abs(dy)) * (W - abs(dx))
+    np.testing.assert_array_equal(mask, expected.astype(np.float32))
+
+
+@pytest.mark.parametrize("dx, dy", [(3, -2), (-2.6, 0.4)])
+def test_inside_mask_is_zero_exactly_where_the_flow_leaves_the_image(dx, dy):
+    # Pixel p covers p ± 0.5 (common practice), so p + d is inside iff -0.5 <= p + d <= N - 0.5.
+    cols, rows = np.arange(W) + dx, np.arange(H) + dy
+    expected = ((rows >= -0.5) & (rows <= H - 0.5))[:, None] & ((cols >= -0.5) & (cols <= W - 0.5))[None, :]
+    mask = inside_mask(_constant_flow(dx, dy))
+    assert mask.dtype == np.float32
     np.testing.assert_array_equal(mask, expected.astype(np.float32))
 
 
