@@ -10,6 +10,7 @@ from typing import Annotated, Optional
 import typer
 
 from framestyle.errors import FramestyleError
+from framestyle.motion import FLOW_PRESETS
 from framestyle.settings import Settings
 
 app = typer.Typer(
@@ -229,6 +230,8 @@ def stylise(
 def _render(input: Path, out: Path, settings: Settings, *, workers: int, scheduler: str | None, threads: int | None,
             quiet: bool, **options) -> None:
     """Run a render in this process or on a Dask cluster, with progress and the closing report."""
+    if threads is not None and threads < 1:
+        _fail(f"--threads {threads}: must be 1 or more")
     bars = _Bars(quiet)
     try:
         if workers == 1 and scheduler is None:
@@ -436,6 +439,8 @@ def stability_command(
     _check_path(source, "source")
     if detail_frames < 0:
         _fail(f"--detail-frames {detail_frames}: must be 0 or more")
+    if flow_preset not in FLOW_PRESETS:
+        _fail(f"--flow-preset {flow_preset}: choose one of {', '.join(FLOW_PRESETS)}")
     alone = None
     if detail_frames:
         from framestyle.pipeline import frames_alone

@@ -57,39 +57,43 @@ def farm_render(
     local_threads = threads or max(1, (os.cpu_count() or 1) // workers)
     if scheduler is None:
         _set_threads(local_threads)  # recorded with the render: what each worker computes with
-    plan = plan_render(input_path, out, settings, shots=shots, shot_file=shot_file, restart=restart,
-                       keep_shot_list=keep_shot_list, progress=progress)
-    if scheduler is None:
-        # No memory limit: Dask's nanny would kill a worker whose torch pool grows past its
-        # share, and an HD frame's solve legitimately needs a few GB.
-        cluster = LocalCluster(n_workers=workers, threads_per_worker=1, processes=True, resources={RESOURCE: 1},
-                               memory_limit=0, dashboard_address=None, silence_logs=logging.CRITICAL)
-        client = Client(cluster)
-        worker_threads = local_threads
-    else:
-        cluster = None
-        try:
-            client = Client(scheduler, timeout=_CONNECT_TIMEOUT)
-        except OSError as exc:
-            raise FramestyleError(f"--scheduler {scheduler}: cannot reach the Dask scheduler ({exc})") from None
-        worker_threads = threads
+    client = None if scheduler is None else _connect(scheduler)  # before the output folder is touched
+    cluster = None
     try:
-        _check_workers(client, scheduler)
-        _run_shots(client, plan, worker_threads, progress)
+        plan = plan_render(input_path, out, settings, shots=shots, shot_file=shot_file, restart=restart,
+                           keep_shot_list=keep_shot_list, progress=progress)
+        if client is None:
+            # No memory limit: Dask's nanny would kill a worker whose torch pool grows past its
+            # share, and an HD frame's solve legitimately needs a few GB.
+            cluster = LocalCluster(n_workers=workers, threads_per_worker=1, processes=True, resources={RESOURCE: 1},
+                                   memory_limit=0, dashboard_address=None, silence_logs=logging.CRITICAL)
+            client = Client(cluster)
+        _run_shots(client, plan, local_threads if scheduler is None else threads, progress)
     finally:
-        client.close()
+        if client is not None:
+            client.close()
         if cluster is not None:
             cluster.close()
     return finish_render(plan, progress)
 
 
-def _check_workers(client, scheduler: str | None) -> None:
+def _connect(scheduler: str):
+    """A client of the running Dask scheduler at ``scheduler``, with a worker that offers the
+    shot resource; a one-line error otherwise."""
+    from distributed import Client
+
+    try:
+        client = Client(scheduler, timeout=_CONNECT_TIMEOUT)
+    except (OSError, ValueError) as exc:  # ValueError: not an address (e.g. no port)
+        raise FramestyleError(f"--scheduler {scheduler}: cannot reach the Dask scheduler ({exc})") from None
     workers = client.scheduler_info()["workers"].values()
     if not any(w.get("resources", {}).get(RESOURCE) for w in workers):
+        client.close()
         raise FramestyleError(
             f"--scheduler {scheduler}: no worker offers the '{RESOURCE}' resource; start workers with "
             f"`dask worker {scheduler} --nthreads 1 --resources {RESOURCE}=1`"
         )
+    return client
 
 
 def _run_shots(client, plan: Plan, threads: int | None, progress: Progress) -> None:

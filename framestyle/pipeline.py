@@ -248,6 +248,7 @@ def open_render(input_path: Path, out: Path, settings: Settings) -> tuple[io.Fra
     if out.exists() and not out.is_dir():
         raise FramestyleError(f"{out}: output path is a file, not a folder")
     source = io.open_source(Path(input_path))
+    Store(out).check_claimable(source.path)
     return source, check_render(source, settings)
 
 

@@ -167,6 +167,26 @@ class Store:
             _remove_temporary(self.out, lambda target: target in (MANIFEST, FLASH_PLOT) or f"{VIDEO_SUFFIX}." in target)
             yield self
 
+    def check_claimable(self, source_path: Path) -> None:
+        """Refuse an output folder a render would damage: the input's own folder (the frames
+        would overwrite the footage), or a folder that holds files but no render of ours
+        (a restart would discard them, and frames named as the input's would replace them).
+        A folder with a manifest, even an unreadable one, is a render: resume or restart it.
+        """
+        source = Path(source_path).resolve()
+        out = self.out.resolve()
+        if out == source:
+            raise FramestyleError(f"{self.out}: is the input folder; the stylised frames would overwrite the "
+                                  f"footage: choose another --out")
+        if not self.out.is_dir() or (self.out / MANIFEST).exists():
+            return
+        ours = {_PRIVATE, LOG, PREVIEW, REPORT, REPORT_FILES}
+        foreign = sorted(p.name for p in self.out.iterdir() if p.name not in ours and not p.name.startswith("."))
+        if foreign:
+            raise FramestyleError(f"{self.out}: holds files but no framestyle render ({foreign[0]}"
+                                  f"{f' and {len(foreign) - 1} more' if len(foreign) > 1 else ''}, no {MANIFEST}); "
+                                  f"choose a new or empty --out")
+
     def manifest(self) -> dict | None:
         """The manifest, or None if this folder holds no render yet."""
         path = self.out / MANIFEST

@@ -252,6 +252,72 @@ def test_output_path_that_is_a_file(small_clip, tmp_path):
     assert target.read_bytes() == b"precious"
 
 
+def test_the_input_folder_as_output_is_refused_and_the_footage_kept(small_clip, tmp_path):
+    clip = tmp_path / "clip"
+    clip.mkdir()
+    for path in sorted(small_clip.glob("*.png"))[:2]:
+        (clip / path.name).write_bytes(path.read_bytes())
+    footage = {p.name: p.read_bytes() for p in clip.iterdir()}
+    for extra in ([], ["--restart"]):
+        code, _, err = _run("stylise", clip, "--style", STYLE, "--out", clip, "-q", *FAST, *extra)
+        _one_line_error(code, err, "input folder")
+        assert {p.name: p.read_bytes() for p in clip.iterdir()} == footage
+
+
+def test_a_folder_of_other_files_is_not_taken_for_a_render(small_clip, tmp_path):
+    # A folder without framestyle.json that holds someone's files: neither written into nor,
+    # with --restart, emptied. A hidden file (.DS_Store) alone does not count.
+    mine = tmp_path / "mine"
+    (mine / "preview").mkdir(parents=True)
+    (mine / "take_001.png").write_bytes(b"my own frame")
+    (mine / "preview" / "notes.txt").write_bytes(b"my notes")
+    for extra in ([], ["--restart"]):
+        code, _, err = _run("stylise", small_clip, "--style", STYLE, "--out", mine, "-q", *FAST, *extra)
+        _one_line_error(code, err, "no framestyle render")
+    assert (mine / "take_001.png").read_bytes() == b"my own frame"
+    assert (mine / "preview" / "notes.txt").read_bytes() == b"my notes"
+    assert not (mine / ".framestyle").exists()
+    empty = tmp_path / "empty"
+    empty.mkdir()
+    (empty / ".DS_Store").write_bytes(b"")
+    code, _, err = _run("stylise", small_clip, "--style", STYLE, "--out", empty, "-q", "--width", "128",
+                        "--iterations", "2", "--shots", "1")
+    assert code == 0, err
+
+
+def test_bad_threads_scheduler_and_flow_preset_are_one_line_errors(small_clip, tmp_path):
+    out = tmp_path / "o"
+    _one_line_error(*_run("stylise", small_clip, "--style", STYLE, "--out", out, "--threads", "0")[::2], "--threads 0")
+    # not an address (no port): Dask raises ValueError; nothing is written before the connection
+    _one_line_error(*_run("stylise", small_clip, "--style", STYLE, "--out", out, "--scheduler", "nonsense")[::2],
+                    "--scheduler nonsense")
+    assert not out.exists()
+    _one_line_error(*_run("stability", small_clip, "--source", small_clip, "--flow-preset", "bogus")[::2], "bogus")
+
+
+def test_a_broken_json_shot_list_is_reported_as_json(small_clip, tmp_path):
+    for name, text, words in (("cut.json", '{"shots": [', "not valid JSON"),
+                              ("cut.txt", '{"shots": []}', "expected a JSON list of shots")):
+        path = tmp_path / name
+        path.write_text(text)
+        code, _, err = _run("stylise", small_clip, "--style", STYLE, "--out", tmp_path / "o", "--shot-list", path)
+        _one_line_error(code, err, name)
+        assert words in err
+
+
+def test_a_style_image_too_narrow_for_the_network_names_the_file_and_the_stroke_size_that_works(small_clip, tmp_path):
+    wide = tmp_path / "wide.png"
+    cv2.imwrite(str(wide), np.full((20, 2000, 3), 128, np.uint8))
+    code, _, err = _run("stylise", small_clip, "--style", wide, "--out", tmp_path / "o", *FAST)
+    _one_line_error(code, err, "wide.png")
+    size = float(err.split("--stroke-size ")[1].split()[0])
+    # 64 px (the network's least side) over the 20 px side scaled as the 2000 px one is to 128: 50
+    assert size == 50.0
+    code, _, err = _run("stylise", small_clip, "--style", wide, "--out", tmp_path / "o", "-q", "--width", "128",
+                        "--iterations", "2", "--shots", "1", "--stroke-size", str(size))
+    assert code == 0, err
+
+
 def test_bad_input_never_touches_a_finished_render(small_clip, tmp_path):
     out = tmp_path / "done"
     assert _run("stylise", small_clip, "--style", STYLE, "--out", out, "-q", *FAST, "--shots", "2")[0] == 0

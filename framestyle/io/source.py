@@ -131,7 +131,8 @@ def gap_warning(source: FrameSource) -> str | None:
     shown = ", ".join(f"{a}-{b}" if b > a else f"{a}" for a, b in source.gaps[:5])
     more = ", ..." if len(source.gaps) > 5 else ""
     return (f"{source.path}: frame numbers missing ({shown}{more}); each gap starts a new shot in "
-            f"detected shot lists, a shot list of yours is warped over it")
+            f"detected shot lists (a shot list you give may run across it), and timecode and the videos "
+            f"count the frames present, as if the gap were closed")
 
 
 def read_frame(source: FrameSource, index: int) -> np.ndarray:

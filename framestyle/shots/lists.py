@@ -120,7 +120,7 @@ def parse_shot_file(path: str | os.PathLike, numbers: Sequence[int], timecode: C
         text = Path(path).read_text(encoding="utf-8-sig")  # tolerate a byte-order mark
     except (OSError, UnicodeDecodeError) as exc:
         raise FramestyleError(f"{path}: cannot read the shot list ({exc})") from exc
-    if text.lstrip().startswith("["):
+    if text.lstrip()[:1] in ("[", "{") or Path(path).suffix.lower() == ".json":
         starts = _json_shot_starts(text, path, numbers)
     else:
         starts = _text_shot_starts(text, path, numbers)
@@ -161,6 +161,8 @@ def _json_shot_starts(text: str, path: str | os.PathLike, numbers: Sequence[int]
         entries = json.loads(text)
     except json.JSONDecodeError as exc:
         raise FramestyleError(f"{path}:{exc.lineno}: not valid JSON ({exc.msg})") from exc
+    if not isinstance(entries, list):
+        raise FramestyleError(f"{path}: expected a JSON list of shots, as `framestyle shots --json` prints")
     if not entries:
         raise FramestyleError(f"{path}: the shot list is empty")
     starts: list[int] = []

@@ -7,6 +7,7 @@ the working resolution, and coarse-to-fine levels see proportionally smaller str
 
 from __future__ import annotations
 
+import math
 from dataclasses import dataclass, field
 from pathlib import Path
 
@@ -25,26 +26,31 @@ from framestyle.style.solver import style_targets
 
 @dataclass
 class Look:
-    """Network, style images (H, W, 3 in [0, 1], colour-processed) and their mix weights."""
+    """Network, style images (H, W, 3 in [0, 1], colour-processed, read from ``paths``) and
+    their mix weights."""
 
     net: FeatureNet
     images: list[np.ndarray]
     mix: tuple[float, ...]
     layers: tuple[str, ...]
     stroke_size: float
+    paths: tuple[str, ...]
     _targets: dict = field(default_factory=dict, repr=False)
 
     def targets(self, size: tuple[int, int]) -> dict[str, torch.Tensor]:
         """Target Gram matrices for solving a frame of ``size`` (w, h); cached per size."""
         if size not in self._targets:
             tensors = []
-            for image in self.images:
+            for image, path in zip(self.images, self.paths):
                 scale = self.stroke_size * max(size) / max(image.shape[:2])
                 target = (max(1, round(image.shape[1] * scale)), max(1, round(image.shape[0] * scale)))
                 if min(target) < self.net.min_side:
+                    needed = self.net.min_side * max(image.shape[:2]) / (min(image.shape[:2]) * max(size))
                     raise FramestyleError(
-                        f"style image too small for a {size[0]}×{size[1]} frame at stroke size "
-                        f"{self.stroke_size}; use a larger --stroke-size"
+                        f"{path}: a {image.shape[1]}×{image.shape[0]} style image at stroke size {self.stroke_size} "
+                        f"is {target[0]}×{target[1]} beside a {size[0]}×{size[1]} frame, under the network's "
+                        f"{self.net.min_side} pixels a side; use --stroke-size {math.ceil(needed * 100) / 100:g} or more, or a less "
+                        f"elongated image"
                     )
                 tensors.append(to_tensor(resize(image, target)))
             self._targets[size] = style_targets(self.net, tensors, self.mix, self.layers)
@@ -76,4 +82,4 @@ def build_look(net: FeatureNet, settings: Settings, reference: np.ndarray | None
             image = match_histograms(image, reference)
         images.append(image)
     mix = tuple(settings.style_mix) or (1.0,) * len(images)
-    return Look(net, images, mix, layers, settings.stroke_size)
+    return Look(net, images, mix, layers, settings.stroke_size, tuple(settings.styles))
