@@ -470,6 +470,7 @@ def flashes_command(
     fps: Annotated[Optional[float], typer.Option(help="Frame rate of the 1-second windows and timecode (default: the video's or the render's; 24 for a folder).")] = None,
     json_out: Annotated[bool, typer.Option("--json", help="Print the check as JSON.")] = False,
     plot: Annotated[Optional[Path], typer.Option(help="Write the timeline plot PNG here (default for an output folder: OUT/flashes.png).")] = None,
+    source: Annotated[Optional[Path], typer.Option("--source", help="For an output folder: the footage, if it moved since the render (default: where the render read it).")] = None,
 ) -> None:
     """Check PATH for photosensitive flashes: general and red flashes per WCAG 2.1 SC 2.3.1 and ITU-R BT.1702.
 
@@ -479,7 +480,7 @@ def flashes_command(
     from framestyle.qc.flash_check import CAUTION, check_path, report_lines, verdict_line, write_plot
 
     _check_path(path, "input")
-    check = _run(check_path, path, fps)
+    check = _run(check_path, path, fps, source)
     plotted = _run(write_plot, check, plot)
     if json_out:
         typer.echo(json.dumps({**check.to_dict(), "plot": str(plotted) if plotted else None}))

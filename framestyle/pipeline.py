@@ -165,19 +165,23 @@ def plan_render(
     shot_list = shot_list_fingerprint(shot_file)
     store = Store(out)
     with store.folder_lock():
-        if restart:
-            store.restart(output_names(source))
-            store.log("restarted: previous frames, state, video, previews and records discarded")
-        manifest = store.manifest()
+        manifest = None if restart else store.manifest()
         if manifest is not None:
             check_resume(manifest, settings, inputs, None if keep_shot_list else shot_list, store.out)
             for change in environment_changes(manifest, environment(net)):
                 progress("warning", message=f"resumed under {change}: frames may differ in the last bits "
                                             f"from an uninterrupted render")
             shot_list_ = tuple(Shot(s["shot"], s["start"], s["end"]) for s in manifest["shots"])
-            store.log(f"resuming render of {source.path}")
         else:
             shot_list_ = tuple(find_shots(source, settings, shot_file))
+        # --shots is checked before a restart discards anything or a new manifest is written
+        wanted = parse_shot_selection(shots, len(shot_list_)) if shots else [s.index for s in shot_list_]
+        if restart:
+            store.restart(output_names(source))
+            store.log("restarted: previous frames, state, video, previews and records discarded")
+        if manifest is not None:
+            store.log(f"resuming render of {source.path}")
+        else:
             store.log(f"frames numbered {source.numbers[0]}-{source.numbers[-1]}, first frame at timecode "
                       f"{clip_timecode(source, settings, shot_file).label(0)}")
             store.create({"settings": settings.to_dict(), "inputs": inputs, "shot_list": shot_list,
@@ -188,7 +192,10 @@ def plan_render(
         finished = store.finished()
     if io.gap_warning(source):
         progress("warning", message=io.gap_warning(source))
-    wanted = parse_shot_selection(shots, len(shot_list_)) if shots else [s.index for s in shot_list_]
+    unmatched = sorted(int(n) for n in settings.shot_looks if int(n) > len(shot_list_))
+    if unmatched:
+        progress("warning", message=f"the look's settings for shot(s) {', '.join(map(str, unmatched))} apply to no "
+                                    f"shot: the clip has {len(shot_list_)}")
     if keep_shot_list and manifest is not None and manifest["shot_list"]["file"]:
         shot_file = Path(manifest["shot_list"]["file"])  # resumed: the list it was started with
     timecode = clip_timecode(source, settings, shot_file)
@@ -255,6 +262,9 @@ def open_render(input_path: Path, out: Path, settings: Settings) -> tuple[io.Fra
 def check_render(source: io.FrameSource, settings: Settings) -> FeatureNet:
     """Check every setting (and every shot's overrides) against ``source``; return the network."""
     net = network(settings)
+    if min(source.width, source.height) < net.min_side:  # no --width can help: it never enlarges
+        raise FramestyleError(f"{source.path}: frames are {source.width}×{source.height}, under the network's "
+                              f"{net.min_side} pixels a side; scale the footage up first")
     clip_timecode(source, settings)
     if settings.prores and source.linear:
         raise FramestyleError(f"{source.path}: the ProRes hand-off is made from display-referred frames; "
@@ -757,6 +767,10 @@ def preview(input_path: Path, out: Path, settings: Settings, every: int, *, widt
             tiles[shot.index].append((source.names[index], frame.display, delivered))
             progress("frame", index=index, shot=shot.index, iterations=stats.iterations, seconds=seconds, skipped=False)
         sheets = [folder.write(f"contact_shot{n:03d}.png", contact_sheet(tiles[n])) for n in wanted]
+        # an earlier preview of these shots sampled other frames: theirs would mix with these
+        folder.remove({io.frame_name(source, i) for n in wanted for i in range(shot_list[n - 1].start,
+                                                                                shot_list[n - 1].end + 1)}
+                      - {io.frame_name(source, i) for i in chosen})
     warning = preview_warning(analyse_source(source, clip_timecode(source, settings, shot_file)).to_dict())
     if warning:
         progress("warning", message=warning)

@@ -45,7 +45,7 @@ import socket
 import time
 import uuid
 from pathlib import Path
-from typing import TYPE_CHECKING, Callable, Iterator, Mapping, Sequence
+from typing import TYPE_CHECKING, Callable, Iterable, Iterator, Mapping, Sequence
 
 import numpy as np
 
@@ -511,6 +511,11 @@ class PreviewStore:
         path = self.folder / name
         io.write_image(path, image)
         return path
+
+    def remove(self, names: Iterable[str]) -> None:
+        """Delete these preview images where they exist."""
+        for name in names:
+            atomic.remove(self.folder / name)
 
 
 class ReportStore:

@@ -57,6 +57,11 @@ def test_preview_writes_every_nth_frame_and_a_contact_sheet_per_shot(small_clip,
         sheet = cv2.imread(str(tmp_path / "preview" / f"contact_shot{n:03d}.png"))
         assert sheet is not None and sheet.shape[1] > 3 * 240
     assert not list(tmp_path.glob("take_*.png"))  # a preview is not a render
+    # previewed again, shot 2 every 5 frames: its earlier frames go, shot 1's stay
+    assert _run("preview", small_clip, "--style", STYLE, "--out", tmp_path, "--every", "5", "--shots", "2", "-q",
+                *FAST)[0] == 0
+    previews = sorted(p.name for p in (tmp_path / "preview").glob("take_*.png"))
+    assert previews == ["take_001.png", "take_005.png", "take_009.png", "take_011.png", "take_016.png"]
 
 
 def test_video_input_gives_png_frames_and_an_mp4_with_the_source_audio(tmp_path):
@@ -234,6 +239,27 @@ def test_zero_byte_or_corrupt_frame(tmp_path, content):
     _one_line_error(*_run("stylise", folder, "--style", STYLE, "--out", tmp_path / "o")[::2], "f_002.png")
 
 
+def test_a_jpeg_frame_cut_short_is_refused_not_rendered_grey(tmp_path):
+    # libjpeg decodes a cut-off JPEG without failing, filling what is missing with grey
+    folder = tmp_path / "jpegs"
+    folder.mkdir()
+    rng = np.random.default_rng(0)
+    for k in (1, 2):
+        cv2.imwrite(str(folder / f"f_{k:03d}.jpg"), rng.integers(0, 256, (72, 128, 3), np.uint8))
+    data = (folder / "f_002.jpg").read_bytes()
+    (folder / "f_002.jpg").write_bytes(data[: len(data) // 2])
+    _one_line_error(*_run("stylise", folder, "--style", STYLE, "--out", tmp_path / "o")[::2], "f_002.jpg")
+
+
+def test_footage_smaller_than_the_network_takes_is_named_as_such(tmp_path):
+    folder = tmp_path / "tiny"
+    folder.mkdir()
+    cv2.imwrite(str(folder / "f_001.png"), np.zeros((60, 80, 3), np.uint8))
+    code, _, err = _run("stylise", folder, "--style", STYLE, "--out", tmp_path / "o", "--width", "96")
+    _one_line_error(code, err, "tiny")
+    assert "frames are 80×60" in err and "--width" not in err
+
+
 def test_unknown_network_and_too_small_width(small_clip, tmp_path):
     _one_line_error(*_run("stylise", small_clip, "--style", STYLE, "--out", tmp_path / "o", "--network", "alexnet")[::2], "alexnet")
     _one_line_error(*_run("stylise", small_clip, "--style", STYLE, "--out", tmp_path / "o", "--width", "40")[::2], "width 40")
@@ -283,6 +309,17 @@ def test_a_folder_of_other_files_is_not_taken_for_a_render(small_clip, tmp_path)
     code, _, err = _run("stylise", small_clip, "--style", STYLE, "--out", empty, "-q", "--width", "128",
                         "--iterations", "2", "--shots", "1")
     assert code == 0, err
+
+
+def test_a_shot_selection_out_of_range_is_refused_before_the_folder_is_written_or_restarted(small_clip, tmp_path):
+    out = tmp_path / "o"
+    _one_line_error(*_run("stylise", small_clip, "--style", STYLE, "--out", out, "--shots", "7")[::2], "7")
+    assert not (out / "framestyle.json").exists() and not (out / "render.log").exists()
+    assert _run("stylise", small_clip, "--style", STYLE, "--out", out, "-q", *FAST, "--shots", "1")[0] == 0
+    frames = {p.name: p.read_bytes() for p in out.glob("take_*.png")}
+    code, _, err = _run("stylise", small_clip, "--style", STYLE, "--out", out, *FAST, "--shots", "0", "--restart")
+    assert code == 2 and "Traceback" not in err
+    assert {p.name: p.read_bytes() for p in out.glob("take_*.png")} == frames and len(frames) == 10
 
 
 def test_bad_threads_scheduler_and_flow_preset_are_one_line_errors(small_clip, tmp_path):

@@ -237,6 +237,12 @@ def test_a_render_records_its_flash_check_and_the_sources_and_warns_where_it_fla
     assert check["plot"] == str(out / store.FLASH_PLOT)
     assert check["reports"]["render"]["verdicts"] == recorded["render"]["verdicts"]
 
+    clip.rename(tmp_path / "moved")  # the footage moved: named as the render's, and --source finds it
+    code, _, err = _run("flashes", out)
+    assert code == 2 and len(err.strip().splitlines()) == 1 and "give --source" in err
+    code, stdout, _ = _run("flashes", out, "--json", "--source", tmp_path / "moved")
+    assert code == 1 and json.loads(stdout)["reports"]["render"]["verdicts"] == recorded["render"]["verdicts"]
+
 
 def test_a_preview_warns_when_its_source_flashes(tmp_path):
     # Black and white alternating at 8 fps: 4 flashes in frames 1-8 (WCAG 2.1 SC 2.3.1 fails).

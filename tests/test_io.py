@@ -121,6 +121,16 @@ def test_two_sequences_of_equal_length_are_refused_as_ambiguous(tmp_path):
         open_source(tmp_path)
 
 
+def test_a_frame_of_the_run_in_another_format_is_refused_not_dropped_as_a_gap(tmp_path):
+    for n in (1, 3, 4):
+        write_uint(tmp_path / f"f_{n:04d}.png", np.zeros((4, 4, 3), np.uint8))
+    write_uint(tmp_path / "f_0002.jpg", np.zeros((4, 4, 3), np.uint8))
+    with pytest.raises(FramestyleError, match=r"f_0002.jpg: a frame of the f_#.png sequence in another format"):
+        open_source(tmp_path)
+    (tmp_path / "f_0002.jpg").rename(tmp_path / "f_0001.jpg")  # beside its PNG (a thumbnail, say): not a frame
+    assert open_source(tmp_path).files == ("f_0001.png", "f_0003.png", "f_0004.png")
+
+
 def test_two_files_with_the_same_frame_number_are_refused(tmp_path):
     write_uint(tmp_path / "f_1.png", np.zeros((4, 4, 3), np.uint8))
     write_uint(tmp_path / "f_01.png", np.zeros((4, 4, 3), np.uint8))
@@ -316,6 +326,19 @@ def test_variable_frame_rate_video_is_read_one_frame_per_decoded_frame(tmp_path)
     assert len(sequential) == 20
     for index, frame in iter_frames(source, start=12):
         np.testing.assert_array_equal(frame, sequential[index])
+
+
+def test_a_video_cut_short_is_refused_not_read_as_a_shorter_clip(tmp_path):
+    # Its index (moov at the front: faststart) promises 48 frames; the cut-off file decodes
+    # about half of them without ffmpeg failing, and says "partial file".
+    path = tmp_path / "whole.mp4"
+    ffmpeg("-f", "lavfi", "-i", "testsrc2=size=256x144:rate=24:duration=2", "-c:v", "libx264", "-g", "6",
+           "-pix_fmt", "yuv420p", "-movflags", "+faststart", str(path))
+    assert open_source(path).count == 48
+    data = path.read_bytes()
+    (tmp_path / "cut.mp4").write_bytes(data[: len(data) * 6 // 10])
+    with pytest.raises(FramestyleError, match="cut.mp4: the file is cut short"):
+        open_source(tmp_path / "cut.mp4")
 
 
 def test_10_bit_video_is_read_with_16_bit_precision(tmp_path):

@@ -12,7 +12,7 @@ from framestyle import io, store
 from framestyle.finish.colour import rgb_to_ycbcr
 from framestyle.finish.compose import finish
 from framestyle.errors import FramestyleError
-from framestyle.pipeline import render
+from framestyle.pipeline import plan_render, render
 from framestyle.settings import Settings, load_look
 
 from conftest import SAMPLE, STYLE, fast_settings, kill_and_resume
@@ -130,6 +130,14 @@ def test_a_look_file_sets_everything_and_per_shot_looks(small_clip, tmp_path):
     assert np.array_equal(src2, out2)  # shot 2: strength 0 from its own look
     saved = json.loads((out / store.MANIFEST).read_text())["settings"]
     assert saved["shot_looks"] == {"2": {"strength": 0.0}}
+
+
+def test_a_shot_look_for_a_shot_the_clip_does_not_have_is_said(small_clip, tmp_path):
+    events = []
+    settings = fast_settings(shot_looks={"2": {"strength": 0.5}, "5": {"strength": 0.0}})
+    plan_render(small_clip, tmp_path / "out", settings, progress=lambda e, **i: events.append((e, i)))
+    warnings = [i["message"] for e, i in events if e == "warning"]
+    assert warnings == ["the look's settings for shot(s) 5 apply to no shot: the clip has 2"]
 
 
 def test_a_bad_look_file_names_the_file_and_the_problem(tmp_path):

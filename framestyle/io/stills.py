@@ -51,6 +51,9 @@ def load_image(file: Path) -> np.ndarray:
         pixels = image.read_image(0, 0, 0, channels, kind)
         if pixels is None:
             raise FramestyleError(f"{file}: cannot decode the image ({_last_error()})")
+        problem = image.geterror() if image.has_error else ""
+        if "Premature end" in problem:  # libjpeg's warning for a cut-off file: it fills the rest grey
+            raise FramestyleError(f"{file}: the file is cut short; only part of the image could be decoded")
         return np.ascontiguousarray(pixels.reshape(spec.height, spec.width, channels))
 
     check_not_empty(file)

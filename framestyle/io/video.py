@@ -77,10 +77,12 @@ class VideoInfo:
 def probe_video(path: Path) -> VideoInfo:
     """Decode ``path`` once to count its frames exactly; read its size, rate, format and timecode."""
     meta = _video_meta(path)
-    progress = run_ffmpeg(
-        ["-i", str(path), *_VIDEO_STREAM, "-f", "null", "-progress", "pipe:1", "-"], path, "not a readable video"
-    )
-    counts = re.findall(rb"^frame=(\d+)", progress, re.MULTILINE)
+    decoded = _ffmpeg(["-i", str(path), *_VIDEO_STREAM, "-f", "null", "-progress", "pipe:1", "-"])
+    if decoded.returncode != 0:
+        raise FramestyleError(f"{path}: not a readable video ({last_line(decoded.stderr)})")
+    if b"partial file" in decoded.stderr:  # the demuxer's word for data its index promises but the file lacks
+        raise FramestyleError(f"{path}: the file is cut short (ffmpeg: partial file); copy or export it again")
+    counts = re.findall(rb"^frame=(\d+)", decoded.stdout, re.MULTILINE)
     count = int(counts[-1]) if counts else 0
     if count == 0:
         raise FramestyleError(f"{path}: video has no frames")
@@ -247,12 +249,17 @@ def _encode(frames_paths: Sequence[Path], fps: float, out_path: Path, video_filt
 
 def run_ffmpeg(args: list[str], file: Path, problem: str, stdin: bytes | None = None) -> bytes:
     """Run the bundled ffmpeg; on failure raise '<file>: <problem> (<ffmpeg's last line>)'."""
-    cmd = [imageio_ffmpeg.get_ffmpeg_exe(), "-hide_banner", "-loglevel", "error", *args]
-    result = subprocess.run(cmd, input=stdin, stdin=None if stdin is not None else subprocess.DEVNULL,
-                            capture_output=True)
+    result = _ffmpeg(args, stdin)
     if result.returncode != 0:
         raise FramestyleError(f"{file}: {problem} ({last_line(result.stderr)})")
     return result.stdout
+
+
+def _ffmpeg(args: list[str], stdin: bytes | None = None) -> subprocess.CompletedProcess:
+    """Run the bundled ffmpeg, reporting errors only; its output and messages captured."""
+    cmd = [imageio_ffmpeg.get_ffmpeg_exe(), "-hide_banner", "-loglevel", "error", *args]
+    return subprocess.run(cmd, input=stdin, stdin=None if stdin is not None else subprocess.DEVNULL,
+                          capture_output=True)
 
 
 def last_line(stderr: bytes, default: str = "ffmpeg gave no reason") -> str:

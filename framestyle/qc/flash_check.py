@@ -68,7 +68,7 @@ class FlashCheck:
 
 # --- analysing what a user points at ---------------------------------------------------------
 
-def check_path(path: Path, fps: float | None = None) -> FlashCheck:
+def check_path(path: Path, fps: float | None = None, source_path: Path | None = None) -> FlashCheck:
     """Check a folder of numbered frames, a video file, or a render's output folder.
 
     Parameters
@@ -76,6 +76,8 @@ def check_path(path: Path, fps: float | None = None) -> FlashCheck:
     path : the clip, or an output folder (one holding a render's manifest)
     fps : the frame rate of the 1-second windows and timecode, replacing the clip's own (a
         folder's default is :data:`framestyle.io.source.FOLDER_FPS`) or the render's
+    source_path : a render's footage, where it moved since the render (default: where the
+        render read it, from its manifest)
 
     Raises
     ------
@@ -93,7 +95,11 @@ def check_path(path: Path, fps: float | None = None) -> FlashCheck:
     settings = Settings.from_dict(manifest["settings"], str(path / MANIFEST))
     if fps is not None:
         settings = dataclasses.replace(settings, fps=fps)
-    source = io.open_source(Path(manifest["inputs"]["input"]))
+    footage = Path(source_path or manifest["inputs"]["input"])
+    if not footage.exists():
+        raise FramestyleError(f"{footage}: the footage of the render in {path} is not there; give --source "
+                              f"if it moved")
+    source = io.open_source(footage)
     shot_file = manifest["shot_list"]["file"]
     timecode = clip_timecode(source, settings, Path(shot_file) if shot_file else None)
     names = output_names(source)
