@@ -23,8 +23,9 @@ losses and warping error after / before ≤ 1.05 (the losses only where both ren
 network: with another ``feature_blur`` each render's network measures its own, and they are
 not compared).
 
-``--lengths 48,132`` also renders that many 720p frames (2 solver iterations a frame, the
-way ``shots_and_memory.py`` does at 320×180) and prints the peak memory of each, so one can
+``--lengths 48,480`` also renders that many 720p frames (2 solver iterations a frame, the
+way ``shots_and_memory.py`` does at 320×180; past the clip's 132 frames it plays backward,
+then forward again, so the motion reverses without a cut) and prints the peak memory of each, so one can
 see it stays flat in the clip's length. Compare lengths of 48 frames and more: until frame 41
 a render is still taking on its long-term temporal targets (up to 40 frames back) and the
 source frames their flows need, which legitimately add about 250 MB (measured with the heap
@@ -35,7 +36,7 @@ Run from the repository root on an otherwise idle machine::
 
     python benchmarks/hd_speed.py                                      # ~10-15 min on 2 cores
     python benchmarks/hd_speed.py --sizes 640x360 --warm 1 --iterations 6   # smoke test
-    python benchmarks/hd_speed.py --lengths 48,132 --sizes ""           # memory against clip length
+    python benchmarks/hd_speed.py --lengths 48,480 --sizes ""           # memory against clip length (~35 min)
     python benchmarks/hd_speed.py --sizes 1920x1080 --warm 1 --renders after   # the after row alone
     python benchmarks/hd_speed.py --sizes 1280x720 --after '{"warm_iterations": 40}'   # a setting's price
     python benchmarks/hd_speed.py --clip bikes.mp4 --start 40 --sizes 640x272 --warm 7 \
@@ -90,16 +91,24 @@ def footage_frame_reader(clip: str, start: int):
         yield frame
 
 
-def write_frames(folder: Path, size: tuple[int, int], count: int, start: int, clip: str = CLIP) -> Path:
-    """``count`` frames of ``clip`` from ``start``, resized to ``size``, as numbered PNGs."""
+def write_frames(folder: Path, size: tuple[int, int], count: int, start: int, clip: str = CLIP,
+                 bounce: bool = False) -> Path:
+    """``count`` frames of ``clip`` from ``start``, resized to ``size``, as numbered PNGs.
+
+    Past the clip's end, ``bounce`` plays it backward, then forward again, and so on (the
+    motion reverses at each end, no cut), so a render can be longer than the clip."""
     folder.mkdir(parents=True)
-    reader = footage_frame_reader(clip, start)
-    for k in range(count):
-        frame = next(reader, None)
-        if frame is None:
-            sys.exit(f"hd_speed.py: {clip} has {start + k} frames; {start + count} were asked for")
+    frames = []
+    for frame in footage_frame_reader(clip, start):
         interpolation = cv2.INTER_AREA if size[0] <= frame.shape[1] else cv2.INTER_CUBIC
-        cv2.imwrite(str(folder / f"frame_{k + 1:04d}.png"), cv2.resize(frame, size, interpolation=interpolation))
+        frames.append(cv2.resize(frame, size, interpolation=interpolation))
+        if len(frames) == count:
+            break
+    if len(frames) < count and not bounce:
+        sys.exit(f"hd_speed.py: {clip} has {start + len(frames)} frames; {start + count} were asked for")
+    cycle = list(range(len(frames))) + list(range(len(frames) - 2, 0, -1))  # 0 .. n-1 .. 1
+    for k in range(count):
+        cv2.imwrite(str(folder / f"frame_{k + 1:04d}.png"), frames[cycle[k % len(cycle)]])
     return folder
 
 
@@ -180,7 +189,8 @@ def main() -> None:
     parser.add_argument("--before-tree", type=Path, help="a framestyle checkout for the 'before' renders")
     parser.add_argument("--renders", default="before,after", help="the renders to run, comma-separated: before,after (default) or one of them")
     parser.add_argument("--after", default="{}", help='settings of the "after" render on top of the defaults, as JSON, e.g. \'{"warm_iterations": 40}\'')
-    parser.add_argument("--lengths", default="", help="also: peak memory of 720p renders this many frames long (the clip has 132)")
+    parser.add_argument("--lengths", default="", help="also: peak memory of 720p renders this many frames long "
+                        "(past the clip's 132 frames it plays backward and forward again)")
     args = parser.parse_args()
 
     import torch
@@ -220,7 +230,7 @@ def main() -> None:
         lengths = [int(v) for v in filter(None, args.lengths.split(","))]
         peaks = {}
         for count in lengths:
-            frames = write_frames(tmp / f"long_{count}", (1280, 720), count, 0)
+            frames = write_frames(tmp / f"long_{count}", (1280, 720), count, 0, bounce=True)
             settings = {**common, "width": 1280, "iterations": 2, "tolerance": 0.0}
             peaks[count] = child(["--child", "render", str(frames), str(tmp / f"long_out_{count}"),
                                   json.dumps(settings)], ROOT)["peak_mib"]
