@@ -180,7 +180,7 @@ class Store:
                                   f"footage: choose another --out")
         if not self.out.is_dir() or (self.out / MANIFEST).exists():
             return
-        ours = {_PRIVATE, LOG, PREVIEW, REPORT, REPORT_FILES}
+        ours = {LOG, PREVIEW, REPORT, REPORT_FILES}  # and hidden names, .framestyle among them
         foreign = sorted(p.name for p in self.out.iterdir() if p.name not in ours and not p.name.startswith("."))
         if foreign:
             raise FramestyleError(f"{self.out}: holds files but no framestyle render ({foreign[0]}"
