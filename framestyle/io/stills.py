@@ -14,6 +14,10 @@ Images leave this module as float32 ``(H, W, 3)`` RGB (gray replicated), alpha a
 
 from __future__ import annotations
 
+import contextlib
+import os
+import sys
+import tempfile
 from pathlib import Path
 
 import numpy as np
@@ -48,9 +52,10 @@ def load_image(file: Path) -> np.ndarray:
         kind = {oiio.UINT8: oiio.UINT8, oiio.UINT16: oiio.UINT16}.get(
             base, oiio.FLOAT if base in (oiio.HALF, oiio.FLOAT, oiio.DOUBLE) else oiio.UINT16)
         channels = min(spec.nchannels, 4)
-        pixels = image.read_image(0, 0, 0, channels, kind)
+        with _native_stderr() as said:  # libpng prints its own error there; ours names the file
+            pixels = image.read_image(0, 0, 0, channels, kind)
         if pixels is None:
-            raise FramestyleError(f"{file}: cannot decode the image ({_last_error()})")
+            raise FramestyleError(f"{file}: cannot decode the image ({said[0] if said else _last_error()})")
         problem = image.geterror() if image.has_error else ""
         if "Premature end" in problem:  # libjpeg's warning for a cut-off file: it fills the rest grey
             raise FramestyleError(f"{file}: the file is cut short; only part of the image could be decoded")
@@ -140,6 +145,28 @@ def _open(file: Path, use):
         return use(image)
     finally:
         image.close()
+
+
+@contextlib.contextmanager
+def _native_stderr():
+    """Collect what C libraries write to file descriptor 2 meanwhile, instead of the terminal.
+
+    Yields a list that holds, once the block is left, the last line written there, without
+    libpng's "libpng error: " prefix (nothing if nothing was written). Only a decode runs
+    inside it, so no message of ours is held back.
+    """
+    sys.stderr.flush()
+    saved, said = os.dup(2), []
+    with tempfile.TemporaryFile() as sink:
+        os.dup2(sink.fileno(), 2)
+        try:
+            yield said
+        finally:
+            os.dup2(saved, 2)
+            os.close(saved)
+            sink.seek(0)
+            lines = sink.read().decode(errors="replace").strip().splitlines()
+            said.extend(line.removeprefix("libpng error: ") for line in lines[-1:])
 
 
 def _last_error() -> str:
