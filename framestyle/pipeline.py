@@ -747,7 +747,8 @@ def preview(input_path: Path, out: Path, settings: Settings, every: int, *, widt
     The contact sheet paths, one per previewed shot.
 
     The source is checked for flashes (previewed frames, stylised one by one and sampled,
-    are not: a warning says when the source already flashes).
+    are not: a warning says when the source already flashes). ``out`` may hold a render of
+    the same footage (the preview goes beside it), not of other footage.
     """
     if every < 1:
         raise FramestyleError(f"--every {every}: must be 1 or more")
@@ -755,6 +756,10 @@ def preview(input_path: Path, out: Path, settings: Settings, every: int, *, widt
     settings = dataclasses.replace(settings, width=width, shot_looks={
         n: {**look, "width": width} for n, look in settings.shot_looks.items()})
     source, net = open_render(input_path, out, settings)
+    render_of = Store(out).manifest()
+    if render_of is not None and render_of["inputs"]["input_fingerprint"] != io.fingerprint(source):
+        raise FramestyleError(f"{out}: holds a render of other footage ({render_of['inputs']['input']}); previews of "
+                              f"{source.path} would mix with its frames and report: choose another --out")
     shot_list = find_shots(source, settings, shot_file)
     wanted = parse_shot_selection(shots, len(shot_list)) if shots else [s.index for s in shot_list]
     chosen = {i: shot for shot in shot_list if shot.index in wanted for i in sample_frames(shot.start, shot.end, every)}

@@ -1,6 +1,7 @@
 """The command line as a new user meets it: main job, previews, video, shots, bad input."""
 
 import json
+import shutil
 import subprocess
 
 import cv2
@@ -62,6 +63,22 @@ def test_preview_writes_every_nth_frame_and_a_contact_sheet_per_shot(small_clip,
                 *FAST)[0] == 0
     previews = sorted(p.name for p in (tmp_path / "preview").glob("take_*.png"))
     assert previews == ["take_001.png", "take_005.png", "take_009.png", "take_011.png", "take_016.png"]
+
+
+def test_a_preview_goes_beside_a_render_of_its_footage_never_of_other_footage(small_clip, tmp_path):
+    out = tmp_path / "o"
+    assert _run("stylise", small_clip, "--style", STYLE, "--out", out, "-q", *FAST, "--shots", "2")[0] == 0
+    frames = {p.name: p.read_bytes() for p in out.glob("take_*.png")}
+    other = tmp_path / "other"
+    shutil.copytree(small_clip, other)
+    first = sorted(other.glob("take_*.png"))[0]
+    cv2.imwrite(str(first), 255 - cv2.imread(str(first)))  # the same names, other pictures
+    code, _, err = _run("preview", other, "--style", STYLE, "--out", out, "--every", "4", "-q", *FAST)
+    _one_line_error(code, err, str(out))
+    assert "other footage" in err and not (out / "preview").exists()
+    assert _run("preview", small_clip, "--style", STYLE, "--out", out, "--every", "4", "-q", *FAST)[0] == 0
+    assert len(list((out / "preview").glob("take_*.png"))) == 6
+    assert {p.name: p.read_bytes() for p in out.glob("take_*.png")} == frames  # the render untouched
 
 
 def test_video_input_gives_png_frames_and_an_mp4_with_the_source_audio(tmp_path):
