@@ -50,7 +50,7 @@ from framestyle.store import (FLASH_KINDS, MANIFEST, Store, check_resume, enviro
                               input_fingerprints, output_names, shot_list_fingerprint)
 from framestyle.style.look import Look, build_look
 from framestyle.style.network import FeatureNet, load_network
-from framestyle.style.solver import SolverParams, SolveStats, solve, solve_coarse_to_fine
+from framestyle.style.solver import SolverParams, SolveStats, level_sizes, solve, solve_coarse_to_fine
 from framestyle.timecode import ClipTimecode
 from framestyle.temporal import fresh_problem, pass_problem, start_noise, steered_tv, temporal_problem
 from framestyle.working import Frame, deliver, prepare_frame, working_size
@@ -160,7 +160,7 @@ def plan_render(
     progress: Progress = no_progress,
 ) -> Plan:
     """Check everything, then create (or check and continue) the render's manifest in ``out``."""
-    source, net = open_render(input_path, out, settings)
+    source, net = open_render(input_path, out, settings, progress)
     inputs = input_fingerprints(source, settings)
     shot_list = shot_list_fingerprint(shot_file)
     store = Store(out)
@@ -249,14 +249,19 @@ def _version(package: str) -> str | None:
         return None
 
 
-def open_render(input_path: Path, out: Path, settings: Settings) -> tuple[io.FrameSource, FeatureNet]:
-    """Open the input and check every setting against it before the output folder is touched."""
+def open_render(input_path: Path, out: Path, settings: Settings,
+                progress: Progress = no_progress) -> tuple[io.FrameSource, FeatureNet]:
+    """Open the input and check every setting against it before the output folder is touched;
+    a warning says where a setting cannot be applied as asked."""
     out = Path(out)
     if out.exists() and not out.is_dir():
         raise FramestyleError(f"{out}: output path is a file, not a folder")
     source = io.open_source(Path(input_path))
     Store(out).check_claimable(source.path)
-    return source, check_render(source, settings)
+    net = check_render(source, settings)
+    for message in level_warnings(source, settings, net.min_side):
+        progress("warning", message=message)
+    return source, net
 
 
 def check_render(source: io.FrameSource, settings: Settings) -> FeatureNet:
@@ -280,6 +285,20 @@ def check_render(source: io.FrameSource, settings: Settings) -> FeatureNet:
         build_look(net, variant, frame.display).targets(size)
         Mattes(source, variant.matte)
     return net
+
+
+def level_warnings(source: io.FrameSource, settings: Settings, min_side: int) -> list[str]:
+    """Where the coarse-to-fine levels asked for (``levels``, ``warm_levels``, per shot too)
+    do not fit the working size: the levels under the network's ``min_side`` are skipped."""
+    messages = []
+    for label, variant in [("", settings)] + [(f" (shot {n})", settings.for_shot(int(n))) for n in settings.shot_looks]:
+        size = working_size(source.width, source.height, variant.width, min_side)
+        for key, asked in (("levels", variant.levels), ("warm_levels", variant.warm_levels)):
+            used = len(level_sizes(size, asked or 1, min_side))
+            if used < (asked or 1):
+                messages.append(f"{key} {asked}{label}: the working size {size[0]}×{size[1]} has room for {used} "
+                                f"(a level under the network's {min_side} pixels a side is skipped)")
+    return list(dict.fromkeys(messages))
 
 
 def network(settings: Settings) -> FeatureNet:
@@ -755,7 +774,7 @@ def preview(input_path: Path, out: Path, settings: Settings, every: int, *, widt
     width = width or min(settings.width or PREVIEW_WIDTH, PREVIEW_WIDTH)
     settings = dataclasses.replace(settings, width=width, shot_looks={
         n: {**look, "width": width} for n, look in settings.shot_looks.items()})
-    source, net = open_render(input_path, out, settings)
+    source, net = open_render(input_path, out, settings, progress)
     render_of = Store(out).manifest()
     if render_of is not None and render_of["inputs"]["input_fingerprint"] != io.fingerprint(source):
         raise FramestyleError(f"{out}: holds a render of other footage ({render_of['inputs']['input']}); previews of "

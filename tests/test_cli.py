@@ -81,6 +81,17 @@ def test_a_preview_goes_beside_a_render_of_its_footage_never_of_other_footage(sm
     assert {p.name: p.read_bytes() for p in out.glob("take_*.png")} == frames  # the render untouched
 
 
+def test_levels_that_do_not_fit_the_working_size_are_said(small_clip, tmp_path):
+    # 128×72: a half-size level (64×36) is under the network's 64 pixels a side, so one level runs
+    code, out, err = _run("stylise", small_clip, "--style", STYLE, "--out", tmp_path / "o", *FAST, "--shots", "2",
+                          "--levels", "3", "--warm-levels", "2")
+    assert code == 0, err
+    said = out + err
+    assert "levels 3: the working size 128×72 has room for 1" in said and "warm_levels 2: the working" in said
+    code, out, err = _run("stylise", small_clip, "--style", STYLE, "--out", tmp_path / "p", *FAST, "--shots", "2")
+    assert code == 0 and "has room for" not in out + err  # the default levels always fit
+
+
 def test_video_input_gives_png_frames_and_an_mp4_with_the_source_audio(tmp_path):
     video = tmp_path / "clip.mp4"
     ffmpeg = imageio_ffmpeg.get_ffmpeg_exe()

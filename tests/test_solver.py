@@ -130,6 +130,9 @@ def test_hd_sources_work_at_1280_by_default_and_solve_their_first_frames_coarse_
     assert working_size(1280, 720, None, 64) == (480, 270)
     assert working_size(1920, 1080, 1920, 64) == (1920, 1080)
     assert [solver.coarse_levels(w) for w in (480, 640, 960, 1280, 1920)] == [1, 1, 2, 3, 3]
+    # halvings rounded; a level under the network's 64 pixels a side is skipped (60×34 here)
+    assert solver.level_sizes((480, 270), 4, 64) == [(120, 68), (240, 135), (480, 270)]
+    assert solver.level_sizes((1280, 720), 3, 64) == [(320, 180), (640, 360), (1280, 720)]
 
 
 def test_the_warm_tv_weight_applies_to_frames_with_temporal_terms_only(setup):

@@ -213,8 +213,7 @@ def solve_coarse_to_fine(
     """
     h, w = problem.content.shape[-2:]
     levels = params.warm_levels if problem.temporal else params.levels or coarse_levels(w)
-    sizes = [(round(w / 2**k), round(h / 2**k)) for k in reversed(range(levels))]
-    sizes = [s for s in sizes[:-1] if min(s) >= net.min_side] + [(w, h)]
+    sizes = level_sizes((w, h), levels, net.min_side)
     image, used = None, 0
     cap = (problem.temporal and params.warm_iterations) or params.iterations
     for k, size in enumerate(sizes):
@@ -222,6 +221,15 @@ def solve_coarse_to_fine(
         image, stats = solve(net, level, targets(size), params, min(cap, max(2 * _CHUNK, cap // 4**k)))
         used += stats.iterations
     return image, replace(stats, iterations=used)
+
+
+def level_sizes(size: tuple[int, int], levels: int, min_side: int) -> list[tuple[int, int]]:
+    """The frame sizes (w, h) of ``levels`` coarse-to-fine levels for a frame of ``size``,
+    coarsest first: 1/2**(levels−1), ..., 1/2, 1 of it, without the levels whose smaller side
+    would be under the network's ``min_side`` (so fewer levels than asked at small sizes)."""
+    w, h = size
+    sizes = [(round(w / 2**k), round(h / 2**k)) for k in reversed(range(levels))]
+    return [s for s in sizes[:-1] if min(s) >= min_side] + [(w, h)]
 
 
 def coarse_levels(width: int) -> int:
