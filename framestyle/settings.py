@@ -30,8 +30,10 @@ DEVICES = ("auto", "cpu", "cuda", "mps")
 PRECISIONS = ("float32", "bfloat16")
 """The network's arithmetic; bfloat16 runs it under autocast, Gram matrices and losses stay float32."""
 
-_NonNegative = Annotated[float, Field(ge=0)]
-_Fraction = Annotated[float, Field(gt=0, le=1)]
+_NonNegative = Annotated[float, Field(ge=0, allow_inf_nan=False)]
+_Weight = Annotated[float, Field(ge=0, le=1e6, allow_inf_nan=False)]  # bounded: a weight past a million
+#                                 times another drowns it, and far beyond that the float32 loss overflows
+_Fraction = Annotated[float, Field(gt=0, le=1, allow_inf_nan=False)]
 _List = Strict(False)  # a TOML/JSON list is accepted for a tuple; its items stay strictly typed
 
 
@@ -39,18 +41,19 @@ _List = Strict(False)  # a TOML/JSON list is accepted for a tuple; its items sta
 class Settings:
     # --- look -------------------------------------------------------------------------------
     styles: Annotated[tuple[str, ...], _List] = ()  # style image paths, mixed at the Gram level
-    style_mix: Annotated[tuple[_NonNegative, ...], _List] = ()  # one weight per style (empty: equal)
-    style_weight: _NonNegative = 5.0  # weight of the relative Gram style loss
-    content_weight: _NonNegative = 1.0  # weight of the relative content loss
-    tv_weight: _NonNegative = 10.0  # total-variation weight: suppresses pixel-level speckle
-    warm_tv_weight: _NonNegative | None = None  # the same for frames that start from a warped
+    style_mix: Annotated[tuple[_Weight, ...], _List] = ()  # one weight per style (empty: equal)
+    style_weight: _Weight = 5.0  # weight of the relative Gram style loss
+    content_weight: _Weight = 1.0  # weight of the relative content loss
+    tv_weight: _Weight = 10.0  # total-variation weight: suppresses pixel-level speckle
+    warm_tv_weight: _Weight | None = None  # the same for frames that start from a warped
     #                                 frame (None: tv_weight); lower keeps strokes crisp along a shot
-    stroke_size: Annotated[float, Field(gt=0)] = 1.0  # style image resized to this × the working size
+    stroke_size: Annotated[float, Field(gt=0, le=100, allow_inf_nan=False)] = 1.0  # style image resized to this × the working size
     colour: Literal[COLOURS] = "style"  # palette: the painting's, the footage's (luma), recoloured
     luma_standard: Literal["bt709", "bt601"] = "bt709"  # luma weights for "luma": HD or SD
     strength: Annotated[float, Field(ge=0, le=1)] = 1.0  # 0 = the footage, 1 = full style
     matte: str | None = None  # folder of matte frames (white = stylise), or "alpha" for the input's
-    matte_softness: _NonNegative = 2.0  # soft matte edge: Gaussian sigma in source pixels
+    matte_softness: Annotated[float, Field(ge=0, le=1000, allow_inf_nan=False)] = 2.0  # soft matte edge:
+    #                                 Gaussian sigma in source pixels (1000: wider than any frame needs)
     levels: Annotated[int, Field(ge=1, le=6)] | None = None  # coarse-to-fine levels: first solve at
     #                                 1/2**(levels-1); None: by working width (style.solver.coarse_levels)
     warm_levels: Annotated[int, Field(ge=1, le=6)] = 1  # the same for frames that start from the previous one
@@ -74,7 +77,7 @@ class Settings:
     precision: Literal[PRECISIONS] = "float32"  # the network's arithmetic (bfloat16: autocast)
     # --- temporal stability (Ruder et al. 2016) -----------------------------------------------
     temporal: bool = True  # warm start from the warped previous frame + temporal losses
-    temporal_weight: _NonNegative = 50.0  # weight of the (short- and long-term) temporal loss
+    temporal_weight: _Weight = 50.0  # weight of the (short- and long-term) temporal loss
     long_term: Annotated[tuple[Annotated[int, Field(ge=1)], ...], _List] = (1, 10, 20, 40)  # frames back tied
     flow_preset: Literal[FLOW_PRESETS] = "medium"  # DIS optical flow preset
     warp_filter: Literal[WARP_FILTERS] = "cubic"  # resampling of the warped frames: linear, cubic, lanczos
@@ -87,7 +90,7 @@ class Settings:
     cut_threshold: _Fraction = 0.015  # least colour+layout step (0..1] of a cut; it must also stand out
     gradual_threshold: _Fraction = 0.2  # least end-to-end distance of a fade or dissolve
     # --- delivery -----------------------------------------------------------------------------
-    fps: Annotated[float, Field(gt=0)] | None = None  # frame rate of a frame folder (default 24); labels timecode
+    fps: Annotated[float, Field(gt=0, allow_inf_nan=False)] | None = None  # frame rate of a frame folder (default 24); labels timecode
     start_timecode: str | None = None  # the first frame's timecode (default: a video's own, else 00:00:00:00)
     prores: bool = False  # also write an edit-ready Apple ProRes 422 HQ .mov with the source's audio
 

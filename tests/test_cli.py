@@ -370,6 +370,30 @@ def test_a_broken_json_shot_list_is_reported_as_json(small_clip, tmp_path):
         assert words in err
 
 
+@pytest.mark.parametrize("option, value, words", [
+    ("--style-weight", "inf", "style_weight: expected a finite number"),
+    ("--temporal-weight", "1e300", "temporal_weight: expected less than or equal to 1000000"),
+    ("--style-mix", "inf,1", "style_mix.0: expected a finite number"),
+    ("--matte-softness", "1e9", "matte_softness: expected less than or equal to 1000"),
+    ("--stroke-size", "inf", "stroke_size: expected a finite number"),
+])
+def test_an_infinite_or_overflowing_number_is_refused_before_anything_is_written(small_clip, tmp_path, option, value,
+                                                                                  words):
+    # these ran out of memory (matte softness) or ended in a NaN traceback after the render began
+    code, _, err = _run("stylise", small_clip, "--style", STYLE, "--out", tmp_path / "o", *FAST, option, value)
+    _one_line_error(code, err, words)
+    assert not (tmp_path / "o").exists()
+
+
+def test_a_stroke_size_whose_style_image_would_not_fit_in_memory_says_the_largest_that_does(small_clip, tmp_path):
+    code, _, err = _run("stylise", small_clip, "--style", STYLE, "--out", tmp_path / "o", *FAST, "--stroke-size", "100")
+    _one_line_error(code, err, "style.png")
+    largest = float(err.split("--stroke-size ")[1].split()[0])
+    # the 512×512 style beside a 128×72 frame: 2 million pixels is a 1414-pixel square, 11.04 × 128
+    assert largest == 11.04
+    assert not (tmp_path / "o").exists()
+
+
 def test_a_style_image_too_narrow_for_the_network_names_the_file_and_the_stroke_size_that_works(small_clip, tmp_path):
     wide = tmp_path / "wide.png"
     cv2.imwrite(str(wide), np.full((20, 2000, 3), 128, np.uint8))

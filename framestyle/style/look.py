@@ -52,9 +52,25 @@ class Look:
                         f"{self.net.min_side} pixels a side; use --stroke-size {math.ceil(needed * 100) / 100:g} or more, or a less "
                         f"elongated image"
                     )
+                limit = style_pixel_limit(size)
+                if target[0] * target[1] > limit:
+                    most = self.stroke_size * math.sqrt(limit / (target[0] * target[1]))
+                    raise FramestyleError(
+                        f"{path}: at stroke size {self.stroke_size:g} the style image would be {target[0]}×{target[1]}, "
+                        f"over the {limit / 1e6:.1f} million pixels its features can take in memory beside a "
+                        f"{size[0]}×{size[1]} frame; use --stroke-size {math.floor(most * 100) / 100:g} or less"
+                    )
                 tensors.append(to_tensor(resize(image, target)))
             self._targets[size] = style_targets(self.net, tensors, self.mix, self.layers)
         return self._targets[size]
+
+
+def style_pixel_limit(size: tuple[int, int]) -> int:
+    """The most pixels a style image may have, resized by its stroke size, beside a frame of
+    ``size`` (w, h): 8 times the frame's or 2 million, whichever is more. Its features are
+    taken at that size in one forward pass (96 channels at full size: about 0.8 GB at
+    2 million pixels); beyond it a large ``stroke_size`` runs out of memory."""
+    return max(8 * size[0] * size[1], 2_000_000)
 
 
 def build_look(net: FeatureNet, settings: Settings, reference: np.ndarray | None = None) -> Look:
