@@ -249,8 +249,8 @@ def _version(package: str) -> str | None:
         return None
 
 
-def open_render(input_path: Path, out: Path, settings: Settings,
-                progress: Progress = no_progress) -> tuple[io.FrameSource, FeatureNet]:
+def open_render(input_path: Path, out: Path, settings: Settings, progress: Progress = no_progress,
+                preview: bool = False) -> tuple[io.FrameSource, FeatureNet]:
     """Open the input and check every setting against it before the output folder is touched;
     a warning says where a setting cannot be applied as asked."""
     out = Path(out)
@@ -259,7 +259,7 @@ def open_render(input_path: Path, out: Path, settings: Settings,
     source = io.open_source(Path(input_path))
     Store(out).check_claimable(source.path)
     net = check_render(source, settings)
-    for message in level_warnings(source, settings, net.min_side):
+    for message in setting_warnings(source, settings, net.min_side, preview):
         progress("warning", message=message)
     return source, net
 
@@ -270,6 +270,9 @@ def check_render(source: io.FrameSource, settings: Settings) -> FeatureNet:
     if min(source.width, source.height) < net.min_side:  # no --width can help: it never enlarges
         raise FramestyleError(f"{source.path}: frames are {source.width}×{source.height}, under the network's "
                               f"{net.min_side} pixels a side; scale the footage up first")
+    if settings.fps and source.kind == "video" and abs(settings.fps - source.fps) > 1e-6 * source.fps:
+        raise FramestyleError(f"{source.path}: a video keeps its own frame rate ({source.fps:g} frames/s, its sound "
+                              f"and timecode follow it); fps {settings.fps:g} is for a folder of frames")
     clip_timecode(source, settings)
     if settings.prores and source.linear:
         raise FramestyleError(f"{source.path}: the ProRes hand-off is made from display-referred frames; "
@@ -287,9 +290,19 @@ def check_render(source: io.FrameSource, settings: Settings) -> FeatureNet:
     return net
 
 
-def level_warnings(source: io.FrameSource, settings: Settings, min_side: int) -> list[str]:
-    """Where the coarse-to-fine levels asked for (``levels``, ``warm_levels``, per shot too)
-    do not fit the working size: the levels under the network's ``min_side`` are skipped."""
+TEMPORAL_SETTINGS = ("temporal_weight", "long_term", "flow_preset", "warp_filter", "warm_iterations", "warm_levels",
+                     "warm_tv_weight", "detail_probe", "passes", "pass_iterations")
+"""Settings that act only on frames started from their predecessor (the temporal chain)."""
+
+
+def setting_warnings(source: io.FrameSource, settings: Settings, min_side: int, preview: bool = False) -> list[str]:
+    """Where a setting (per shot too) cannot act as asked, one line each: coarse-to-fine levels
+    the working size has no room for (those under the network's ``min_side`` are skipped), a
+    width past the source's, settings of the temporal chain with the chain off or in a
+    preview (whose frames are stylised one by one), later passes' iterations with one pass,
+    a matte softness without a matte, and matte frames paired by position with input frames
+    numbered otherwise."""
+    defaults = Settings()
     messages = []
     for label, variant in [("", settings)] + [(f" (shot {n})", settings.for_shot(int(n))) for n in settings.shot_looks]:
         size = working_size(source.width, source.height, variant.width, min_side)
@@ -298,6 +311,21 @@ def level_warnings(source: io.FrameSource, settings: Settings, min_side: int) ->
             if used < (asked or 1):
                 messages.append(f"{key} {asked}{label}: the working size {size[0]}×{size[1]} has room for {used} "
                                 f"(a level under the network's {min_side} pixels a side is skipped)")
+        if variant.width and variant.width > source.width:
+            messages.append(f"width {variant.width}{label}: the source is {source.width} pixels wide, so it is "
+                            f"worked at {source.width}")
+        unused = [k for k in TEMPORAL_SETTINGS if getattr(variant, k) != getattr(defaults, k)]
+        if unused and (preview or not variant.temporal):
+            messages.append(f"{', '.join(unused)}{label}: no effect {'in a preview, whose frames are stylised one by one' if preview else 'with temporal off'}")
+        elif variant.passes == 1 and variant.pass_iterations != defaults.pass_iterations:
+            messages.append(f"pass_iterations{label}: no effect with one pass")
+        if not variant.matte and variant.matte_softness != defaults.matte_softness:
+            messages.append(f"matte_softness{label}: no effect without a matte")
+        if variant.matte and variant.matte != "alpha" and source.kind == "folder":
+            mattes = io.open_source(Path(variant.matte))
+            if mattes.kind == "folder" and mattes.numbers != source.numbers:
+                messages.append(f"matte {variant.matte}: numbered otherwise than the input, so its frames are paired "
+                                f"with the input's in order ({mattes.files[0]} with {source.files[0]})")
     return list(dict.fromkeys(messages))
 
 
@@ -774,7 +802,7 @@ def preview(input_path: Path, out: Path, settings: Settings, every: int, *, widt
     width = width or min(settings.width or PREVIEW_WIDTH, PREVIEW_WIDTH)
     settings = dataclasses.replace(settings, width=width, shot_looks={
         n: {**look, "width": width} for n, look in settings.shot_looks.items()})
-    source, net = open_render(input_path, out, settings, progress)
+    source, net = open_render(input_path, out, settings, progress, preview=True)
     render_of = Store(out).manifest()
     if render_of is not None and render_of["inputs"]["input_fingerprint"] != io.fingerprint(source):
         raise FramestyleError(f"{out}: holds a render of other footage ({render_of['inputs']['input']}); previews of "

@@ -92,6 +92,37 @@ def test_levels_that_do_not_fit_the_working_size_are_said(small_clip, tmp_path):
     assert code == 0 and "has room for" not in out + err  # the default levels always fit
 
 
+def test_settings_that_cannot_act_as_asked_are_said(small_clip, tmp_path):
+    mattes = tmp_path / "mattes"
+    mattes.mkdir()
+    for k, frame in enumerate(sorted(small_clip.glob("take_*.png"))):
+        shutil.copy(frame, mattes / f"matte_{k:04d}.png")  # numbered from 0, the plate from 1
+    code, out, err = _run("stylise", small_clip, "--style", STYLE, "--out", tmp_path / "o", "--iterations", "2",
+                          "--shots", "2", "--width", "4000", "--no-temporal", "--passes", "3", "--flow-preset", "fast",
+                          "--matte", mattes)
+    assert code == 0, err
+    said = out + err
+    assert "width 4000: the source is 128 pixels wide" in said, said
+    assert "flow_preset, passes: no effect with temporal off" in said
+    assert "paired with the input's in order (matte_0000.png with take_001.png)" in said
+    code, out, err = _run("preview", small_clip, "--style", STYLE, "--out", tmp_path / "p", *FAST, "--every", "9",
+                          "--temporal-weight", "5", "--matte-softness", "4")
+    assert code == 0, err
+    assert "temporal_weight: no effect in a preview" in out + err and "matte_softness: no effect without a matte" in out + err
+    code, out, err = _run("stylise", small_clip, "--style", STYLE, "--out", tmp_path / "q", *FAST, "--shots", "2")
+    assert code == 0 and "framestyle: warning" not in out + err  # the defaults: nothing to say
+
+
+def test_a_frame_rate_for_a_video_is_refused_as_its_sound_follows_its_own(tmp_path):
+    video = tmp_path / "clip.mp4"
+    subprocess.run([imageio_ffmpeg.get_ffmpeg_exe(), "-v", "error", "-f", "lavfi", "-i", "testsrc2=size=128x72:rate=25",
+                    "-t", "0.2", "-pix_fmt", "yuv420p", "-c:v", "libx264", str(video)], check=True)
+    code, _, err = _run("stylise", video, "--style", STYLE, "--out", tmp_path / "o", *FAST, "--fps", "30")
+    _one_line_error(code, err, "clip.mp4: a video keeps its own frame rate (25 frames/s")
+    assert not (tmp_path / "o").exists()
+    assert _run("stylise", video, "--style", STYLE, "--out", tmp_path / "o", *FAST, "--fps", "25", "-q")[0] == 0
+
+
 def test_video_input_gives_png_frames_and_an_mp4_with_the_source_audio(tmp_path):
     video = tmp_path / "clip.mp4"
     ffmpeg = imageio_ffmpeg.get_ffmpeg_exe()
