@@ -59,6 +59,8 @@ if TYPE_CHECKING:
 
 MANIFEST = "framestyle.json"
 FORMAT = 2  # manifest format version
+_MANIFEST_KEYS = {"settings": dict, "inputs": dict, "shot_list": dict, "shots": list}
+"""What every manifest holds (:meth:`Store.create`'s callers write them), by type."""
 LOG = "render.log"
 PREVIEW = "preview"
 REPORT = "report.html"
@@ -198,6 +200,9 @@ class Store:
             raise FramestyleError(f"{path}: unreadable manifest ({exc}); use --restart to start over") from None
         if not isinstance(manifest, dict) or manifest.get("format") != FORMAT:
             raise FramestyleError(f"{path}: not a manifest of this framestyle version; use --restart to start over")
+        missing = [key for key, kind in _MANIFEST_KEYS.items() if not isinstance(manifest.get(key), kind)]
+        if missing:
+            raise FramestyleError(f"{path}: damaged manifest (no valid {', '.join(missing)}); use --restart to start over")
         return manifest
 
     def create(self, manifest: dict) -> None:

@@ -6,6 +6,7 @@ stop (or fail) the render at each one in turn and check that the next run finish
 frames equal, bit for bit, to an uninterrupted render's.
 """
 
+import json
 import os
 import shutil
 import subprocess
@@ -144,6 +145,10 @@ def test_restart_works_when_the_manifest_is_unreadable(clip, reference, tmp_path
     (out / store.MANIFEST).write_text("{ not json")
     code, err, _ = run_cli(_args(clip, out))
     assert code == 2 and "unreadable manifest" in err and "--restart" in err
+    (out / store.MANIFEST).write_text(json.dumps({"format": store.FORMAT, "shots": "1-4"}))  # valid JSON, no render
+    code, err, _ = run_cli(_args(clip, out))
+    assert code == 2 and "damaged manifest (no valid settings, inputs, shot_list, shots)" in err, err
+    assert len(err.strip().splitlines()) == 1
     assert run_cli(_args(clip, out, "--restart"))[0] == 0
     assert frames_of(out) == frames_of(ref)
 
