@@ -3,6 +3,7 @@
 import functools
 import inspect
 import json
+import math
 import sys
 from pathlib import Path
 from typing import Annotated, Optional
@@ -194,7 +195,7 @@ class _Bars:
             self.progress.console.print(
                 f"shot {s.shot.index}: frames {s.frames} ({s.shot.length}), "
                 f"{s.seconds:.0f} s, {s.iterations / max(1, s.frames_done):.0f} iterations/frame, "
-                f"warping error {s.warp_error:.5f}"
+                f"warping error {_measured(s.warp_error, '.5f')}"
             )
 
     def stop(self) -> None:
@@ -329,12 +330,23 @@ def _report(result, quiet: bool) -> None:
         typer.echo(_CAUTION, err=True)
 
 
+def _measured(value: float, spec: str) -> str:
+    """A figure as ``spec`` formats it, or "-" where none was measured (NaN: a one-frame shot
+    has no frame pairs, a render with temporal off no warping error)."""
+    return "-" if math.isnan(value) else format(value, spec)
+
+
+def _number(value: float) -> float | None:
+    """A figure for JSON: null where none was measured (JSON has no NaN)."""
+    return None if math.isnan(value) else value
+
+
 def _summary_table(shots) -> str:
     """The end-of-render table: one row per shot rendered now, and a total."""
     rows = [f"{'shot':>4}  {'frames':>9}  {'done':>4}  {'time':>8}  {'it/frame':>8}  {'warp error':>10}"]
     for s in shots:
         rows.append(f"{s.shot.index:>4}  {s.frames:>9}  {s.frames_done:>4}  "
-                    f"{s.seconds:>7.0f}s  {s.iterations / max(1, s.frames_done):>8.1f}  {s.warp_error:>10.5f}")
+                    f"{s.seconds:>7.0f}s  {s.iterations / max(1, s.frames_done):>8.1f}  {_measured(s.warp_error, '.5f'):>10}")
     done = sum(s.frames_done for s in shots)
     rows.append(f"{'all':>4}  {'':>9}  {done:>4}  {sum(s.seconds for s in shots):>7.0f}s  "
                 f"{sum(s.iterations for s in shots) / max(1, done):>8.1f}")
@@ -449,16 +461,17 @@ def stability_command(
     rows = _run(stability, out, source, flow_preset, alone, max(1, detail_frames))
     if json_out:
         typer.echo(json.dumps({
-            "shots": [{"shot": r.shot.index, "frames": r.frames, "render": r.render, "source": r.source,
+            "shots": [{"shot": r.shot.index, "frames": r.frames, "render": _number(r.render), "source": _number(r.source),
                        "detail": [{"frame": n, "ratio": v} for n, v in r.detail]} for r in rows],
-            "overall": {"render": overall(rows, "render"), "source": overall(rows, "source")},
-        }))
+            "overall": {"render": _number(overall(rows, "render")), "source": _number(overall(rows, "source"))},
+        }, allow_nan=False))
         return
     typer.echo(f"{'shot':>4}  {'frames':>11}  {'render':>10}  {'source':>10}" + ("  stroke detail (frame: ratio)" if alone else ""))
     for r in rows:
-        typer.echo(f"{r.shot.index:>4}  {r.frames:>11}  {r.render:>10.5f}  {r.source:>10.5f}"
+        typer.echo(f"{r.shot.index:>4}  {r.frames:>11}  {_measured(r.render, '.5f'):>10}  {_measured(r.source, '.5f'):>10}"
                    + "".join(f"  {n}: {v:.2f}" for n, v in r.detail))
-    typer.echo(f"{'all':>4}  {'':>11}  {overall(rows, 'render'):>10.5f}  {overall(rows, 'source'):>10.5f}")
+    typer.echo(f"{'all':>4}  {'':>11}  {_measured(overall(rows, 'render'), '.5f'):>10}  "
+               f"{_measured(overall(rows, 'source'), '.5f'):>10}")
     typer.echo("warping error: mean squared RGB change along the optical flow (Lai et al. 2018)")
     if alone:
         typer.echo("stroke detail: Laplacian energy of the render's frame over that of the frame rendered on its own")

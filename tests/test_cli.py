@@ -249,6 +249,18 @@ def test_stability_command_reports_render_and_source(small_clip, tmp_path):
     assert "stroke detail" in out
 
 
+def test_a_one_frame_shot_has_no_warping_error_and_says_so_in_valid_json(small_clip, tmp_path):
+    shots = tmp_path / "shots.txt"
+    shots.write_text("1\n10\n11\n")  # shot 2 is frame 10 alone: no frame pair to measure
+    code, out, err = _run("stylise", small_clip, "--style", STYLE, "--out", tmp_path / "o", *FAST, "--shot-list", shots)
+    assert code == 0, err
+    assert "shot 2: frames 10-10 (1), 0 s, 4 iterations/frame, warping error -" in out + err
+    code, out, _ = _run("stability", tmp_path / "o", "--source", small_clip, "--json", "--detail-frames", "0")
+    assert code == 0 and "NaN" not in out  # JSON has no NaN (RFC 8259, Sec. 6, from memory): parsers elsewhere reject it
+    report = json.loads(out)
+    assert report["shots"][1]["render"] is None and report["shots"][0]["render"] > 0
+
+
 def test_a_frame_by_frame_render_keeps_exactly_the_detail_of_frames_rendered_on_their_own(small_clip, tmp_path):
     # With the temporal terms off every frame is rendered on its own: the reference the
     # detail measure renders again must be the very same frame, ratio 1.
