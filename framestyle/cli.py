@@ -211,7 +211,7 @@ def stylise(
     input: Annotated[Path, typer.Argument(help="Folder of numbered frames, or a video file.")],
     out: Annotated[Path, typer.Option("--out", "-o", help="Output folder for the stylised frames.")],
     options: dict,
-    shots: Annotated[Optional[str], typer.Option(help="Render only these shots, e.g. 2,4-5.")] = None,
+    shots: Annotated[Optional[str], typer.Option(help="Render only these shots, e.g. 2,4-5 (7-: shot 7 to the last).")] = None,
     shot_list: Annotated[Optional[Path], typer.Option(help="Shots from this file instead of detection: shot starts in the source's frame numbers, the JSON of `framestyle shots --json`, an EDL or an .otio file.")] = None,
     restart: Annotated[bool, typer.Option("--restart", help="Discard a previous render in --out and start over.")] = False,
     workers: Annotated[int, typer.Option(help="Render shots in this many local worker processes (Dask); 1 = this process only.")] = 1,
@@ -260,7 +260,7 @@ def preview(
     out: Annotated[Path, typer.Option("--out", "-o", help="Output folder; previews go to its preview/ folder.")],
     options: dict,
     every: Annotated[int, typer.Option(help="Stylise every Nth frame of each shot, from its first.")] = 10,
-    shots: Annotated[Optional[str], typer.Option(help="Preview only these shots, e.g. 2,4-5.")] = None,
+    shots: Annotated[Optional[str], typer.Option(help="Preview only these shots, e.g. 2,4-5 (7-: shot 7 to the last).")] = None,
     shot_list: Annotated[Optional[Path], typer.Option(help="Shots from this file instead of detection: shot starts in the source's frame numbers, the JSON of `framestyle shots --json`, an EDL or an .otio file.")] = None,
     quiet: Annotated[bool, typer.Option("--quiet", "-q", help="No progress display.")] = False,
 ) -> None:
@@ -289,7 +289,7 @@ def preview(
 @app.command()
 def resume(
     out: Annotated[Path, typer.Argument(help="Output folder of a render started with `stylise`.")],
-    shots: Annotated[Optional[str], typer.Option(help="Render only these shots, e.g. 2,4-5.")] = None,
+    shots: Annotated[Optional[str], typer.Option(help="Render only these shots, e.g. 2,4-5 (7-: shot 7 to the last).")] = None,
     workers: Annotated[int, typer.Option(help="Render shots in this many local worker processes (Dask); 1 = this process only.")] = 1,
     scheduler: Annotated[Optional[str], typer.Option(help="Send the shots to a running Dask scheduler whose workers see the same paths.")] = None,
     threads: Annotated[Optional[int], typer.Option(help="Torch threads per process (default: all cores, shared among --workers).")] = None,

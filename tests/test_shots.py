@@ -15,7 +15,7 @@ from framestyle.shots.detect import (
     frame_signature,
     signature_distance,
 )
-from framestyle.shots.lists import apply_overrides, format_shot_table, parse_shot_file
+from framestyle.shots.lists import apply_overrides, format_shot_table, parse_shot_file, parse_shot_selection
 from framestyle.shots.lists import shot_entries
 from framestyle.timecode import ClipTimecode
 
@@ -383,3 +383,13 @@ def test_shot_table_shows_source_numbers_and_the_source_timecode():
     # 25 fps non-drop (SMPTE ST 12-1): position 48 is 01:00:00:00 + 48 frames = 01:00:01:23.
     assert lines[1].split() == ["1", "1001", "1048", "48", "01:00:00:00", "01:00:01:22"]
     assert lines[2].split() == ["2", "1049", "1100", "52", "01:00:01:23", "01:00:03:24"]
+
+
+def test_a_shot_selection_reads_lists_ranges_and_open_ranges_and_refuses_the_rest():
+    assert parse_shot_selection("2,4-5", 6) == [2, 4, 5]
+    assert parse_shot_selection("5-", 6) == [5, 6]  # shot 5 to the last
+    assert parse_shot_selection("1-1, 3", 6) == [1, 3]
+    for text, words in [("2-1", "runs downward; write 1-2"), (",", "no shot chosen"), ("x", "expected shot numbers"),
+                        ("7-", "no shot 7")]:
+        with pytest.raises(FramestyleError, match=words):
+            parse_shot_selection(text, 6)

@@ -286,14 +286,20 @@ def format_shot_table(shots: Sequence[Shot], numbers: Sequence[int], timecode: C
 
 
 def parse_shot_selection(text: str, n_shots: int) -> list[int]:
-    """Parse a selection like ``2,4-5`` into sorted shot numbers, checking they exist."""
+    """Parse a selection like ``2,4-5`` (``7-``: shot 7 to the last) into sorted shot
+    numbers, checking they exist and that a range runs upward."""
     chosen: list[int] = []
     try:
         for part in filter(None, (p.strip() for p in text.split(","))):
-            lo, _, hi = part.partition("-")
-            chosen += range(int(lo), int(hi or lo) + 1)
+            lo, dash, hi = part.partition("-")
+            first, last = int(lo), int(hi) if hi else n_shots if dash else int(lo)
+            if hi and last < first:
+                raise FramestyleError(f"--shots {text!r}: the range {part} runs downward; write {last}-{first}")
+            chosen += range(first, max(first, last) + 1)  # "7-" past the last shot: 7, refused below
     except ValueError:
-        raise FramestyleError(f"--shots {text!r}: expected shot numbers like 2,4-5") from None
+        raise FramestyleError(f"--shots {text!r}: expected shot numbers like 2,4-5 or 7-") from None
+    if not chosen:
+        raise FramestyleError(f"--shots {text!r}: no shot chosen; expected shot numbers like 2,4-5 or 7-")
     bad = [n for n in chosen if not 1 <= n <= n_shots]
     if bad:
         raise FramestyleError(f"--shots {text!r}: no shot {bad[0]} (the input has {n_shots})")
