@@ -131,6 +131,11 @@ def test_flashes_command_json_parses_and_plot_is_a_png(tmp_path):
     assert report["fps"] == FPS and report["frames"] == 2 * FPS
     assert report["verdicts"] == {"wcag21": {"general": "fail", "red": "pass"}, "bt1702": {"general": "fail", "red": "pass"}}
     assert cv2.imread(str(plot)) is not None
+    frame = sorted(folder.iterdir())[5]
+    kept = frame.read_bytes()
+    code, _, err = _run("flashes", folder, "--fps", FPS, "--plot", frame)  # it replaced the footage's frame
+    assert code == 2 and err.strip().endswith("the plot would land among the frames of " + str(folder) + "; write it elsewhere")
+    assert frame.read_bytes() == kept
 
 
 def test_flashes_command_reads_a_video_at_its_own_frame_rate(tmp_path):

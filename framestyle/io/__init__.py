@@ -6,8 +6,8 @@ types and ffmpeg stay behind this package.
 
 from framestyle.io.source import (FrameSource, fingerprint, frame_name, iter_frames, open_source, read_alpha,
                                   read_frame, read_image, source_timecode, gap_warning)
-from framestyle.io.stills import write_image
+from framestyle.io.stills import IMAGE_EXTS, write_image
 from framestyle.io.video import write_prores, write_video
 
-__all__ = ["FrameSource", "fingerprint", "frame_name", "iter_frames", "open_source", "read_alpha", "read_frame",
+__all__ = ["IMAGE_EXTS", "FrameSource", "fingerprint", "frame_name", "iter_frames", "open_source", "read_alpha", "read_frame",
            "read_image", "source_timecode", "gap_warning", "write_image", "write_prores", "write_video"]

@@ -31,7 +31,7 @@ from framestyle.qc.flashes import AREA_LIMIT, KINDS, MAX_FLASHES, STANDARDS, Fla
 from framestyle.settings import Settings
 from framestyle.shots import Shot
 from framestyle.shots.cutlists import clip_timecode
-from framestyle.store import MANIFEST, Store, output_names
+from framestyle.store import FLASH_PLOT, MANIFEST, Store, output_names
 from framestyle.timecode import ClipTimecode
 
 CAUTION = ("The flash check is an aid, not a certification: broadcasters' rules and local regulators "
@@ -135,12 +135,23 @@ def write_plot(check: FlashCheck, path: Path | None = None) -> Path | None:
     if path is not None:
         from framestyle.qc.flash_plot import plot_flash_timeline  # matplotlib only when drawing
 
+        _check_plot_path(check, Path(path))
         plot_flash_timeline(check.reports, path)
         return Path(path)
     if check.judged != "render":
         return None
     with Store(check.path).folder_lock() as store:
         return store.write_flash_plot(check.reports)
+
+
+def _check_plot_path(check: FlashCheck, path: Path) -> None:
+    """Refuse a plot path that would replace what was checked: the video itself, or an image
+    among a clip's frames or a render's (a render's own ``flashes.png`` aside)."""
+    clip, target = Path(check.path).resolve(), path.resolve()
+    among_frames = (target.parent == clip and target.suffix.lower() in io.IMAGE_EXTS
+                    and not (check.judged == "render" and target.name == FLASH_PLOT))
+    if target == clip or among_frames:
+        raise FramestyleError(f"{path}: the plot would land among the frames of {check.path}; write it elsewhere")
 
 
 # --- the check a render records --------------------------------------------------------------
