@@ -81,8 +81,8 @@ def parse_shot_file(path: str | os.PathLike, numbers: Sequence[int], timecode: C
 
     *JSON*: the list that ``framestyle shots --json`` prints,
     ``[{"shot": 1, "start": 1001, "end": 1047, ...}, ...]``, in source frame numbers.
-    The ``start`` values define the shots; ``shot`` numbers and other keys are ignored
-    (shots are renumbered). An ``end`` must lie between its ``start`` and the clip's last
+    The ``start`` values define the shots, the first at the clip's first frame; ``shot``
+    numbers and other keys are ignored (shots are renumbered). An ``end`` must lie between its ``start`` and the clip's last
     frame and before the next ``start``, but may leave a gap: deleting an entry merges its
     shot into the one before.
 
@@ -174,6 +174,9 @@ def _json_shot_starts(text: str, path: str | os.PathLike, numbers: Sequence[int]
                 f'{where}: expected {{"shot": N, "start": FRAME, "end": FRAME}}, got {entry!r}'
             )
         start = _check_start(entry["start"], starts[-1] if starts else None, where, numbers)
+        if not starts and start != 0:  # frames before it would make a shot the list never names
+            raise FramestyleError(f"{where}: the first shot starts at {entry['start']}, not at the clip's first "
+                                  f"frame {numbers[0]}; list the frames before it as a shot of their own")
         if previous_end is not None and start <= previous_end:
             raise FramestyleError(
                 f"{where}: start {entry['start']} is inside the previous shot"
