@@ -426,9 +426,7 @@ def report_command(
     settings = _run(Settings.from_dict, manifest["settings"], str(out / store.MANIFEST))
     footage = _check_path(source or Path(manifest["inputs"]["input"]), "source footage (give --source if it moved)")
     clip = _run(io.open_source, footage)
-    frames = manifest["shots"][-1]["end"] + 1
-    if clip.count != frames:
-        _fail(f"{footage}: has {clip.count} frames, the render in {out} has {frames}")
+    _run(store.check_footage, manifest, clip, out)
     shot_file = manifest["shot_list"]["file"]
     shot_file = Path(shot_file) if shot_file and Path(shot_file).exists() else None
     timecode = _run(clip_timecode, clip, settings, shot_file)

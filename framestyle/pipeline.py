@@ -46,7 +46,7 @@ from framestyle.shots.detect import detect_shots, frame_signature
 from framestyle.shots.continuity import starts_new_shot
 from framestyle.shots.cutlists import clip_timecode
 from framestyle.shots.lists import frame_range, parse_shot_file, parse_shot_selection
-from framestyle.store import (FLASH_KINDS, MANIFEST, Store, check_resume, environment_changes,
+from framestyle.store import (FLASH_KINDS, MANIFEST, Store, check_footage, check_resume, environment_changes,
                               input_fingerprints, output_names, shot_list_fingerprint)
 from framestyle.style.look import Look, build_look
 from framestyle.style.network import FeatureNet, load_network
@@ -804,9 +804,8 @@ def preview(input_path: Path, out: Path, settings: Settings, every: int, *, widt
         n: {**look, "width": width} for n, look in settings.shot_looks.items()})
     source, net = open_render(input_path, out, settings, progress, preview=True)
     render_of = Store(out).manifest()
-    if render_of is not None and render_of["inputs"]["input_fingerprint"] != io.fingerprint(source):
-        raise FramestyleError(f"{out}: holds a render of other footage ({render_of['inputs']['input']}); previews of "
-                              f"{source.path} would mix with its frames and report: choose another --out")
+    if render_of is not None:  # the preview goes beside a render of the same footage only
+        check_footage(render_of, source, out)
     shot_list = find_shots(source, settings, shot_file)
     wanted = parse_shot_selection(shots, len(shot_list)) if shots else [s.index for s in shot_list]
     chosen = {i: shot for shot in shot_list if shot.index in wanted for i in sample_frames(shot.start, shot.end, every)}

@@ -569,6 +569,15 @@ def input_fingerprints(source: io.FrameSource, settings: Settings) -> dict:
     }
 
 
+def check_footage(manifest: dict, source: io.FrameSource, out: Path) -> None:
+    """Refuse ``source`` as the footage of the render in ``out`` (its ``manifest``) unless its
+    frames are the ones the render was made from (:func:`framestyle.io.fingerprint`): a
+    report, flash check or warping error of other footage would describe neither."""
+    if io.fingerprint(source) != manifest["inputs"]["input_fingerprint"]:
+        raise FramestyleError(f"{source.path}: not the footage the render in {out} was made from (its frames "
+                              f"differ from those of {manifest['inputs']['input']} when the render started)")
+
+
 def shot_list_fingerprint(shot_file: Path | None) -> dict:
     """Which shot list a render follows: a file (absolute path and content hash) or detection."""
     if shot_file is None:

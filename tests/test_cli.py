@@ -74,8 +74,13 @@ def test_a_preview_goes_beside_a_render_of_its_footage_never_of_other_footage(sm
     first = sorted(other.glob("take_*.png"))[0]
     cv2.imwrite(str(first), 255 - cv2.imread(str(first)))  # the same names, other pictures
     code, _, err = _run("preview", other, "--style", STYLE, "--out", out, "--every", "4", "-q", *FAST)
-    _one_line_error(code, err, str(out))
-    assert "other footage" in err and not (out / "preview").exists()
+    _one_line_error(code, err, f"{other}: not the footage the render in {out} was made from")
+    assert not (out / "preview").exists()
+    # the same footage given by hand to the commands that read a render and its source
+    code, out_, err = _run("stability", out, "--source", other, "--detail-frames", "0")
+    _one_line_error(code, err, f"{other}: not the footage the render in {out} was made from")
+    _one_line_error(*_run("report", out, "--source", other)[::2], "not the footage")
+    _one_line_error(*_run("flashes", out, "--source", other)[::2], "not the footage")
     assert _run("preview", small_clip, "--style", STYLE, "--out", out, "--every", "4", "-q", *FAST)[0] == 0
     assert len(list((out / "preview").glob("take_*.png"))) == 6
     assert {p.name: p.read_bytes() for p in out.glob("take_*.png")} == frames  # the render untouched

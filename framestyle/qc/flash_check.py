@@ -31,7 +31,7 @@ from framestyle.qc.flashes import AREA_LIMIT, KINDS, MAX_FLASHES, STANDARDS, Fla
 from framestyle.settings import Settings
 from framestyle.shots import Shot
 from framestyle.shots.cutlists import clip_timecode
-from framestyle.store import FLASH_PLOT, MANIFEST, Store, output_names
+from framestyle.store import FLASH_PLOT, MANIFEST, Store, check_footage, output_names
 from framestyle.timecode import ClipTimecode
 
 CAUTION = ("The flash check is an aid, not a certification: broadcasters' rules and local regulators "
@@ -100,6 +100,7 @@ def check_path(path: Path, fps: float | None = None, source_path: Path | None = 
         raise FramestyleError(f"{footage}: the footage of the render in {path} is not there; give --source "
                               f"if it moved")
     source = io.open_source(footage)
+    check_footage(manifest, source, path)
     shot_file = manifest["shot_list"]["file"]
     timecode = clip_timecode(source, settings, Path(shot_file) if shot_file else None)
     names = output_names(source)

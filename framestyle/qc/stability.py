@@ -183,10 +183,12 @@ def stability(out: Path, source_path: Path, preset: str = "medium", alone: Alone
     """
     out = Path(out)
     source = io.open_source(Path(source_path))
+    manifest = store.read_manifest(out)
+    if manifest is not None:
+        store.check_footage(manifest, source, out)
     rendered = io.open_source(out)
     if rendered.count != source.count:
         raise FramestyleError(f"{out}: holds {rendered.count} frames but the source has {source.count}")
-    manifest = store.read_manifest(out)
     if alone is not None and manifest is None:
         raise FramestyleError(f"{out}: no {store.MANIFEST}; the detail measure needs the render's settings")
     result = []
