@@ -388,8 +388,8 @@ def shots_command(
     settings = _run(Settings.from_dict, {k: v for k, v in given.items() if v is not None}, "options")
     timecode = _run(clip_timecode, source, settings, shot_list)
     found = _run(find_shots, source, settings, shot_list)
-    if io.gap_warning(source):
-        typer.echo(f"framestyle: warning: {io.gap_warning(source)}", err=True)
+    for message in io.sequence_warnings(source):
+        typer.echo(f"framestyle: warning: {message}", err=True)
     found = _run(apply_overrides, found, source.numbers, add_cut or (), remove_cut or ())
     name = source.path.resolve().stem if source.kind == "video" else source.path.resolve().name
     for path in filter(None, (edl, otio_file)):

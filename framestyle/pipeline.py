@@ -190,8 +190,6 @@ def plan_render(
             store.log(f"new render of {source.path}, settings {settings.digest()}, "
                       f"shots {', '.join(f'{s.index}:{frame_range(s, source.numbers)}' for s in shot_list_)}")
         finished = store.finished()
-    if io.gap_warning(source):
-        progress("warning", message=io.gap_warning(source))
     unmatched = sorted(int(n) for n in settings.shot_looks if int(n) > len(shot_list_))
     if unmatched:
         progress("warning", message=f"the look's settings for shot(s) {', '.join(map(str, unmatched))} apply to no "
@@ -252,14 +250,14 @@ def _version(package: str) -> str | None:
 def open_render(input_path: Path, out: Path, settings: Settings, progress: Progress = no_progress,
                 preview: bool = False) -> tuple[io.FrameSource, FeatureNet]:
     """Open the input and check every setting against it before the output folder is touched;
-    a warning says where a setting cannot be applied as asked."""
+    a warning says where the input's numbering or a setting may not do what is expected."""
     out = Path(out)
     if out.exists() and not out.is_dir():
         raise FramestyleError(f"{out}: output path is a file, not a folder")
     source = io.open_source(Path(input_path))
     Store(out).check_claimable(source.path)
     net = check_render(source, settings)
-    for message in setting_warnings(source, settings, net.min_side, preview):
+    for message in io.sequence_warnings(source) + setting_warnings(source, settings, net.min_side, preview):
         progress("warning", message=message)
     return source, net
 

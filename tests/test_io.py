@@ -28,6 +28,7 @@ from framestyle.io import (
     read_alpha,
     read_frame,
     read_image,
+    sequence_warnings,
     source_timecode,
     write_image,
     write_prores,
@@ -111,6 +112,16 @@ def test_largest_numbered_sequence_is_used_and_other_files_are_not_frames(tmp_pa
     (tmp_path / "._main_0001.png").write_bytes(b"macOS resource fork, not a frame")
     source = open_source(tmp_path)
     assert source.files == ("main_0001.png", "main_0002.png", "main_0003.png")
+    assert source.ignored == ("other_1.png",)  # numbered: said, as a frame the user may have meant
+    assert sequence_warnings(source) == [f"{tmp_path}: reads the 3 frames main_0001.png..main_0003.png, not the "
+                                         f"folder's other numbered files (other_1.png); keep one sequence per folder"]
+
+
+def test_an_extension_in_other_case_is_the_same_sequence(tmp_path):
+    for name in ("f_1.PNG", "f_2.png", "f_3.png"):  # as one camera card or export wrote them
+        write_uint(tmp_path / name, np.zeros((4, 4, 3), np.uint8))
+    source = open_source(tmp_path)
+    assert source.files == ("f_1.PNG", "f_2.png", "f_3.png") and not sequence_warnings(source)
 
 
 def test_two_sequences_of_equal_length_are_refused_as_ambiguous(tmp_path):

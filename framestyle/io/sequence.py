@@ -3,8 +3,9 @@
 A frame's number is the digit run that ends the file stem (``shot_0001.png``, ``shot_9.png``
 ... ``shot_10.png``); frames sort by that number, never lexically. Hidden files (names
 starting with "."), such as macOS ``._shot_0001.png`` companions or our own temporary files,
-are not frames. When several numbered sequences share the folder the longest one is used;
-sequences of equal length are refused as ambiguous. Numbers missing from the run are
+are not frames; an extension's case does not matter. When several numbered sequences share
+the folder the longest one is used (the others' files are listed, so a warning can name
+them); sequences of equal length are refused as ambiguous. Numbers missing from the run are
 reported as gaps (the frames are not renumbered).
 """
 
@@ -32,6 +33,7 @@ class Sequence:
     height: int
     bit_depth: int
     has_alpha: bool
+    ignored: tuple[str, ...] = ()  # numbered image files of the folder's other sequences
 
     @property
     def gaps(self) -> tuple[tuple[int, int], ...]:
@@ -51,7 +53,7 @@ def scan_folder(path: Path) -> Sequence:
             continue
         match = _NUMBERED.match(entry.stem)
         if match is not None:
-            groups.setdefault((match[1], entry.suffix), []).append((int(match[2]), entry.name))
+            groups.setdefault((match[1], entry.suffix.lower()), []).append((int(match[2]), entry.name))
     if not groups:
         raise FramestyleError(f"{path}: no numbered image frames (like name_0001.png) in this folder")
     ranked = sorted(groups.items(), key=lambda item: -len(item[1]))
@@ -80,8 +82,9 @@ def scan_folder(path: Path) -> Sequence:
             raise FramestyleError(
                 f"{path / name}: frame is {size[0]}x{size[1]} but {files[0]} is {width}x{height}"
             )
+    ignored = tuple(sorted(name for _, others in ranked[1:] for _, name in others))
     return Sequence(files, tuple(number for number, _ in frames), width, height,
-                    DTYPE_DEPTH[first_frame.dtype], first_frame.shape[2] in (2, 4))
+                    DTYPE_DEPTH[first_frame.dtype], first_frame.shape[2] in (2, 4), ignored)
 
 
 def read_sequence_frame(file: Path, width: int, height: int) -> np.ndarray:

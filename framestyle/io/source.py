@@ -46,6 +46,7 @@ class FrameSource:
     bit_depth : 8 or 16 for integer samples, 32 for float (EXR, float TIFF), from the first frame
     has_alpha : whether the first frame carries an alpha channel
     files : the frame file names in frame order (folders only)
+    ignored : numbered image files of the folder's other sequences, not read (folders only)
     video : what the video reader needs (videos only)
     start_timecode : the first frame's SMPTE label from the video's timecode tag; None when
         the file has none, and for folders
@@ -65,6 +66,7 @@ class FrameSource:
     files: tuple[str, ...] = ()
     video: VideoInfo | None = field(default=None, repr=False)
     start_timecode: str | None = None
+    ignored: tuple[str, ...] = ()
 
     @property
     def linear(self) -> bool:
@@ -88,7 +90,7 @@ def open_source(path: str | Path) -> FrameSource:
         seq = scan_folder(path)
         return FrameSource(path, "folder", len(seq.files), seq.width, seq.height, None,
                            tuple(Path(name).stem for name in seq.files), seq.numbers, seq.gaps,
-                           seq.bit_depth, seq.has_alpha, seq.files)
+                           seq.bit_depth, seq.has_alpha, seq.files, ignored=seq.ignored)
     if path.suffix.lower() in IMAGE_EXTS:
         raise FramestyleError(f"{path}: is a single image; give a folder of numbered frames or a video")
     info = probe_video(path)
@@ -124,15 +126,21 @@ def source_timecode(source: FrameSource, fps: float | None = None, start_timecod
         raise FramestyleError(f"{where}: {exc}") from None
 
 
-def gap_warning(source: FrameSource) -> str | None:
-    """A line saying which frame numbers are missing from a folder's numbering, or None."""
-    if not source.gaps:
-        return None
-    shown = ", ".join(f"{a}-{b}" if b > a else f"{a}" for a, b in source.gaps[:5])
-    more = ", ..." if len(source.gaps) > 5 else ""
-    return (f"{source.path}: frame numbers missing ({shown}{more}); each gap starts a new shot in "
-            f"detected shot lists (a shot list you give may run across it), and timecode and the videos "
-            f"count the frames present, as if the gap were closed")
+def sequence_warnings(source: FrameSource) -> list[str]:
+    """Lines saying which frame numbers are missing from a folder's numbering and which
+    numbered files of other sequences in the folder are not read (none for a video)."""
+    lines = []
+    if source.gaps:
+        shown = ", ".join(f"{a}-{b}" if b > a else f"{a}" for a, b in source.gaps[:5])
+        more = ", ..." if len(source.gaps) > 5 else ""
+        lines.append(f"{source.path}: frame numbers missing ({shown}{more}); each gap starts a new shot in "
+                     f"detected shot lists (a shot list you give may run across it), and timecode and the videos "
+                     f"count the frames present, as if the gap were closed")
+    if source.ignored:
+        more = f" and {len(source.ignored) - 1} more" if len(source.ignored) > 1 else ""
+        lines.append(f"{source.path}: reads the {source.count} frames {source.files[0]}..{source.files[-1]}, not "
+                     f"the folder's other numbered files ({source.ignored[0]}{more}); keep one sequence per folder")
+    return lines
 
 
 def read_frame(source: FrameSource, index: int) -> np.ndarray:
