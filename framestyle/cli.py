@@ -315,9 +315,10 @@ def _report(result, quiet: bool) -> None:
     if not quiet and result.shots:
         typer.echo(_summary_table(result.shots))
     typer.echo(f"{len(result.frames)} stylised frames in {result.out}")
+    from_video = any(video.suffix == ".mp4" for video in result.videos)  # a folder of frames has no sound
     for video in result.videos:
-        typer.echo(f"{'edit-ready ProRes' if video.suffix == '.mov' else 'preview video'} with the source's audio "
-                   f"and timecode: {video}")
+        typer.echo(f"{'edit-ready ProRes' if video.suffix == '.mov' else 'preview video'} with the source's "
+                   f"{'audio and ' if from_video else ''}timecode: {video}")
     if result.flashes and not quiet:
         from framestyle.qc.flash_check import CAUTION, report_lines
         from framestyle.store import FLASH_PLOT

@@ -62,6 +62,10 @@ def farm_render(
     try:
         plan = plan_render(input_path, out, settings, shots=shots, shot_file=shot_file, restart=restart,
                            keep_shot_list=keep_shot_list, progress=progress)
+        if scheduler is None and len(plan.wanted) < workers:
+            progress("warning", message=f"--workers {workers} for {len(plan.wanted)} shot(s): a shot is one worker's "
+                                        f"task, so {workers - len(plan.wanted)} will have nothing to do, with "
+                                        f"{local_threads} thread(s) each instead of more")
         if client is None:
             # No memory limit: Dask's nanny would kill a worker whose torch pool grows past its
             # share, and an HD frame's solve legitimately needs a few GB.

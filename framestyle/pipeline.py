@@ -298,7 +298,7 @@ def setting_warnings(source: io.FrameSource, settings: Settings, min_side: int, 
     the working size has no room for (those under the network's ``min_side`` are skipped), a
     width past the source's, settings of the temporal chain with the chain off or in a
     preview (whose frames are stylised one by one), later passes' iterations with one pass,
-    a matte softness without a matte, and matte frames paired by position with input frames
+    a style weighted 0 in the mix, a matte softness without a matte, and matte frames paired by position with input frames
     numbered otherwise."""
     defaults = Settings()
     messages = []
@@ -317,6 +317,9 @@ def setting_warnings(source: io.FrameSource, settings: Settings, min_side: int, 
             messages.append(f"{', '.join(unused)}{label}: no effect {'in a preview, whose frames are stylised one by one' if preview else 'with temporal off'}")
         elif variant.passes == 1 and variant.pass_iterations != defaults.pass_iterations:
             messages.append(f"pass_iterations{label}: no effect with one pass")
+        unmixed = [Path(style).name for style, weight in zip(variant.styles, variant.style_mix) if weight == 0]
+        if unmixed:
+            messages.append(f"style_mix{label}: {', '.join(unmixed)} weighted 0, so no part of the look")
         if not variant.matte and variant.matte_softness != defaults.matte_softness:
             messages.append(f"matte_softness{label}: no effect without a matte")
         if variant.matte and variant.matte != "alpha" and source.kind == "folder":

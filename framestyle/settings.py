@@ -30,6 +30,9 @@ DEVICES = ("auto", "cpu", "cuda", "mps")
 PRECISIONS = ("float32", "bfloat16")
 """The network's arithmetic; bfloat16 runs it under autocast, Gram matrices and losses stay float32."""
 
+MAX_STROKE_SIZE = 100
+"""The largest stroke size (the style image at 100 × the working size)."""
+
 _NonNegative = Annotated[float, Field(ge=0, allow_inf_nan=False)]
 _Weight = Annotated[float, Field(ge=0, le=1e6, allow_inf_nan=False)]  # bounded: a weight past a million
 #                                 times another drowns it, and far beyond that the float32 loss overflows
@@ -47,7 +50,7 @@ class Settings:
     tv_weight: _Weight = 10.0  # total-variation weight: suppresses pixel-level speckle
     warm_tv_weight: _Weight | None = None  # the same for frames that start from a warped
     #                                 frame (None: tv_weight); lower keeps strokes crisp along a shot
-    stroke_size: Annotated[float, Field(gt=0, le=100, allow_inf_nan=False)] = 1.0  # style image resized to this × the working size
+    stroke_size: Annotated[float, Field(gt=0, le=MAX_STROKE_SIZE, allow_inf_nan=False)] = 1.0  # style image resized to this × the working size
     colour: Literal[COLOURS] = "style"  # palette: the painting's, the footage's (luma), recoloured
     luma_standard: Literal["bt709", "bt601"] = "bt709"  # luma weights for "luma": HD or SD
     strength: Annotated[float, Field(ge=0, le=1)] = 1.0  # 0 = the footage, 1 = full style

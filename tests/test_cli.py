@@ -110,10 +110,12 @@ def test_settings_that_cannot_act_as_asked_are_said(small_clip, tmp_path):
     assert "width 4000: the source is 128 pixels wide" in said, said
     assert "flow_preset, passes: no effect with temporal off" in said
     assert "paired with the input's in order (matte_0000.png with take_001.png)" in said
-    code, out, err = _run("preview", small_clip, "--style", STYLE, "--out", tmp_path / "p", *FAST, "--every", "9",
-                          "--temporal-weight", "5", "--matte-softness", "4")
+    code, out, err = _run("preview", small_clip, "--style", STYLE, "--style", STYLE, "--style-mix", "1,0", "--out",
+                          tmp_path / "p", *FAST, "--every", "9", "--temporal-weight", "5", "--matte-softness", "4")
     assert code == 0, err
-    assert "temporal_weight: no effect in a preview" in out + err and "matte_softness: no effect without a matte" in out + err
+    said = out + err
+    assert "temporal_weight: no effect in a preview" in said and "matte_softness: no effect without a matte" in said
+    assert "style_mix: style.png weighted 0, so no part of the look" in said
     code, out, err = _run("stylise", small_clip, "--style", STYLE, "--out", tmp_path / "q", *FAST, "--shots", "2")
     assert code == 0 and "framestyle: warning" not in out + err  # the defaults: nothing to say
 
@@ -453,6 +455,12 @@ def test_a_style_image_too_narrow_for_the_network_names_the_file_and_the_stroke_
     code, _, err = _run("stylise", small_clip, "--style", wide, "--out", tmp_path / "o", "-q", "--width", "128",
                         "--iterations", "2", "--shots", "1", "--stroke-size", str(size))
     assert code == 0, err
+    thread = tmp_path / "thread.png"
+    cv2.imwrite(str(thread), np.full((1, 5120, 3), 128, np.uint8))  # would need a stroke size of 2560
+    code, _, err = _run("stylise", small_clip, "--style", thread, "--out", tmp_path / "p", *FAST)
+    _one_line_error(code, err, "thread.png: a 5120×1 style image is too elongated")
+    _one_line_error(*_run("stylise", small_clip, "--style", small_clip, "--out", tmp_path / "p", *FAST)[::2],
+                    f"{small_clip}: a folder, not an image file")
 
 
 def test_bad_input_never_touches_a_finished_render(small_clip, tmp_path):

@@ -141,3 +141,6 @@ def test_resume_with_workers_continues_a_render_started_in_one_process(four_shot
                              env=ENV, capture_output=True, text=True, timeout=600)
     assert resumed.returncode == 0, resumed.stderr
     assert _pngs(out) == _pngs(one_process)
+    one_shot = subprocess.run([sys.executable, "-m", "framestyle", "resume", str(out), "--workers", "2", "--shots", "4"],
+                              env=ENV, capture_output=True, text=True, timeout=600)
+    assert one_shot.returncode == 0 and "--workers 2 for 1 shot(s)" in one_shot.stderr, one_shot.stderr

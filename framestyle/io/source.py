@@ -178,7 +178,7 @@ def read_image(path: str | Path) -> np.ndarray:
     """One image file (a style image, say) as float32 ``(H, W, 3)`` RGB in [0, 1]."""
     path = Path(path)
     if not path.is_file():
-        raise FramestyleError(f"{path}: no such image file")
+        raise FramestyleError(f"{path}: {'a folder, not an image file' if path.is_dir() else 'no such image file'}")
     check_not_empty(path)
     return to_rgb(load_image(path))
 

@@ -19,7 +19,7 @@ from framestyle.errors import FramestyleError
 from framestyle.finish.colour import match_histograms
 from framestyle.finish.compose import luma_image
 from framestyle.imaging import resize, to_tensor
-from framestyle.settings import Settings
+from framestyle.settings import MAX_STROKE_SIZE, Settings
 from framestyle.style.network import FeatureNet
 from framestyle.style.solver import style_targets
 
@@ -46,6 +46,10 @@ class Look:
                 target = (max(1, round(image.shape[1] * scale)), max(1, round(image.shape[0] * scale)))
                 if min(target) < self.net.min_side:
                     needed = self.net.min_side * max(image.shape[:2]) / (min(image.shape[:2]) * max(size))
+                    if needed > MAX_STROKE_SIZE:
+                        raise FramestyleError(f"{path}: a {image.shape[1]}×{image.shape[0]} style image is too elongated "
+                                              f"for the network's {self.net.min_side} pixels a side at any stroke size; "
+                                              f"crop it nearer to square")
                     raise FramestyleError(
                         f"{path}: a {image.shape[1]}×{image.shape[0]} style image at stroke size {self.stroke_size} "
                         f"is {target[0]}×{target[1]} beside a {size[0]}×{size[1]} frame, under the network's "
