@@ -1,5 +1,6 @@
 """Command line: thin typer commands that build settings and call one library function each."""
 
+import dataclasses
 import functools
 import inspect
 import json
@@ -294,6 +295,7 @@ def resume(
     scheduler: Annotated[Optional[str], typer.Option(help="Send the shots to a running Dask scheduler whose workers see the same paths.")] = None,
     threads: Annotated[Optional[int], typer.Option(help="Torch threads per process (default: all cores, shared among --workers).")] = None,
     quiet: Annotated[bool, typer.Option("--quiet", "-q", help="No progress display.")] = False,
+    prores: Annotated[bool, typer.Option("--prores", help="Also write the ProRes 422 HQ hand-off, to a render started without it (its frames are kept).")] = False,
 ) -> None:
     """Continue a render from its manifest alone (input, settings and shot list are in it).
 
@@ -306,6 +308,8 @@ def resume(
     if manifest is None:
         _fail(f"{out}: no {store.MANIFEST}; start the render with `framestyle stylise`")
     settings = _run(Settings.from_dict, manifest["settings"], str(out / store.MANIFEST))
+    if prores:
+        settings = dataclasses.replace(settings, prores=True)
     _render(Path(manifest["inputs"]["input"]), out, settings, workers=workers, scheduler=scheduler, threads=threads,
             quiet=quiet, shots=shots, keep_shot_list=True)
 

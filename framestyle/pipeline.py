@@ -46,7 +46,7 @@ from framestyle.shots.detect import detect_shots, frame_signature
 from framestyle.shots.continuity import starts_new_shot
 from framestyle.shots.cutlists import clip_timecode
 from framestyle.shots.lists import frame_range, parse_shot_file, parse_shot_selection
-from framestyle.store import (FLASH_KINDS, MANIFEST, Store, check_footage, check_resume, environment_changes,
+from framestyle.store import (FLASH_KINDS, HAND_OFF, MANIFEST, Store, check_footage, check_resume, environment_changes,
                               input_fingerprints, output_names, shot_list_fingerprint)
 from framestyle.style.look import Look, build_look
 from framestyle.style.network import FeatureNet, load_network
@@ -181,6 +181,11 @@ def plan_render(
             store.log("restarted: previous frames, state, video, previews and records discarded")
         if manifest is not None:
             store.log(f"resuming render of {source.path}")
+            handed_off = [key for key in HAND_OFF if manifest["settings"].get(key) != getattr(settings, key)]
+            if handed_off:  # the frames stay; the videos are made from them as now asked
+                store.create({**manifest, "settings": settings.to_dict()})
+                store.log(f"hand-off changed ({', '.join(f'{k} {getattr(settings, k)}' for k in handed_off)}); "
+                          f"the frames are kept")
         else:
             store.log(f"frames numbered {source.numbers[0]}-{source.numbers[-1]}, first frame at timecode "
                       f"{clip_timecode(source, settings, shot_file).label(0)}")

@@ -59,6 +59,8 @@ if TYPE_CHECKING:
 
 MANIFEST = "framestyle.json"
 FORMAT = 2  # manifest format version
+HAND_OFF = ("prores",)
+"""Settings of the hand-off made from finished frames, not of the frames: a resume may change them."""
 _MANIFEST_KEYS = {"settings": dict, "inputs": dict, "shot_list": dict, "shots": list}
 """What every manifest holds (:meth:`Store.create`'s callers write them), by type."""
 LOG = "render.log"
@@ -591,7 +593,7 @@ def check_resume(manifest: dict, settings: Settings, inputs: dict, shot_list: di
     ``shot_list`` None means "whatever the render was started with" (``framestyle resume``).
     """
     old = Settings.from_dict(manifest["settings"], str(out / MANIFEST))
-    changed = old.differences(settings)
+    changed = [key for key in old.differences(settings) if key not in HAND_OFF]
     if changed:
         raise FramestyleError(
             f"{out}: was rendered with different settings ({', '.join(changed)}); "

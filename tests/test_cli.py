@@ -473,6 +473,25 @@ def test_bad_input_never_touches_a_finished_render(small_clip, tmp_path):
     assert {p.name: p.read_bytes() for p in out.iterdir() if p.is_file()} == before
 
 
+def test_a_prores_hand_off_is_added_to_a_finished_render_without_rendering_again(small_clip, tmp_path):
+    out = tmp_path / "o"
+    assert _run("stylise", small_clip, "--style", STYLE, "--out", out, "-q", *FAST)[0] == 0
+    frames = {p.name: p.stat().st_mtime_ns for p in out.glob("take_*.png")}
+    mov = out / f"{small_clip.name}_framestyle.mov"
+    assert not mov.exists()
+    code, stdout, err = _run("stylise", small_clip, "--style", STYLE, "--out", out, "-q", *FAST, "--prores")
+    assert code == 0, err  # the same command with --prores: no "different settings (prores)"
+    assert f"edit-ready ProRes with the source's timecode: {mov}" in stdout
+    assert imageio_ffmpeg.count_frames_and_secs(str(mov))[0] == 20
+    mov.unlink()
+    code, _, err = _run("resume", out, "--prores", "-q")  # or from the output folder alone
+    assert code == 0, err
+    assert mov.exists()
+    assert {p.name: p.stat().st_mtime_ns for p in out.glob("take_*.png")} == frames  # no frame written again
+    assert store.read_manifest(out)["settings"]["prores"] is True
+    assert "hand-off changed (prores True); the frames are kept" in (out / "render.log").read_text()
+
+
 def test_an_edl_in_gives_a_render_that_follows_it_and_a_prores_hand_off_out(small_clip, tmp_path):
     # A 1001-numbered plate folder, an editor's cut as a CMX 3600 EDL (written by `shots
     # --edl` after moving the cut to 1006), a render that follows it, and an edit-ready .mov.
