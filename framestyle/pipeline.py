@@ -31,7 +31,7 @@ import torch
 from framestyle import io
 from framestyle.errors import FramestyleError
 from framestyle.finish.matte import Mattes
-from framestyle.finish.compose import to_display
+from framestyle.finish.compose import to_display, with_alpha
 from framestyle.imaging import from_8bit, to_8bit, to_array
 from framestyle.motion import FlowPair
 from framestyle.preview import contact_sheet, sample_frames
@@ -678,8 +678,10 @@ class _ShotRender:
         if name in self.work.record["frames"]:
             return
         matte = mattes(index, settings.matte_softness)
-        self.work.write_frame(name, deliver(result, frame, settings, matte, self.source.linear),
-                              _output_depth(self.source))
+        image = deliver(result, frame, settings, matte, self.source.linear)
+        if self.source.has_alpha:  # the footage's alpha passes through, as a compositor expects
+            image = with_alpha(image, io.read_alpha(self.source, index), premultiplied=self.source.linear)
+        self.work.write_frame(name, image, _output_depth(self.source))
         self.work.finish_frame(name, {**entry, "seconds": round(seconds, 3), "finished": round(time.time(), 3)})
         self.work.store.log(f"frame {name} shot {self.shot.index}: {entry['iterations']} iterations, "
                             f"{seconds:.1f} s, style {entry['style']:.4f} content {entry['content']:.4f}"

@@ -130,6 +130,24 @@ def test_a_frame_rate_for_a_video_is_refused_as_its_sound_follows_its_own(tmp_pa
     assert _run("stylise", video, "--style", STYLE, "--out", tmp_path / "o", *FAST, "--fps", "25", "-q")[0] == 0
 
 
+def test_rgba_footage_is_delivered_with_its_own_alpha(small_clip, tmp_path):
+    # a title over transparency: each frame's alpha a ramp, moving from frame to frame
+    plate = tmp_path / "title"
+    plate.mkdir()
+    for k, frame in enumerate(sorted(small_clip.glob("take_*.png"))[:6]):
+        bgr = cv2.imread(str(frame))
+        ramp = np.tile(np.linspace(0, 255, bgr.shape[1]).astype(np.uint8), (bgr.shape[0], 1))
+        cv2.imwrite(str(plate / f"title_{k + 1:04d}.png"), np.dstack([bgr, np.roll(ramp, 7 * k, axis=1)]))
+    code, _, err = _run("stylise", plate, "--style", STYLE, "--out", tmp_path / "o", "-q", *FAST)
+    assert code == 0, err
+    for k in range(1, 7):
+        source = cv2.imread(str(plate / f"title_{k:04d}.png"), cv2.IMREAD_UNCHANGED)  # OpenCV's decode: the reference
+        delivered = cv2.imread(str(tmp_path / "o" / f"title_{k:04d}.png"), cv2.IMREAD_UNCHANGED)
+        assert delivered.shape == source.shape == (72, 128, 4)
+        assert np.array_equal(delivered[..., 3], source[..., 3])  # the alpha as it came
+        assert np.abs(delivered[..., :3].astype(int) - source[..., :3]).mean() > 5  # the colour stylised
+
+
 def test_video_input_gives_png_frames_and_an_mp4_with_the_source_audio(tmp_path):
     video = tmp_path / "clip.mp4"
     ffmpeg = imageio_ffmpeg.get_ffmpeg_exe()

@@ -10,7 +10,7 @@ import pytest
 
 from framestyle import io, store
 from framestyle.finish.colour import rgb_to_ycbcr
-from framestyle.finish.compose import finish
+from framestyle.finish.compose import finish, with_alpha
 from framestyle.errors import FramestyleError
 from framestyle.pipeline import plan_render, render
 from framestyle.settings import Settings, load_look
@@ -181,3 +181,18 @@ def test_every_control_survives_sigkill_and_resume(small_clip, tmp_path):
         f'tolerance = 0.0\nlong_term = [1, 4]\ndetail_probe = 3\n[shots.1]\ncolour = "match"\n'
     )
     kill_and_resume(small_clip, tmp_path, ["--look", str(look), "--shots", "1"])
+
+
+def test_the_alpha_passes_through_straight_or_premultiplied():
+    rgb = np.full((2, 3, 3), 0.8, np.float32)
+    alpha = np.array([[0.0, 0.5, 1.0], [1.0, 0.25, 0.0]], np.float32)
+    straight = with_alpha(rgb, alpha, premultiplied=False)
+    assert straight.shape == (2, 3, 4) and np.array_equal(straight[..., :3], rgb) and np.array_equal(straight[..., 3], alpha)
+    # premultiplied (OpenEXR's convention): colour = straight colour × alpha, so a fully transparent
+    # pixel carries no colour and adds none in an "over" (Porter & Duff 1984: out = A + (1 - αA) B)
+    premultiplied = with_alpha(rgb, alpha, premultiplied=True)
+    np.testing.assert_allclose(premultiplied[..., :3], rgb * alpha[..., None])
+    background = np.full((2, 3, 3), 0.1, np.float32)
+    over = premultiplied[..., :3] + (1 - alpha[..., None]) * background
+    np.testing.assert_allclose(over[0, 0], background[0, 0])  # transparent: the background alone
+    np.testing.assert_allclose(over[0, 2], rgb[0, 2])  # opaque: the frame alone

@@ -58,6 +58,28 @@ def finish(
     return (source + weight * (out - source)).astype(np.float32)
 
 
+def with_alpha(rgb: np.ndarray, alpha: np.ndarray, premultiplied: bool) -> np.ndarray:
+    """The delivered frame with the source frame's alpha as its fourth channel.
+
+    A straight-alpha source (PNG, TIFF) keeps the colour as it is, the stylised paint
+    included where the alpha hides it; a premultiplied one (OpenEXR's convention: Kainz,
+    Bogart et al., "Technical Introduction to OpenEXR", from memory) has its colour multiplied
+    by the alpha, so that no colour shows where the frame is transparent (a compositor adds
+    it in an "over": Porter & Duff 1984).
+
+    Parameters
+    ----------
+    rgb : (H, W, 3) the delivered frame, in the source's encoding
+    alpha : (H, W) the source frame's alpha in [0, 1]
+
+    Returns
+    -------
+    (H, W, 4) float32
+    """
+    colour = rgb * alpha[..., None] if premultiplied else rgb
+    return np.concatenate([colour, alpha[..., None]], axis=2).astype(np.float32)
+
+
 def to_display(image: np.ndarray, linear: bool) -> np.ndarray:
     """Display-referred RGB in [0, 1] for the network: linear light is sRGB-encoded
     (IEC 61966-2-1) and values outside [0, 1] are clipped."""

@@ -66,7 +66,7 @@ def load_image(file: Path) -> np.ndarray:
 
 
 def write_image(path: Path, image: np.ndarray, bit_depth: int = 8) -> None:
-    """Atomically write a float RGB image as PNG, TIFF or OpenEXR, chosen by extension.
+    """Atomically write a float RGB(A) image as PNG, TIFF or OpenEXR, chosen by extension.
 
     Integer formats clip to [0, 1] and round to the nearest level (half to even); float TIFF
     and EXR (zip-compressed) store the values unchanged. Either the complete file appears or
@@ -76,7 +76,8 @@ def write_image(path: Path, image: np.ndarray, bit_depth: int = 8) -> None:
     ----------
     path : ``.png`` (bit depth 8 or 16), ``.tif``/``.tiff`` (8, 16 or 32 = float) or ``.exr``
         (16 = half or 32 = float)
-    image : float ``(H, W, 3)`` RGB
+    image : float ``(H, W, 3)`` RGB or ``(H, W, 4)`` RGBA, the alpha written as given: straight
+        (unassociated) for PNG and TIFF, premultiplied by convention for EXR
     """
     path = Path(path)
     ext = path.suffix.lower()
@@ -86,15 +87,17 @@ def write_image(path: Path, image: np.ndarray, bit_depth: int = 8) -> None:
         allowed = " or ".join(map(str, _WRITE_DEPTHS[ext]))
         raise FramestyleError(f"{path}: {ext} frames are written at bit depth {allowed}, not {bit_depth}")
     image = np.asarray(image)
-    if image.ndim != 3 or image.shape[2] != 3 or not np.issubdtype(image.dtype, np.floating):
-        raise ValueError(f"expected a float (H, W, 3) image for {path}, got {image.dtype} {image.shape}")
+    if image.ndim != 3 or image.shape[2] not in (3, 4) or not np.issubdtype(image.dtype, np.floating):
+        raise ValueError(f"expected a float (H, W, 3) or (H, W, 4) image for {path}, got {image.dtype} {image.shape}")
     if not np.isfinite(image).all():
         raise ValueError(f"image for {path} has NaN or infinite values")
     height, width = image.shape[:2]
     kind = oiio.HALF if ext == ".exr" and bit_depth == 16 else _WRITE_TYPES[bit_depth]
-    spec = oiio.ImageSpec(width, height, 3, kind)
+    spec = oiio.ImageSpec(width, height, image.shape[2], kind)
     if ext == ".exr":
         spec.attribute("compression", "zip")
+    elif image.shape[2] == 4:  # the colour is straight already: OpenImageIO would otherwise divide it by alpha
+        spec.attribute("oiio:UnassociatedAlpha", 1)
     samples = np.ascontiguousarray(quantise(image, 32 if ext == ".exr" else bit_depth))
     with atomic.atomic_path(path) as tmp:
         out = oiio.ImageOutput.create(str(tmp))
