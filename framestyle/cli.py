@@ -435,7 +435,7 @@ def report_command(
     shot_file = manifest["shot_list"]["file"]
     shot_file = Path(shot_file) if shot_file and Path(shot_file).exists() else None
     timecode = _run(clip_timecode, clip, settings, shot_file)
-    typer.echo(_run(refresh_report, out, clip, settings, timecode, redraw=True, every=every))
+    typer.echo(_run(refresh_report, out, clip, settings, timecode, redraw=True, every=every, look_for_renders=True))
 
 
 @app.command("stability")

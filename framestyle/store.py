@@ -101,6 +101,21 @@ class Lock:
         self._fd = fd
         return True
 
+    def held(self) -> bool:
+        """Whether a process holds the lock now; a look that changes nothing (a shared lock
+        tried and let go; no file, no holder)."""
+        try:
+            fd = os.open(self.path, os.O_RDONLY)
+        except FileNotFoundError:
+            return False
+        try:
+            fcntl.flock(fd, fcntl.LOCK_SH | fcntl.LOCK_NB)
+        except BlockingIOError:
+            return True
+        finally:
+            os.close(fd)  # closing it lets a shared lock go
+        return False
+
     def release(self) -> None:
         if self._fd is not None:
             os.close(self._fd)  # closing the descriptor releases the flock
@@ -287,7 +302,7 @@ class Store:
     def shot(self, shot: int, wait: bool) -> Iterator["ShotStore | None"]:
         """Hold shot ``shot``'s lock while rendering it; yields None (without ``wait``) if
         another process holds it."""
-        lock = Lock(self._private / "locks" / f"shot_{shot:03d}.lock", f"shot {shot}")
+        lock = self._shot_lock(shot)
         if not lock.acquire(wait):
             yield None
             return
@@ -298,7 +313,14 @@ class Store:
 
     def shot_holder(self, shot: int) -> str:
         """Who renders shot ``shot`` now, in words."""
-        return Lock(self._private / "locks" / f"shot_{shot:03d}.lock", f"shot {shot}").holder()
+        return self._shot_lock(shot).holder()
+
+    def rendering(self, shots: Sequence[int]) -> list[int]:
+        """Which of ``shots`` a process renders now (holds its lock), changing nothing."""
+        return [shot for shot in shots if self._shot_lock(shot).held()]
+
+    def _shot_lock(self, shot: int) -> Lock:
+        return Lock(self._private / "locks" / f"shot_{shot:03d}.lock", f"shot {shot}")
 
     # --- products ----------------------------------------------------------------------------
 

@@ -182,6 +182,12 @@ def test_framestyle_report_regenerates_an_interrupted_render_and_a_farm_worker_r
     assert result.stdout.strip() == str(out / store.REPORT)
     page = (out / store.REPORT).read_text()
     assert "16 / 20" in page and "2 / 3" in page and "not started" in page and "shot_003_plot" not in page
+    assert "stopped" in page and "no process renders it now" in page  # killed: no time left to promise
+    with store.Store(out).shot(3, wait=False):  # a process renders shot 3: its lock is held
+        assert store.Store(out).rendering([1, 2, 3]) == [3]
+        assert runner.invoke(app, ["report", str(out)]).exit_code == 0
+        assert "no process renders it now" not in (out / store.REPORT).read_text()
+    assert store.Store(out).rendering([1, 2, 3]) == []
     # a farm worker runs render_shot alone: the report follows the shot it finished
     manifest = store.read_manifest(out)
     plan = pipeline.plan_render(small_clip, out, Settings.from_dict(manifest["settings"]),

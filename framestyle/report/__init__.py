@@ -45,7 +45,8 @@ _STYLE_HEIGHT = 160  # style thumbnails' height in pixels
 
 
 def refresh_report(out: Path, source: io.FrameSource | None = None, settings: Settings | None = None,
-                   timecode: ClipTimecode | None = None, *, redraw: bool = False, every: int | None = None) -> Path:
+                   timecode: ClipTimecode | None = None, *, redraw: bool = False, every: int | None = None,
+                   look_for_renders: bool = False) -> Path:
     """Write (or refresh) ``out/report.html`` and its pictures; return the page's path.
 
     Parameters
@@ -56,6 +57,8 @@ def refresh_report(out: Path, source: io.FrameSource | None = None, settings: Se
     redraw : draw every picture again, not only those of shots whose records changed
     every : a shot's strip shows every ``every``-th frame (default: at most
         :data:`~framestyle.report.figures.STRIP_TILES` frames a shot)
+    look_for_renders : say whether a process renders the unfinished shots now (from their
+        locks); for a report drawn from outside a render, which cannot know otherwise
 
     Raises
     ------
@@ -81,7 +84,8 @@ def refresh_report(out: Path, source: io.FrameSource | None = None, settings: Se
             data, status=render_status(manifest, records), shots=views, settings=manifest["settings"],
             styles=tuple(_styles(files, settings, redraw)), source=_source_facts(source, timecode, manifest),
             environment=manifest.get("environment", {}), products=tuple(store.videos()),
-            flashes=_flash_checks(store, None), flash_plot=_flash_plot_url(store))
+            flashes=_flash_checks(store, None), flash_plot=_flash_plot_url(store),
+            idle=look_for_renders and not store.rendering([s.index for s in shots]))
         return files.write_page(render_page(data))
 
 

@@ -53,6 +53,7 @@ class PageData:
     flashes: dict = field(default_factory=dict)  # the whole render's flash check: "render"/"source" → report
     flash_plot: str | None = None  # relative URL of the flash timeline
     previews: tuple[str, ...] = ()  # contact sheets, relative URLs
+    idle: bool = False  # looked for, and no process renders the render's shots now
 
 
 def render_page(data: PageData) -> str:
@@ -77,6 +78,8 @@ def _status(data: PageData) -> str:
     elapsed = status.elapsed
     if status.complete:
         eta, eta_note = "done", f"finished {_clock(status.last_finished)}" if status.last_finished else ""
+    elif data.idle:
+        eta, eta_note = "stopped", "no process renders it now; `framestyle resume` of this folder continues it"
     elif status.eta_seconds is None:
         eta, eta_note = "—", "after the first frame"
     else:
