@@ -367,6 +367,19 @@ def test_10_bit_video_is_read_with_16_bit_precision(tmp_path):
     np.testing.assert_array_equal(image, reference)
 
 
+def test_a_rotated_video_is_read_upright_without_a_word(tmp_path, capfd, caplog):
+    ffmpeg = imageio_ffmpeg.get_ffmpeg_exe()
+    plain, turned = tmp_path / "plain.mp4", tmp_path / "phone.mp4"
+    subprocess.run([ffmpeg, "-v", "error", "-f", "lavfi", "-i", "testsrc2=size=128x72:rate=12", "-t", "0.5",
+                    "-pix_fmt", "yuv420p", "-c:v", "libx264", str(plain)], check=True)
+    # a phone's portrait clip: landscape pixels with a display matrix turning them 90°
+    subprocess.run([ffmpeg, "-v", "error", "-display_rotation", "90", "-i", str(plain), "-c", "copy", str(turned)],
+                   check=True)
+    source = open_source(turned)
+    assert (source.width, source.height) == (72, 128) and read_frame(source, 0).shape == (128, 72, 3)
+    assert capfd.readouterr().err == "" and not caplog.records  # imageio-ffmpeg's size warning is expected
+
+
 def test_video_with_alpha_gives_alpha(tmp_path):
     path = tmp_path / "alpha.mov"
     ffmpeg("-f", "lavfi", "-i", "color=c=red@0.5:size=16x8:rate=10,format=rgba", "-frames:v", "3",

@@ -15,6 +15,7 @@ timecode.
 
 from __future__ import annotations
 
+import logging
 import math
 import re
 import subprocess
@@ -31,6 +32,9 @@ from framestyle.errors import FramestyleError
 from framestyle.timecode import ClipTimecode, exact_rate
 
 # The first real video stream (capital V skips cover-art pictures), one frame per decoded frame.
+# imageio-ffmpeg warns on its logger that a rotated video's frames come out at another size
+# than its stream's: they come upright, which is what we read and check, so only errors show
+logging.getLogger("imageio_ffmpeg").setLevel(logging.ERROR)
 _VIDEO_STREAM = ["-map", "0:V:0", "-fps_mode", "passthrough"]
 _HIGH_DEPTH_PIX = re.compile(r"(9|10|12|14|16|48|64)(le|be)$")  # e.g. yuv420p10le, rgb48le
 _ALPHA_PIX = re.compile(r"^(yuva|gbrap|ya|rgba|bgra|argb|abgr)")
