@@ -130,8 +130,10 @@ def test_a_clip_without_timecode_takes_the_cuts_record_start(tmp_path):
                              ("A001C007", "14:31:40:00", "14:31:41:00", "01:00:00:10", "01:00:01:10")])
     assert cut_list_timecode(path, ClipTimecode(25)) == ClipTimecode(25, "00:59:58:00")
     assert cut_list_timecode(path, TC25) == TC25  # a clip's own timecode stays
-    with pytest.raises(FramestyleError, match="the cut starts at 00:59:58:00 but the clip's first frame is 01:00"):
+    with pytest.raises(FramestyleError, match="the cut starts at 00:59:58:00 but the clip's first frame is 01:00") as e:
         parse_shot_file(path, PLATE, TC25)
+    assert str(e.value).endswith("give --start-timecode 00:59:58:00")  # the way to place it, said
+    assert len(parse_shot_file(path, range(1001, 1086), ClipTimecode(25, "00:59:58:00"))) == 2  # 85 frames: it works
 
 
 def test_edl_is_recognised_by_its_content_too(tmp_path):

@@ -102,7 +102,8 @@ def read_cut_list(path: str | os.PathLike, timecode: ClipTimecode, count: int) -
     clip = f"{_label(first, timecode)}-{_label(first + count - 1, timecode)}, {count} frames"
     if events[0][0] != first:
         raise FramestyleError(f"{path}: the cut starts at {_label(events[0][0], timecode)} but the clip's first"
-                              f" frame is {_label(first, timecode)} (clip {clip})")
+                              f" frame is {_label(first, timecode)} (clip {clip}); if the clip is this cut with "
+                              f"another timecode, give --start-timecode {_label(events[0][0], timecode)}")
     if events[-1][1] != first + count:
         longer = "longer" if events[-1][1] > first + count else "shorter"
         raise FramestyleError(f"{path}: the cut ({events[-1][1] - first} frames, to"
