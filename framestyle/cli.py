@@ -121,7 +121,14 @@ def _settings(options: dict) -> Settings:
     from framestyle.settings import load_look
 
     base = _run(load_look, options["look"]) if options["look"] else {}
-    settings = _run(Settings.from_dict, {**base, **options["values"]}, "options")
+    given = options["values"]
+    for shot, look in base.get("shot_looks", {}).items():  # an option overrides the look for every shot
+        overridden = sorted(set(look) & set(given))
+        if overridden:
+            typer.echo(f"framestyle: warning: the options given override the look's [shots.{shot}] "
+                       f"{', '.join(overridden)} too", err=True)
+            base["shot_looks"][shot] = {k: v for k, v in look.items() if k not in given}
+    settings = _run(Settings.from_dict, {**base, **given}, "options")
     if not settings.styles:
         _fail("no style image: give --style or a look file with styles")
     return settings

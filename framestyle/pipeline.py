@@ -282,10 +282,7 @@ def check_render(source: io.FrameSource, settings: Settings) -> FeatureNet:
                               f"a float (EXR) render is delivered as EXR frames, without --prores")
     first = io.read_frame(source, 0)
     variants = [settings] + [settings.for_shot(int(n)) for n in settings.shot_looks]
-    for variant in variants:
-        if (variant.network, variant.network_weights, variant.device) != (settings.network, settings.network_weights,
-                                                                          settings.device):
-            raise FramestyleError("the network and its device cannot change from shot to shot")
+    for variant in variants:  # the network and its device are the whole clip's (settings.CLIP_WIDE)
         size = working_size(source.width, source.height, variant.width, net.min_side)
         frame = prepare_frame(first, size, variant, source.linear)
         build_look(net, variant, frame.display).targets(size)

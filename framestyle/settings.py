@@ -33,6 +33,11 @@ PRECISIONS = ("float32", "bfloat16")
 MAX_STROKE_SIZE = 100
 """The largest stroke size (the style image at 100 × the working size)."""
 
+CLIP_WIDE = ("network", "network_weights", "device", "shot_detection", "cut_threshold", "gradual_threshold", "fps",
+             "start_timecode", "prores")
+"""Settings of the whole clip: its network, how its shots are found, its timecode and hand-off;
+a look's ``[shots.N]`` table cannot set them."""
+
 _NonNegative = Annotated[float, Field(ge=0, allow_inf_nan=False)]
 _Weight = Annotated[float, Field(ge=0, le=1e6, allow_inf_nan=False)]  # bounded: a weight past a million
 #                                 times another drowns it, and far beyond that the float32 loss overflows
@@ -105,10 +110,16 @@ class Settings:
         names = {f.name for f in dataclasses.fields(self)} - {"shot_looks"}
         for shot, overrides in self.shot_looks.items():
             unknown = sorted(set(overrides) - names)
+            whole = [key for key in CLIP_WIDE if key in overrides]
             if not shot.isdigit() or int(shot) < 1:
                 raise ValueError(f"[shots.{shot}]: not a shot number (1, 2, ...)")
+            if shot != str(int(shot)):
+                raise ValueError(f"[shots.{shot}]: write the shot number as {int(shot)}")
             if unknown:
                 raise ValueError(f"[shots.{shot}]: unknown setting(s) {', '.join(unknown)}")
+            if whole:
+                raise ValueError(f"[shots.{shot}]: {', '.join(whole)} appl{'ies' if len(whole) == 1 else 'y'} to the "
+                                 f"whole clip, not to one shot")
 
     @classmethod
     def from_dict(cls, values: dict, source: str = "settings") -> "Settings":

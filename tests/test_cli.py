@@ -540,6 +540,9 @@ def test_an_edl_in_gives_a_render_that_follows_it_and_a_prores_hand_off_out(smal
     ('sparkle = 1\n', "sparkle: unknown setting"),
     ('levels = 0\n', "levels: expected greater than or equal to 1"),
     ('[shots.2]\nstroke_size = -1\n', "[shots.2]: stroke_size: expected greater than 0"),
+    ('[shots.02]\nstrength = 0.0\n', "[shots.02]: write the shot number as 2"),  # it was read, then never applied
+    ('[shots.2]\nprores = true\nfps = 30.0\n', "[shots.2]: fps, prores apply to the whole clip, not to one shot"),
+    ('[shots.2]\nnetwork = "vgg19"\n', "[shots.2]: network applies to the whole clip"),
 ])
 def test_a_look_file_with_a_wrong_value_is_one_line_naming_the_file_and_the_key(small_clip, tmp_path, text, expected):
     look = tmp_path / "bad.toml"
@@ -547,6 +550,17 @@ def test_a_look_file_with_a_wrong_value_is_one_line_naming_the_file_and_the_key(
     code, _, err = _run("stylise", small_clip, "--look", look, "--out", tmp_path / "o")
     _one_line_error(code, err, "bad.toml")
     assert expected in err
+
+
+def test_an_option_given_overrides_the_look_for_every_shot_and_says_so(small_clip, tmp_path):
+    look = tmp_path / "grade.toml"
+    look.write_text(f'styles = ["{STYLE}"]\n[shots.2]\nstrength = 1.0\nstroke_size = 2.0\n')
+    code, out, err = _run("stylise", small_clip, "--look", look, "--out", tmp_path / "o", *FAST, "--strength", "0")
+    assert code == 0, err
+    assert "the options given override the look's [shots.2] strength too" in out + err
+    assert store.read_manifest(tmp_path / "o")["settings"]["shot_looks"] == {"2": {"stroke_size": 2.0}}
+    for name in ("take_003.png", "take_015.png"):  # both shots: strength 0 is the footage
+        assert np.array_equal(cv2.imread(str(tmp_path / "o" / name)), cv2.imread(str(small_clip / name)))
 
 
 @pytest.fixture
