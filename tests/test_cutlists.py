@@ -85,6 +85,24 @@ def test_non_drop_29_97_clip_is_refused_for_edl_but_written_as_otio(tmp_path):
     write_cut_list(tmp_path / "cut.otio", SHOTS, clock, "dusk", "/footage/dusk.mov")
     assert parse_shot_file(tmp_path / "cut.otio", PLATE, clock) == SHOTS
     assert sorted(p.name for p in tmp_path.iterdir()) == ["cut.otio"]
+    # read back for a clip without timecode of its own, it keeps counting non-drop
+    assert cut_list_timecode(tmp_path / "cut.otio", ClipTimecode(30000 / 1001)) == clock
+
+
+@pytest.mark.parametrize("fcm, record_in, label", [
+    ("FCM: NON-DROP FRAME", "01:00:00:00", "01:00:00:00"),
+    ("FCM: DROP FRAME", "01:00:00;00", "01:00:00;00"),
+    ("", "01:00:00:00", "01:00:00:00"),  # no FCM line: the record timecode's own separator says
+])
+def test_a_29_97_cut_places_a_clip_without_timecode_in_its_own_counting_mode(tmp_path, fcm, record_in, label):
+    # Non-drop 01:00:00:00 is frame 108000 at 30 frames a label-second, which drop-frame
+    # counting would label 01:00:03;18 (SMPTE ST 12-1: 108 numbers dropped in the hour)
+    path = tmp_path / "cut.edl"
+    end = "01:00:01:00" if ":" == record_in[-3] else "01:00:01;00"
+    path.write_text(f"TITLE: night\n{fcm}\n\n001  A001C003 V     C        {record_in} {end} {record_in} {end}\n",
+                    encoding="utf-8")
+    clock = cut_list_timecode(path, ClipTimecode(30000 / 1001))
+    assert clock.start == label and clock.label(30) == ("01:00:01:00" if ":" == label[-3] else "01:00:01;00")
 
 
 def test_otio_written_reads_back_with_its_start_and_shot_numbers(tmp_path):

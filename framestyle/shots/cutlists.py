@@ -22,6 +22,7 @@ from __future__ import annotations
 
 import copy
 import os
+import re
 from pathlib import Path
 from typing import TYPE_CHECKING, Sequence
 
@@ -116,7 +117,8 @@ def cut_list_timecode(path: str | os.PathLike, timecode: ClipTimecode) -> ClipTi
 
     A clip without a start timecode of its own (``timecode.start`` None) is read as the cut
     exported, starting at the first event's record timecode (often 01:00:00:00), so tables
-    and cut lists written back label its frames as the editor's timeline does.
+    and cut lists written back label its frames as the editor's timeline does, counting drop-
+    or non-drop-frame as the cut does (:func:`_cut_drop_frame`).
 
     Raises
     ------
@@ -125,7 +127,8 @@ def cut_list_timecode(path: str | os.PathLike, timecode: ClipTimecode) -> ClipTi
     """
     if timecode.start is not None:
         return timecode
-    return ClipTimecode(timecode.fps, _label(_record_ranges(path, timecode)[0][0], timecode))
+    first = _record_ranges(path, timecode)[0][0]
+    return ClipTimecode(timecode.fps, frame_to_timecode(first, timecode.fps, _cut_drop_frame(path)))
 
 
 def clip_timecode(source: io.FrameSource, settings: Settings, shot_file: Path | None = None) -> ClipTimecode:
@@ -201,7 +204,8 @@ def shots_timeline(shots: Sequence[Shot], timecode: ClipTimecode, name: str, med
     def frames(start: int, length: int) -> otio.opentime.TimeRange:
         return otio.opentime.TimeRange(otio.opentime.RationalTime(start, rate), otio.opentime.RationalTime(length, rate))
 
-    timeline = otio.schema.Timeline(name=name, global_start_time=otio.opentime.RationalTime(first, rate))
+    timeline = otio.schema.Timeline(name=name, global_start_time=otio.opentime.RationalTime(first, rate),
+                                    metadata={"framestyle": {"drop_frame": timecode.drop_frame}})
     track = otio.schema.Track(name="V1", kind=otio.schema.TrackKind.Video)
     for shot in shots:
         track.append(otio.schema.Clip(
@@ -252,6 +256,28 @@ def write_cut_list(path: str | os.PathLike, shots: Sequence[Shot], timecode: Cli
     title, _, events = text.partition("\n")
     fcm = "FCM: DROP FRAME" if timecode.drop_frame else "FCM: NON-DROP FRAME"
     write_bytes(path, f"{title}\n{fcm}\n{events}".encode())
+
+
+def _cut_drop_frame(path: str | os.PathLike) -> bool | None:
+    """Whether a cut list counts drop-frame: an EDL's ``FCM:`` line, else its first event's
+    record timecode (``;`` before the frames: drop-frame); an OpenTimelineIO file of ours,
+    its timeline's ``metadata["framestyle"]["drop_frame"]``. None where the file does not say
+    (OpenTimelineIO stores frame counts): the rate's usual mode then (drop-frame at 29.97).
+
+    References
+    ----------
+    CMX 3600 EDL layout: ``FCM: DROP FRAME`` / ``FCM: NON-DROP FRAME``; SMPTE ST 12-1 labels
+    drop-frame timecode with ``;`` before the frames (both from memory).
+    """
+    if cut_list_adapter(path) == "otio_json":
+        timeline = otio.adapters.read_from_file(str(path), adapter_name="otio_json")
+        return timeline.metadata.get("framestyle", {}).get("drop_frame")
+    text = Path(path).read_text(encoding="utf-8-sig", errors="replace")
+    mode = re.search(r"^FCM:\s*(NON-DROP|DROP)", text, re.MULTILINE | re.IGNORECASE)
+    if mode:
+        return mode[1].upper() == "DROP"
+    event = re.search(r"^\d+\s.*\d\d:\d\d:\d\d([:;.,])\d\d\s*$", text, re.MULTILINE)
+    return None if event is None else event[1] in ";,"
 
 
 def _frames(time: otio.opentime.RationalTime, rate) -> int:
