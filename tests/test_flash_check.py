@@ -117,7 +117,12 @@ def test_flashes_command_names_the_kind_standard_and_worst_second(tmp_path):
     assert "ITU-R BT.1702 (25 % of the screen): general flashes pass, red flashes fail" in out
     # Transitions at frames 3, 6, ... 24: the first second with 8 of them (4 flashes) starts
     # at frame 1, 00:00:00:01 at 24 fps; the whole screen flashes.
-    assert "second from 00:00:00:01: red, 4 flashes, 100 % of a 10° field, 100 % of the screen" in out
+    assert ("second from 00:00:00:01: red, 4 flashes, 100 % of a 10° field (over WCAG's 25 %), 100 % of the screen "
+            "(over BT.1702's 25 %)") in out
+    # a patch over a quarter of a 10° field but under a quarter of the screen: each area against its own standard
+    patch = _write_folder(tmp_path / "patch", CASES["large flashing patch (56 % of a 10° field), 4/s"][0]())
+    code, out, _ = _run("flashes", patch, "--fps", FPS)
+    assert code == 1 and "of a 10° field (over WCAG's 25 %)" in out and "of the screen (within BT.1702's 25 %)" in out
 
 
 def test_flashes_command_json_parses_and_plot_is_a_png(tmp_path):
