@@ -482,7 +482,8 @@ def stability_command(
                    + "".join(f"  {n}: {v:.2f}" for n, v in r.detail))
     typer.echo(f"{'all':>4}  {'':>11}  {_measured(overall(rows, 'render'), '.5f'):>10}  "
                f"{_measured(overall(rows, 'source'), '.5f'):>10}")
-    typer.echo("warping error: mean squared RGB change along the optical flow (Lai et al. 2018)")
+    typer.echo("warping error: mean squared RGB change along the optical flow (Lai et al. 2018), of the delivered "
+               "frames at the source's size (the render report's are at the working size)")
     if alone:
         typer.echo("stroke detail: Laplacian energy of the render's frame over that of the frame rendered on its own")
 
