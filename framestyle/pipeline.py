@@ -281,12 +281,15 @@ def check_render(source: io.FrameSource, settings: Settings) -> FeatureNet:
         raise FramestyleError(f"{source.path}: the ProRes hand-off is made from display-referred frames; "
                               f"a float (EXR) render is delivered as EXR frames, without --prores")
     first = io.read_frame(source, 0)
-    variants = [settings] + [settings.for_shot(int(n)) for n in settings.shot_looks]
-    for variant in variants:  # the network and its device are the whole clip's (settings.CLIP_WIDE)
-        size = working_size(source.width, source.height, variant.width, net.min_side)
-        frame = prepare_frame(first, size, variant, source.linear)
-        build_look(net, variant, frame.display).targets(size)
-        Mattes(source, variant.matte)
+    variants = [("", settings)] + [(f"[shots.{n}] ", settings.for_shot(int(n))) for n in settings.shot_looks]
+    for where, variant in variants:  # the network and its device are the whole clip's (settings.CLIP_WIDE)
+        try:
+            size = working_size(source.width, source.height, variant.width, net.min_side)
+            frame = prepare_frame(first, size, variant, source.linear)
+            build_look(net, variant, frame.display).targets(size)
+            Mattes(source, variant.matte)
+        except FramestyleError as exc:  # say which shot's look it is
+            raise FramestyleError(f"{where}{exc}") from None
     return net
 
 

@@ -552,6 +552,14 @@ def test_a_look_file_with_a_wrong_value_is_one_line_naming_the_file_and_the_key(
     assert expected in err
 
 
+def test_a_shot_look_that_does_not_fit_the_footage_names_its_shot(small_clip, tmp_path):
+    look = tmp_path / "grade.toml"
+    look.write_text(f'styles = ["{STYLE}"]\n[shots.2]\nwidth = 32\n')
+    code, _, err = _run("stylise", small_clip, "--look", look, "--out", tmp_path / "o")
+    _one_line_error(code, err, "[shots.2] width 32: the working frame would be 32×18")
+    assert not (tmp_path / "o").exists()
+
+
 def test_an_option_given_overrides_the_look_for_every_shot_and_says_so(small_clip, tmp_path):
     look = tmp_path / "grade.toml"
     look.write_text(f'styles = ["{STYLE}"]\n[shots.2]\nstrength = 1.0\nstroke_size = 2.0\n')
