@@ -122,12 +122,11 @@ def _settings(options: dict) -> Settings:
 
     base = _run(load_look, options["look"]) if options["look"] else {}
     given = options["values"]
-    for shot, look in base.get("shot_looks", {}).items():  # an option overrides the look for every shot
-        overridden = sorted(set(look) & set(given))
-        if overridden:
-            typer.echo(f"framestyle: warning: the options given override the look's [shots.{shot}] "
-                       f"{', '.join(overridden)} too", err=True)
-            base["shot_looks"][shot] = {k: v for k, v in look.items() if k not in given}
+    for shot, look in base.get("shot_looks", {}).items():  # a shot's own table stays the most specific
+        kept = sorted(set(look) & set(given))
+        if kept:
+            typer.echo(f"framestyle: warning: the look's [shots.{shot}] sets {', '.join(kept)} for shot {shot}; "
+                       f"the option(s) given apply to the other shots", err=True)
     settings = _run(Settings.from_dict, {**base, **given}, "options")
     if not settings.styles:
         _fail("no style image: give --style or a look file with styles")

@@ -560,15 +560,16 @@ def test_a_shot_look_that_does_not_fit_the_footage_names_its_shot(small_clip, tm
     assert not (tmp_path / "o").exists()
 
 
-def test_an_option_given_overrides_the_look_for_every_shot_and_says_so(small_clip, tmp_path):
+def test_an_option_given_overrides_the_look_but_a_shots_own_table_decides_for_it_and_says_so(small_clip, tmp_path):
     look = tmp_path / "grade.toml"
-    look.write_text(f'styles = ["{STYLE}"]\n[shots.2]\nstrength = 1.0\nstroke_size = 2.0\n')
+    look.write_text(f'styles = ["{STYLE}"]\nstrength = 1.0\n[shots.2]\nstrength = 1.0\n')
     code, out, err = _run("stylise", small_clip, "--look", look, "--out", tmp_path / "o", *FAST, "--strength", "0")
     assert code == 0, err
-    assert "the options given override the look's [shots.2] strength too" in out + err
-    assert store.read_manifest(tmp_path / "o")["settings"]["shot_looks"] == {"2": {"stroke_size": 2.0}}
-    for name in ("take_003.png", "take_015.png"):  # both shots: strength 0 is the footage
-        assert np.array_equal(cv2.imread(str(tmp_path / "o" / name)), cv2.imread(str(small_clip / name)))
+    assert "the look's [shots.2] sets strength for shot 2; the option(s) given apply to the other shots" in out + err
+    # shot 1: the option's strength 0 is the footage; shot 2: its own table's full style
+    assert np.array_equal(cv2.imread(str(tmp_path / "o" / "take_003.png")), cv2.imread(str(small_clip / "take_003.png")))
+    assert not np.array_equal(cv2.imread(str(tmp_path / "o" / "take_015.png")),
+                              cv2.imread(str(small_clip / "take_015.png")))
 
 
 @pytest.fixture
