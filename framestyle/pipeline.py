@@ -281,15 +281,14 @@ def check_render(source: io.FrameSource, settings: Settings) -> FeatureNet:
         raise FramestyleError(f"{source.path}: the ProRes hand-off is made from display-referred frames; "
                               f"a float (EXR) render is delivered as EXR frames, without --prores")
     first = io.read_frame(source, 0)
-    variants = [("", settings)] + [(f"[shots.{n}] ", settings.for_shot(int(n))) for n in settings.shot_looks]
-    for where, variant in variants:  # the network and its device are the whole clip's (settings.CLIP_WIDE)
+    for shot, variant in settings.looks():  # the network and its device are the whole clip's (settings.CLIP_WIDE)
         try:
             size = working_size(source.width, source.height, variant.width, net.min_side)
             frame = prepare_frame(first, size, variant, source.linear)
             build_look(net, variant, frame.display).targets(size)
             Mattes(source, variant.matte)
         except FramestyleError as exc:  # say which shot's look it is
-            raise FramestyleError(f"{where}{exc}") from None
+            raise FramestyleError(f"{'' if shot is None else f'[shots.{shot}] '}{exc}") from None
     return net
 
 
@@ -303,11 +302,12 @@ def setting_warnings(source: io.FrameSource, settings: Settings, min_side: int, 
     the working size has no room for (those under the network's ``min_side`` are skipped), a
     width past the source's, settings of the temporal chain with the chain off or in a
     preview (whose frames are stylised one by one), later passes' iterations with one pass,
-    a style weighted 0 in the mix, a matte softness without a matte, and matte frames paired by position with input frames
-    numbered otherwise."""
+    a style weighted 0 in the mix, a matte softness without a matte, and matte frames paired
+    by position with input frames numbered otherwise."""
     defaults = Settings()
     messages = []
-    for label, variant in [("", settings)] + [(f" (shot {n})", settings.for_shot(int(n))) for n in settings.shot_looks]:
+    for shot, variant in settings.looks():
+        label = "" if shot is None else f" (shot {shot})"
         size = working_size(source.width, source.height, variant.width, min_side)
         for key, asked in (("levels", variant.levels), ("warm_levels", variant.warm_levels)):
             used = len(level_sizes(size, asked or 1, min_side))
@@ -319,7 +319,8 @@ def setting_warnings(source: io.FrameSource, settings: Settings, min_side: int, 
                             f"worked at {source.width}")
         unused = [k for k in TEMPORAL_SETTINGS if getattr(variant, k) != getattr(defaults, k)]
         if unused and (preview or not variant.temporal):
-            messages.append(f"{', '.join(unused)}{label}: no effect {'in a preview, whose frames are stylised one by one' if preview else 'with temporal off'}")
+            why = "in a preview, whose frames are stylised one by one" if preview else "with temporal off"
+            messages.append(f"{', '.join(unused)}{label}: no effect {why}")
         elif variant.passes == 1 and variant.pass_iterations != defaults.pass_iterations:
             messages.append(f"pass_iterations{label}: no effect with one pass")
         unmixed = [Path(style).name for style, weight in zip(variant.styles, variant.style_mix) if weight == 0]

@@ -138,6 +138,10 @@ class Settings:
         """A short hash of the settings; a resumed render must match it exactly."""
         return hashlib.sha256(json.dumps(self.to_dict(), sort_keys=True).encode()).hexdigest()[:16]
 
+    def looks(self) -> list[tuple[int | None, "Settings"]]:
+        """(None, these settings), then (N, shot N's settings) for each shot with a look of its own."""
+        return [(None, self)] + [(int(n), self.for_shot(int(n))) for n in self.shot_looks]
+
     def for_shot(self, shot: int, source: str = "settings") -> "Settings":
         """The settings of one shot: these, with that shot's overrides from ``shot_looks``."""
         overrides = self.shot_looks.get(str(shot), {})

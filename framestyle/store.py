@@ -582,7 +582,7 @@ class ReportStore:
 
 def input_fingerprints(source: io.FrameSource, settings: Settings) -> dict:
     """Fingerprints of everything a render reads: input frames, style images, mattes."""
-    variants = [settings] + [settings.for_shot(int(n)) for n in settings.shot_looks]
+    variants = [variant for _, variant in settings.looks()]
     styles = {p for v in variants for p in v.styles}
     mattes = {v.matte for v in variants if v.matte and v.matte != "alpha"}
     return {
