@@ -41,6 +41,8 @@ if TYPE_CHECKING:
 # layout (the cmx_3600 adapter is a plugin package since OpenTimelineIO 0.16).
 _ADAPTERS = {".edl": "cmx_3600", ".otio": "otio_json"}
 _KIND = {"cmx_3600": "CMX 3600 EDL", "otio_json": "OpenTimelineIO file"}
+# The cmx_3600 adapter's error for an event out of record order or overlapping the one before.
+_OVERLAP = re.compile(r"Overlapping record in value: (\S+)")
 
 
 def cut_list_adapter(path: str | os.PathLike) -> str | None:
@@ -151,6 +153,10 @@ def _record_ranges(path: str | os.PathLike, timecode: ClipTimecode) -> list[tupl
     except OSError as exc:
         raise FramestyleError(f"{path}: cannot read the cut list ({exc.strerror or exc})") from None
     except (otio.exceptions.OTIOError, ValueError, KeyError) as exc:
+        overlap = _OVERLAP.match(str(exc))
+        if overlap:
+            raise FramestyleError(f"{path}: the event recorded from {overlap[1]} starts before the event listed above "
+                                  f"it ends; list the events in record order, without overlaps") from None
         raise FramestyleError(f"{path}: not a readable {kind} at {timecode.fps:g} frames/s ({exc})") from None
     if not isinstance(timeline, otio.schema.Timeline):
         raise FramestyleError(f"{path}: holds a {type(timeline).__name__}, not a timeline")
