@@ -118,33 +118,36 @@ def test_folded_batch_norm_gives_the_convolution_then_batch_norm_of_the_checkpoi
         torch.testing.assert_close(layer(x), expected, rtol=1e-5, atol=1e-5)
 
 
-@pytest.mark.parametrize("stride, groups, kernel", [(2, 32, 3), (1, 32, 5), (1, 1, 1)])
-def test_frozen_convolution_gradient_equals_autograds(stride, groups, kernel):
-    # Reference: autograd's gradient of F.conv2d with respect to its input.
+@pytest.mark.parametrize("stride, groups, kernel, cin", [(2, 32, 3, 32), (1, 32, 5, 32), (1, 1, 1, 32), (1, 1, 3, 3),
+                                                         (1, 1, 5, 2), (2, 1, 3, 3)])
+def test_frozen_convolution_gradient_equals_autograds(stride, groups, kernel, cin):
+    # Reference: autograd's gradient of F.conv2d with respect to its input. Few input
+    # channels at stride 1 (the stem's RGB) take the shifted-taps path.
     from framestyle.style.network import _conv
 
-    weight = torch.rand(32, 32 // groups, kernel, kernel)
-    x = torch.rand(1, 32, 23, 31, requires_grad=True)
+    weight = torch.rand(32, cin // groups, kernel, kernel)
+    x = torch.rand(1, cin, 23, 31, requires_grad=True)
     grad = torch.rand_like(F.conv2d(x, weight, stride=stride, padding=kernel // 2, groups=groups))
     (expected,) = torch.autograd.grad(F.conv2d(x, weight, stride=stride, padding=kernel // 2, groups=groups), x, grad)
     (got,) = torch.autograd.grad(_conv(x, weight, stride=stride, padding=kernel // 2, groups=groups), x, grad)
     torch.testing.assert_close(got, expected)
 
 
-@pytest.mark.parametrize("p", [1, 2])
-def test_blurpool_padding_gives_autograds_gradient_and_keeps_nothing_of_its_input(p):
-    # Reference: autograd's gradient of torch's own F.pad(mode="replicate"), bit for bit.
+@pytest.mark.parametrize("p, h, w", [(1, 23, 31), (2, 23, 31), (2, 2, 5), (1, 1, 4)])
+def test_blurpool_padding_gives_autograds_gradient_and_keeps_nothing_of_its_input(p, h, w):
+    # Reference: autograd's gradient of torch's own F.pad(mode="replicate") (up to the order
+    # of the sums), down to a single row.
     from framestyle.style.network import _ReplicatePad
 
-    x = torch.rand(1, 32, 23, 31, requires_grad=True)
-    grad = torch.rand(1, 32, 23 + 2 * p, 31 + 2 * p)
+    x = torch.rand(1, 32, h, w, requires_grad=True)
+    grad = torch.rand(1, 32, h + 2 * p, w + 2 * p)
     (expected,) = torch.autograd.grad(F.pad(x, (p,) * 4, mode="replicate"), x, grad)
     kept = []  # what the backward pass keeps (torch's own pad keeps x)
     with torch.autograd.graph.saved_tensors_hooks(lambda t: kept.append(t) or t, lambda t: t):
         padded = _ReplicatePad.apply(x, p)
     assert torch.equal(padded, F.pad(x, (p,) * 4, mode="replicate")) and kept == []
     (got,) = torch.autograd.grad(padded, x, grad)
-    assert torch.equal(got, expected)
+    torch.testing.assert_close(got, expected)
 
 
 def test_relu6_gives_autograds_gradient_from_its_output_at_the_edges_too():

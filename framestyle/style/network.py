@@ -139,11 +139,40 @@ class _FrozenConv(torch.autograd.Function):
     @staticmethod
     def backward(ctx, grad: torch.Tensor):
         (weight,) = ctx.saved_tensors
+        if ctx.groups == 1 and ctx.stride == 1 and weight.shape[1] <= _FEW_CHANNELS:
+            return _input_grad_by_taps(grad.to(weight.dtype), weight, ctx.padding, ctx.shape[-2:]), None, None, None, None, None
         stand_in = weight.new_empty(ctx.shape)
         dx = torch.ops.aten.convolution_backward(
             grad.to(weight.dtype), stand_in, weight, None, (ctx.stride,) * 2, (ctx.padding,) * 2, (1, 1), False,
             (0, 0), ctx.groups, (True, False, False))[0]
         return dx, None, None, None, None, None
+
+
+_FEW_CHANNELS = 4  # input channels up to which _input_grad_by_taps beats the transposed convolution
+
+
+def _input_grad_by_taps(grad: torch.Tensor, weight: torch.Tensor, padding: int, size: tuple[int, int]) -> torch.Tensor:
+    """Input gradient (B, Cin, H, W) of a stride-1 convolution with few input channels.
+
+    ``grad`` (B, Cout, H', W') is the output's gradient, ``weight`` (Cout, Cin, k, k), ``size``
+    the input's (H, W). The transposed convolution is written as one matrix product to k²·Cin
+    channels and a shifted sum of its k² slices: for an RGB input (the stem at 1280×720) that
+    takes half the time of the transposed convolution, which runs poorly with 3 output
+    channels. The same gradient up to rounding.
+    """
+    cout, cin, k, _ = weight.shape
+    b, _, h_out, w_out = grad.shape
+    h, w = size
+    taps = torch.matmul(weight.permute(2, 3, 1, 0).reshape(k * k * cin, cout), grad.reshape(b, cout, -1))
+    taps = taps.view(b, k, k, cin, h_out, w_out)
+    dx = grad.new_zeros(b, cin, h, w)
+    for ky in range(k):  # output (i, j) reads input (i + ky − padding, j + kx − padding)
+        rows = slice(max(padding - ky, 0), min(h_out, h + padding - ky))
+        for kx in range(k):
+            cols = slice(max(padding - kx, 0), min(w_out, w + padding - kx))
+            dx[..., rows.start + ky - padding:rows.stop + ky - padding,
+               cols.start + kx - padding:cols.stop + kx - padding] += taps[:, ky, kx, :, rows, cols]
+    return dx
 
 
 def _conv(x: torch.Tensor, weight: torch.Tensor, bias: torch.Tensor | None = None, stride: int = 1,
@@ -170,7 +199,19 @@ class _ReplicatePad(torch.autograd.Function):
 
     @staticmethod
     def backward(ctx, grad: torch.Tensor):
-        return torch.ops.aten.replication_pad2d_backward(grad, grad.new_empty(ctx.shape), ctx.pad), None
+        p, (h, w) = ctx.pad[0], ctx.shape[-2:]
+        if min(h, w) < 2:  # the first and last row (or column) are one: torch's own kernel
+            return torch.ops.aten.replication_pad2d_backward(grad, grad.new_empty(ctx.shape), ctx.pad), None
+        # The interior copied, then each edge row takes its p padded copies, and each edge
+        # column the same from the row-folded sums: less than half the time of torch's kernel.
+        dx = grad[..., p:-p, p:-p].clone()
+        dx[..., 0, :] = grad[..., :p + 1, p:-p].sum(-2)
+        dx[..., -1, :] = grad[..., -p - 1:, p:-p].sum(-2)
+        for column, side in ((grad[..., :p + 1].sum(-1), 0), (grad[..., -p - 1:].sum(-1), -1)):
+            folded = column[..., p:-p].clone()
+            folded[..., 0], folded[..., -1] = column[..., :p + 1].sum(-1), column[..., -p - 1:].sum(-1)
+            dx[..., side] = folded
+        return dx, None
 
 
 class _ReLU6(torch.autograd.Function):
