@@ -20,6 +20,7 @@ import numpy as np
 import pytest
 
 from framestyle.errors import FramestyleError
+from framestyle.finish.compose import with_alpha
 from framestyle.io import (
     fingerprint,
     frame_name,
@@ -256,14 +257,81 @@ def write_exr_by_hand(path: Path, channels: dict[str, np.ndarray], pixel_type: i
     path.write_bytes(header + struct.pack(f"<{height}Q", *offsets) + b"".join(chunks))
 
 
-def test_exr_rgba_file_laid_out_per_the_spec_reads_as_stored(tmp_path):
+def test_exr_rgba_file_laid_out_per_the_spec_reads_with_its_premultiplied_colour_made_straight(tmp_path):
+    # OpenEXR's colour is premultiplied by the alpha (Kainz, Bogart et al., "Technical
+    # Introduction to OpenEXR", from memory): straight colour is colour / alpha where alpha > 0.
     rng = np.random.default_rng(7)
     rgba = {c: rng.normal(0.5, 2.0, (5, 7)).astype(np.float32) for c in "RGBA"}  # HDR and negative values
+    rgba["A"][0, :3] = 0.0  # transparent: the colour stays as stored
     write_exr_by_hand(tmp_path / "hdr_0001.exr", rgba)
     source = open_source(tmp_path)
     assert (source.width, source.height, source.bit_depth, source.has_alpha) == (7, 5, 32, True)
-    np.testing.assert_array_equal(read_frame(source, 0), np.dstack([rgba["R"], rgba["G"], rgba["B"]]))
-    np.testing.assert_array_equal(read_alpha(source, 0), rgba["A"])
+    alpha = rgba["A"]
+    straight = np.dstack([rgba[c] / np.where(alpha > 0, alpha, 1) for c in "RGB"])
+    np.testing.assert_allclose(read_frame(source, 0), straight, rtol=1e-6)
+    np.testing.assert_array_equal(read_alpha(source, 0), alpha)
+    # delivered premultiplied again (an unstylised frame), the colour is the file's
+    delivered = with_alpha(read_frame(source, 0), read_alpha(source, 0), premultiplied=True)
+    np.testing.assert_allclose(delivered[alpha > 0], np.dstack([rgba[c] for c in "RGBA"])[alpha > 0], rtol=1e-6)
+
+
+@pytest.mark.parametrize("depth", [np.uint8, np.uint16])
+def test_tiff_with_associated_alpha_reads_straight_and_an_unspecified_extra_channel_is_no_alpha(tmp_path, depth):
+    # TIFF 6.0, section 18: ExtraSamples 1 is associated (premultiplied) alpha, 2 unassociated,
+    # 0 unspecified data; tifffile writes the tags.
+    import tifffile
+
+    top = np.iinfo(depth).max
+    straight = levels(11, (4, 6, 3), top, np.float64)
+    alpha = np.array([0, top // 4, top // 2, top] * 6, np.float64).reshape(4, 6, 1)
+    stored = np.dstack([np.rint(straight * alpha / top), alpha]).astype(depth)
+    for name, extra in (("assoc", "assocalpha"), ("unassoc", "unassalpha"), ("unspec", "unspecified")):
+        (tmp_path / name).mkdir()
+        tifffile.imwrite(tmp_path / name / "f_1.tif", stored, photometric="rgb", extrasamples=[extra])
+    assoc = open_source(tmp_path / "assoc")
+    assert assoc.has_alpha and open_source(tmp_path / "unassoc").has_alpha
+    seen = alpha[..., 0] > 0
+    # back to straight within the rounding of the premultiplied integers (half a level / alpha)
+    error = np.abs(read_frame(assoc, 0) * top - straight)[seen]
+    assert (error <= 0.5 / (alpha / top).repeat(3, axis=2)[seen] + 0.5 + 1e-6).all()
+    np.testing.assert_array_equal(read_frame(open_source(tmp_path / "unassoc"), 0), stored[..., :3] / np.float32(top))
+    unspec = open_source(tmp_path / "unspec")
+    assert not unspec.has_alpha and read_alpha(unspec, 0) is None
+    np.testing.assert_array_equal(read_frame(unspec, 0), stored[..., :3] / np.float32(top))
+
+
+@pytest.mark.parametrize("orientation", range(1, 9))
+def test_frames_are_turned_upright_by_their_orientation_tag(tmp_path, orientation):
+    # Reference: Pillow's ImageOps.exif_transpose of the same file (TIFF 6.0 section 8 /
+    # Exif Orientation 1-8); tifffile writes the tag (274).
+    import tifffile
+    from PIL import Image, ImageOps
+
+    stored = levels(12, (5, 8, 3), 255, np.uint8)
+    tifffile.imwrite(tmp_path / "f_1.tif", stored, photometric="rgb", extratags=[(274, "H", 1, orientation, True)])
+    expected = np.asarray(ImageOps.exif_transpose(Image.open(tmp_path / "f_1.tif")))
+    source = open_source(tmp_path)
+    assert (source.height, source.width) == expected.shape[:2]
+    np.testing.assert_array_equal(read_frame(source, 0), expected / np.float32(255))
+
+
+def test_a_sequence_whose_frames_differ_in_alpha_is_refused_naming_the_frame(tmp_path):
+    write_uint(tmp_path / "t_1.png", levels(13, (4, 6, 4), 255, np.uint8))
+    write_uint(tmp_path / "t_2.png", levels(14, (4, 6, 3), 255, np.uint8))
+    with pytest.raises(FramestyleError, match=r"t_2.png: has no alpha channel but t_1.png has"):
+        open_source(tmp_path)
+    (tmp_path / "t_1.png").unlink()
+    write_uint(tmp_path / "t_3.png", levels(15, (4, 6, 4), 255, np.uint8))
+    with pytest.raises(FramestyleError, match=r"t_3.png: has alpha channel but t_2.png has none"):
+        open_source(tmp_path)
+
+
+def test_a_broken_link_among_the_frames_is_refused_not_taken_for_a_gap(tmp_path):
+    for k in (1, 3):
+        write_uint(tmp_path / f"f_{k}.png", levels(k, (4, 6, 3), 255, np.uint8))
+    (tmp_path / "f_2.png").symlink_to(tmp_path / "gone.png")
+    with pytest.raises(FramestyleError, match=r"f_2.png: a broken link \(to .*gone.png\)"):
+        open_source(tmp_path)
 
 
 def test_exr_half_float_luminance_file_reads_as_gray_rgb(tmp_path):
@@ -350,6 +418,18 @@ def test_a_video_cut_short_is_refused_not_read_as_a_shorter_clip(tmp_path):
     (tmp_path / "cut.mp4").write_bytes(data[: len(data) * 6 // 10])
     with pytest.raises(FramestyleError, match="cut.mp4: the file is cut short"):
         open_source(tmp_path / "cut.mp4")
+
+
+def test_a_matroska_video_cut_short_is_refused_too(tmp_path):
+    # Matroska needs no index to play, so ffmpeg decodes what is there and says only "File
+    # ended prematurely".
+    path = tmp_path / "whole.mkv"
+    ffmpeg("-f", "lavfi", "-i", "testsrc2=size=96x72:rate=24:duration=1", "-c:v", "mjpeg", str(path))
+    assert open_source(path).count == 24
+    data = path.read_bytes()
+    (tmp_path / "cut.mkv").write_bytes(data[: len(data) * 55 // 100])
+    with pytest.raises(FramestyleError, match=r"cut.mkv: the file is cut short \(ffmpeg: File ended prematurely\)"):
+        open_source(tmp_path / "cut.mkv")
 
 
 def test_10_bit_video_is_read_with_16_bit_precision(tmp_path):

@@ -11,6 +11,7 @@ reported as gaps (the frames are not renumbered).
 
 from __future__ import annotations
 
+import os
 import re
 from dataclasses import dataclass
 from pathlib import Path
@@ -18,7 +19,7 @@ from pathlib import Path
 import numpy as np
 
 from framestyle.errors import FramestyleError
-from framestyle.io.stills import DTYPE_DEPTH, IMAGE_EXTS, check_not_empty, image_size, load_image
+from framestyle.io.stills import DTYPE_DEPTH, IMAGE_EXTS, check_not_empty, image_header, load_image
 
 _NUMBERED = re.compile(r"^(.*?)(\d+)$")  # non-greedy prefix: the digit run is as long as possible
 
@@ -49,7 +50,11 @@ def scan_folder(path: Path) -> Sequence:
     """
     groups: dict[tuple[str, str], list[tuple[int, str]]] = {}
     for entry in sorted(path.iterdir()):
-        if entry.name.startswith(".") or entry.suffix.lower() not in IMAGE_EXTS or not entry.is_file():
+        if entry.name.startswith(".") or entry.suffix.lower() not in IMAGE_EXTS:
+            continue
+        if entry.is_symlink() and not entry.exists():  # else a frame would vanish into a gap
+            raise FramestyleError(f"{entry}: a broken link (to {os.readlink(entry)})")
+        if not entry.is_file():
             continue
         match = _NUMBERED.match(entry.stem)
         if match is not None:
@@ -76,15 +81,20 @@ def scan_folder(path: Path) -> Sequence:
         check_not_empty(path / name)
     first_frame = load_image(path / files[0])
     height, width = first_frame.shape[:2]
+    has_alpha = first_frame.shape[2] in (2, 4)
     for name in files[1:]:
-        size = image_size(path / name)
-        if size != (width, height):
+        frame_width, frame_height, frame_alpha = image_header(path / name)
+        if (frame_width, frame_height) != (width, height):
             raise FramestyleError(
-                f"{path / name}: frame is {size[0]}x{size[1]} but {files[0]} is {width}x{height}"
+                f"{path / name}: frame is {frame_width}x{frame_height} but {files[0]} is {width}x{height}"
             )
+        if frame_alpha != has_alpha:  # the alpha passes through to the output: every frame or none
+            raise FramestyleError(f"{path / name}: {'has' if frame_alpha else 'has no'} alpha channel but {files[0]} "
+                                  f"{'has' if has_alpha else 'has none'}; give every frame of the sequence the same "
+                                  f"channels")
     ignored = tuple(sorted(name for _, others in ranked[1:] for _, name in others))
     return Sequence(files, tuple(number for number, _ in frames), width, height,
-                    DTYPE_DEPTH[first_frame.dtype], first_frame.shape[2] in (2, 4), ignored)
+                    DTYPE_DEPTH[first_frame.dtype], has_alpha, ignored)
 
 
 def read_sequence_frame(file: Path, width: int, height: int) -> np.ndarray:

@@ -4,9 +4,13 @@ One backend for every still format framestyle reads or writes: PNG, JPEG, TIFF, 
 DPX, 8/16-bit integer or half/float samples, gray, RGB, with or without alpha. OpenImageIO
 reads headers without decoding pixels (so a folder's frame sizes are checked cheaply) and
 keeps samples at their stored type: integers are scaled to [0, 1] here, float samples
-(EXR, float TIFF) come back as stored, not clipped. With an alpha channel, EXR colour is
-premultiplied by convention (Kainz, Bogart et al., "Technical Introduction to OpenEXR",
-from memory) and is returned so.
+(EXR, float TIFF) come back as stored, not clipped. Colour comes back straight: a file whose
+alpha is associated (premultiplied: always for EXR, by convention, Kainz, Bogart et al.,
+"Technical Introduction to OpenEXR", from memory; TIFF with ExtraSamples = 1, TIFF 6.0
+section 18) has its colour divided by the alpha where the alpha is above 0. Only a channel
+the file marks as alpha is alpha (an RGB TIFF's unspecified extra channel is not read).
+Pixels are turned upright by the file's EXIF/TIFF Orientation tag (1-8, TIFF 6.0 section 8;
+Exif 2.32 section 4.6.4), as viewers show them.
 
 Images leave this module as float32 ``(H, W, 3)`` RGB (gray replicated), alpha as
 ``(H, W)``; channel order is RGB(A) throughout, as OpenImageIO delivers it.
@@ -34,14 +38,17 @@ _INT_SCALE = {np.dtype(np.uint8): 255.0, np.dtype(np.uint16): 65535.0}
 DTYPE_DEPTH = {np.dtype(np.uint8): 8, np.dtype(np.uint16): 16, np.dtype(np.float32): 32}
 
 
-def image_size(file: Path) -> tuple[int, int]:
-    """(width, height) of an image file from its header, without decoding the pixels."""
+def image_header(file: Path) -> tuple[int, int, bool]:
+    """(width, height, has alpha) of an image file as :func:`load_image` decodes it, from its
+    header without decoding the pixels."""
     spec = _open(file, lambda image: image.spec())
-    return spec.width, spec.height
+    width, height = (spec.height, spec.width) if _orientation(spec) >= 5 else (spec.width, spec.height)
+    return width, height, _channels(spec)[1]
 
 
 def load_image(file: Path) -> np.ndarray:
-    """Decode an image file to ``(H, W, C)`` samples in their own type (uint8, uint16, float32).
+    """Decode an image file to upright ``(H, W, C)`` samples in their own type (uint8, uint16,
+    float32), colour straight.
 
     C is 1 (gray), 2 (gray + alpha), 3 (RGB) or 4 (RGBA); half floats are widened to float32,
     other integer depths (10/12-bit DPX) to uint16.
@@ -51,7 +58,8 @@ def load_image(file: Path) -> np.ndarray:
         base = spec.format.basetype
         kind = {oiio.UINT8: oiio.UINT8, oiio.UINT16: oiio.UINT16}.get(
             base, oiio.FLOAT if base in (oiio.HALF, oiio.FLOAT, oiio.DOUBLE) else oiio.UINT16)
-        channels = min(spec.nchannels, 4)
+        colour, alpha = _channels(spec)
+        channels = colour + alpha
         with _native_stderr() as said:  # libpng prints its own error there; ours names the file
             pixels = image.read_image(0, 0, 0, channels, kind)
         if pixels is None:
@@ -59,7 +67,10 @@ def load_image(file: Path) -> np.ndarray:
         problem = image.geterror() if image.has_error else ""
         if "Premature end" in problem:  # libjpeg's warning for a cut-off file: it fills the rest grey
             raise FramestyleError(f"{file}: the file is cut short; only part of the image could be decoded")
-        return np.ascontiguousarray(pixels.reshape(spec.height, spec.width, channels))
+        pixels = pixels.reshape(spec.height, spec.width, channels)
+        if alpha and not spec.get_int_attribute("oiio:UnassociatedAlpha", 0):  # set only for straight alpha
+            pixels = _unpremultiply(pixels)
+        return np.ascontiguousarray(_upright(pixels, _orientation(spec)))
 
     check_not_empty(file)
     return _open(file, read)
@@ -129,6 +140,39 @@ def quantise(image: np.ndarray, bit_depth: int) -> np.ndarray:
     dtype = np.uint8 if bit_depth == 8 else np.uint16
     top = np.iinfo(dtype).max
     return np.rint(np.clip(image, 0.0, 1.0) * top).astype(dtype)
+
+
+def _channels(spec) -> tuple[int, bool]:
+    """(colour channels read, whether the next channel, read too, is the file's alpha)."""
+    colour = 3 if spec.nchannels >= 3 else 1
+    return colour, spec.alpha_channel == colour
+
+
+def _unpremultiply(pixels: np.ndarray) -> np.ndarray:
+    """Associated (premultiplied) colour ``(H, W, C)`` divided by the last channel, the
+    alpha, where it is above 0; integer samples rounded back to their type."""
+    scale = _INT_SCALE.get(pixels.dtype, 1.0)
+    alpha = pixels[..., -1:].astype(np.float64) / scale
+    colour = pixels[..., :-1] / np.where(alpha > 0, alpha, 1.0)
+    if scale != 1.0:
+        colour = np.clip(np.rint(colour), 0, scale)
+    return np.concatenate([colour.astype(pixels.dtype), pixels[..., -1:]], axis=2)
+
+
+def _orientation(spec) -> int:
+    """The file's EXIF/TIFF Orientation, 1 (upright) to 8; other values count as 1."""
+    value = spec.get_int_attribute("Orientation", 1)
+    return value if 1 <= value <= 8 else 1
+
+
+def _upright(pixels: np.ndarray, orientation: int) -> np.ndarray:
+    """Stored pixels ``(H, W, C)`` as shown for an Orientation tag 1-8: row 0 of the stored
+    image is the top (1-4) or the left side (5-8) of the picture, mirrored for 2, 4, 5, 7.
+    Each tag as (quarter turns counter-clockwise, then mirrored left-right)."""
+    turns = {1: (0, False), 2: (0, True), 3: (2, False), 4: (2, True),
+             5: (3, True), 6: (3, False), 7: (1, True), 8: (1, False)}[orientation]
+    upright = np.rot90(pixels, turns[0])
+    return upright[:, ::-1] if turns[1] else upright
 
 
 def check_not_empty(file: Path) -> None:

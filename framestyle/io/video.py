@@ -57,6 +57,9 @@ _H264_VIDEO = ["-c:v", "libx264", "-preset", "medium", "-crf", "18", "-pix_fmt",
 # 10-bit 4:2:2 (chroma halved across only: an odd width loses its last column). Vendor
 # "apl0" marks the frames as Apple-made, which some editing software checks (common
 # practice; from memory).
+# How ffmpeg's demuxers say a file ends before its own index or header says it does: the MP4
+# demuxer's "partial file", the Matroska one's "File ended prematurely".
+_CUT_SHORT = re.compile(rb"partial file|File ended prematurely")
 _PRORES_FILTER = "crop=trunc(iw/2)*2:ih:0:0," + _BT709.format("yuv422p10le")
 _PRORES_VIDEO = ["-c:v", "prores_ks", "-profile:v", "3", "-vendor", "apl0", "-pix_fmt", "yuv422p10le"]
 # Uncompressed 24-bit PCM, the usual audio of an edit hand-off .mov (common practice): it
@@ -84,8 +87,9 @@ def probe_video(path: Path) -> VideoInfo:
     decoded = _ffmpeg(["-i", str(path), *_VIDEO_STREAM, "-f", "null", "-progress", "pipe:1", "-"])
     if decoded.returncode != 0:
         raise FramestyleError(f"{path}: not a readable video ({last_line(decoded.stderr)})")
-    if b"partial file" in decoded.stderr:  # the demuxer's word for data its index promises but the file lacks
-        raise FramestyleError(f"{path}: the file is cut short (ffmpeg: partial file); copy or export it again")
+    cut = _CUT_SHORT.search(decoded.stderr)  # data the index promises but the file lacks (MP4, Matroska)
+    if cut:
+        raise FramestyleError(f"{path}: the file is cut short (ffmpeg: {cut[0].decode()}); copy or export it again")
     counts = re.findall(rb"^frame=(\d+)", decoded.stdout, re.MULTILINE)
     count = int(counts[-1]) if counts else 0
     if count == 0:
