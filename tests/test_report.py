@@ -157,6 +157,19 @@ def test_a_refresh_redraws_only_the_shots_whose_records_changed_and_measures_not
         {k: v for k, v in before.items() if not k.startswith("shot_002_")}
 
 
+def test_a_finished_render_without_its_flash_record_is_said_unchecked_not_passed(rendered, small_clip, tmp_path):
+    out = _copy(rendered[0], tmp_path)
+    page = (out / store.REPORT).read_text()
+    assert "render: not checked" not in page and 'class="pass">pass</span><ul><li>render:' in page
+    record = out / ".framestyle" / "flashes" / "render.json"
+    record.unlink()
+    for _ in ("deleted", "damaged"):
+        refresh_report(out, *_render_inputs(out, small_clip))
+        page = (out / store.REPORT).read_text()
+        assert '<span class="fail">render: not checked</span>' in page and "<li>source:" in page
+        record.write_text("{")
+
+
 def test_a_shot_with_a_look_of_its_own_says_what_differs(rendered, small_clip, tmp_path):
     out = _copy(rendered[0], tmp_path)
     manifest = json.loads((out / store.MANIFEST).read_text())

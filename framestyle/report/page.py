@@ -154,10 +154,16 @@ def _look(data: PageData) -> str:
 
 
 def _flashes(data: PageData) -> str:
-    if not data.flashes:
+    # A finished render is checked as it finishes; without the render's record (deleted,
+    # damaged) the source's "pass" must not stand in for it.
+    unchecked = data.status is not None and data.status.complete and "render" not in data.flashes
+    if not data.flashes and not unchecked:
         return ""
     details = "".join(f"<li>{_verdict(report)}<ul>{_lines(report_lines(kind, report))}</ul></li>"
                       for kind, report in data.flashes.items())
+    if unchecked:
+        details = ('<li><span class="fail">render: not checked</span> (its flash record is missing or unreadable; '
+                   "<code>framestyle resume</code> on this folder checks it again)</li>" + details)
     plot = (f'<figure><img class="plot" src="{_e(data.flash_plot)}" alt="flash check timeline">'
             f"<figcaption>Flashes in the trailing second and the flashing area, against time.</figcaption></figure>"
             if data.flash_plot else "")
