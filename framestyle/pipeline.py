@@ -169,8 +169,8 @@ def plan_render(
         if manifest is not None:
             check_resume(manifest, settings, inputs, None if keep_shot_list else shot_list, store.out)
             for change in environment_changes(manifest, environment(net)):
-                progress("warning", message=f"resumed under {change}: frames may differ in the last bits "
-                                            f"from an uninterrupted render")
+                progress("warning", message=f"resumed under {change}: the frames rendered now keep the look but "
+                                            f"may place their strokes differently from an uninterrupted render")
             shot_list_ = tuple(Shot(s["shot"], s["start"], s["end"]) for s in manifest["shots"])
         else:
             shot_list_ = tuple(find_shots(source, settings, shot_file))

@@ -81,7 +81,7 @@ class Settings:
     tolerance: _NonNegative = 0.01  # stop when the loss falls by less than this fraction in 10
     #                                 iterations (half of it for a shot's first frame)
     seed: Annotated[int, Field(ge=0)] = 0  # seeds the noise added where a frame starts from its content
-    device: Literal[DEVICES] = "auto"  # where the network runs (results differ from the CPU's in the last bits)
+    device: Literal[DEVICES] = "auto"  # where the network runs (strokes may land differently from the CPU's)
     precision: Literal[PRECISIONS] = "float32"  # the network's arithmetic (bfloat16: autocast)
     # --- temporal stability (Ruder et al. 2016) -----------------------------------------------
     temporal: bool = True  # warm start from the warped previous frame + temporal losses

@@ -632,7 +632,8 @@ def check_resume(manifest: dict, settings: Settings, inputs: dict, shot_list: di
 
 def environment_changes(manifest: dict, environment: dict) -> list[str]:
     """What differs between the environment a render started in and this one (library
-    versions, thread count): results may then differ in the last bits."""
+    versions, thread count): the solver's sums then round differently and the frames it
+    settles on may differ visibly, in the same look."""
     old = manifest.get("environment", {})
     return [f"{key} {environment[key]} (was {old.get(key)})" for key in environment if old.get(key) != environment[key]]
 
