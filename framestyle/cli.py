@@ -156,6 +156,9 @@ class _Bars:
         if event == "warning":  # shown even with --quiet: it says something is off
             typer.echo(f"framestyle: warning: {info['message']}", err=True)
             return
+        if event == "waiting" and (self.quiet or self.progress is None):  # else a quiet wait looks like a hang
+            typer.echo(f"framestyle: waiting: {info['holder']}", err=True)
+            return
         if self.quiet:
             return
         from rich.progress import (BarColumn, MofNCompleteColumn, Progress, TextColumn,

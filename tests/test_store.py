@@ -11,6 +11,7 @@ import os
 import shutil
 import subprocess
 import sys
+import threading
 from pathlib import Path
 
 import imageio_ffmpeg
@@ -262,6 +263,26 @@ def test_progress_on_resume_starts_from_the_frames_already_done(small_clip, tmp_
     start = next(i for e, i in events if e == "start")
     assert (start["frames"], start["done"]) == (20, 10)
     assert sum(1 for e, _ in events if e == "frame") == 10
+
+
+def test_a_quiet_render_says_which_process_it_waits_for(small_clip, tmp_path):
+    # Another process (this one) holds shot 1: a render with -q renders shot 2, then waits,
+    # and says so on stderr instead of looking hung.
+    out = tmp_path / "out"
+    lock = store.Lock(out / ".framestyle" / "locks" / "shot_001.lock", "shot 1")
+    assert lock.acquire(wait=False)
+    (tmp_path / "shots.txt").write_text("1\n11\n")
+    child = subprocess.Popen(
+        [sys.executable, "-m", "framestyle", "stylise", str(small_clip), "--style", str(STYLE), "--out", str(out),
+         "--width", "128", "--iterations", "2", "--shot-list", str(tmp_path / "shots.txt"), "-q"],
+        env={**os.environ, "PYTHONPATH": str(ROOT)}, stderr=subprocess.PIPE, text=True)
+    timer = threading.Timer(120, lock.release)  # a child that waits silently gets the shot after 2 minutes
+    timer.start()
+    line = child.stderr.readline()  # blocks until the child says something, or ends
+    timer.cancel()
+    lock.release()  # no-op if the timer released it
+    assert child.wait(timeout=300) == 0
+    assert line.startswith("framestyle: waiting: shot 1 is held by pid") and str(os.getpid()) in line
 
 
 def test_a_preview_takes_the_preview_lock(small_clip, tmp_path):
