@@ -96,8 +96,12 @@ class Lock:
         except BlockingIOError:
             os.close(fd)
             return False
-        os.ftruncate(fd, 0)
-        os.pwrite(fd, json.dumps({"pid": os.getpid(), "host": socket.gethostname(), "since": time.time()}).encode(), 0)
+        try:
+            os.ftruncate(fd, 0)
+            os.pwrite(fd, json.dumps({"pid": os.getpid(), "host": socket.gethostname(), "since": time.time()}).encode(), 0)
+        except OSError as exc:  # a full disk: name the lock file (the error of a write names none)
+            os.close(fd)
+            raise OSError(exc.errno, exc.strerror, str(self.path)) from None
         self._fd = fd
         return True
 

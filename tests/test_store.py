@@ -265,6 +265,21 @@ def test_progress_on_resume_starts_from_the_frames_already_done(small_clip, tmp_
     assert sum(1 for e, _ in events if e == "frame") == 10
 
 
+def test_a_lock_that_cannot_be_written_names_its_file_and_is_let_go(tmp_path, monkeypatch):
+    lock = store.Lock(tmp_path / "locks" / "shot_001.lock", "shot 1")
+
+    def disk_full(*_):
+        raise OSError(28, "No space left on device")
+
+    with monkeypatch.context() as patch:
+        patch.setattr(os, "pwrite", disk_full)
+        with pytest.raises(OSError) as error:
+            lock.acquire(wait=False)
+    assert error.value.filename == str(lock.path) and error.value.strerror == "No space left on device"
+    assert lock.acquire(wait=False)  # nothing was left holding it
+    lock.release()
+
+
 def test_a_quiet_render_says_which_process_it_waits_for(small_clip, tmp_path):
     # Another process (this one) holds shot 1: a render with -q renders shot 2, then waits,
     # and says so on stderr instead of looking hung.
