@@ -19,6 +19,7 @@ from __future__ import annotations
 import dataclasses
 import functools
 import importlib.metadata
+import re
 import time
 from collections import deque
 from dataclasses import dataclass, field
@@ -785,6 +786,15 @@ def _output_depth(source: io.FrameSource) -> int:
 
 # --- previews -------------------------------------------------------------------------------
 
+_SHEET = "contact_shot{:03d}.png"  # a preview's contact sheet of shot N
+
+
+def _sheet_shot(name: str) -> int:
+    """The shot number of a contact sheet's file name (0 for a name not of that form)."""
+    match = re.fullmatch(r"contact_shot(\d+)\.png", name)
+    return int(match[1]) if match else 0
+
+
 def preview(input_path: Path, out: Path, settings: Settings, every: int, *, width: int | None = None,
             shots: str | None = None, shot_file: Path | None = None,
             progress: Progress = no_progress) -> list[Path]:
@@ -826,11 +836,16 @@ def preview(input_path: Path, out: Path, settings: Settings, every: int, *, widt
             folder.write(io.frame_name(source, index), delivered)
             tiles[shot.index].append((source.names[index], frame.display, delivered))
             progress("frame", index=index, shot=shot.index, iterations=stats.iterations, seconds=seconds, skipped=False)
-        sheets = [folder.write(f"contact_shot{n:03d}.png", contact_sheet(tiles[n])) for n in wanted]
+        sheets = [folder.write(_SHEET.format(n), contact_sheet(tiles[n])) for n in wanted]
         # an earlier preview of these shots sampled other frames: theirs would mix with these
         folder.remove({io.frame_name(source, i) for n in wanted for i in range(shot_list[n - 1].start,
                                                                                 shot_list[n - 1].end + 1)}
                       - {io.frame_name(source, i) for i in chosen})
+        # sheets of shots this preview's shot list does not have (or, previewing every shot,
+        # of any shot) are an earlier preview's: the report would show them as this one's
+        stale = [Path(name).name for name in Store(out).preview_sheets()]
+        folder.remove(name for name in stale if name not in {sheet.name for sheet in sheets}
+                      and (not shots or _sheet_shot(name) > len(shot_list)))
     warning = preview_warning(analyse_source(source, clip_timecode(source, settings, shot_file)).to_dict())
     if warning:
         progress("warning", message=warning)

@@ -65,6 +65,22 @@ def test_preview_writes_every_nth_frame_and_a_contact_sheet_per_shot(small_clip,
     assert previews == ["take_001.png", "take_005.png", "take_009.png", "take_011.png", "take_016.png"]
 
 
+def test_a_new_preview_leaves_no_contact_sheet_of_an_earlier_one_behind(small_clip, tmp_path):
+    def sheets():
+        return sorted(p.name for p in (tmp_path / "o" / "preview").glob("contact_*.png"))
+
+    (tmp_path / "three.txt").write_text("1\n6\n11\n")
+    preview = ("preview", small_clip, "--style", STYLE, "--out", tmp_path / "o", "--every", "10", "-q", *FAST)
+    code, _, err = _run(*preview, "--shot-list", tmp_path / "three.txt")
+    assert code == 0, err
+    assert sheets() == ["contact_shot001.png", "contact_shot002.png", "contact_shot003.png"]
+    assert _run(*preview, "--shots", "1")[0] == 0  # detected: two shots; shot 2's sheet stays, shot 3's goes
+    assert sheets() == ["contact_shot001.png", "contact_shot002.png"]
+    assert _run(*preview, "--shot-list", tmp_path / "three.txt")[0] == 0
+    assert _run(*preview)[0] == 0  # every shot previewed: only its sheets
+    assert sheets() == ["contact_shot001.png", "contact_shot002.png"]
+
+
 def test_a_preview_goes_beside_a_render_of_its_footage_never_of_other_footage(small_clip, tmp_path):
     out = tmp_path / "o"
     assert _run("stylise", small_clip, "--style", STYLE, "--out", out, "-q", *FAST, "--shots", "2")[0] == 0
