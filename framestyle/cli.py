@@ -507,7 +507,12 @@ def flashes_command(
 
     _check_path(path, "input")
     check = _run(check_path, path, fps, source)
-    plotted = _run(write_plot, check, plot)
+    try:
+        plotted = _run(write_plot, check, plot) if plot is not None else write_plot(check)
+    except OSError as exc:  # a render's own timeline, in a folder this user cannot write (an archive)
+        typer.echo(f"framestyle: warning: {exc.filename or path}: {exc.strerror or exc}; the timeline is not drawn "
+                   f"there (give --plot PATH to draw it elsewhere)", err=True)
+        plotted = None
     if json_out:
         typer.echo(json.dumps({**check.to_dict(), "plot": str(plotted) if plotted else None}))
     else:

@@ -247,6 +247,15 @@ def test_a_render_records_its_flash_check_and_the_sources_and_warns_where_it_fla
     assert check["plot"] == str(out / store.FLASH_PLOT)
     assert check["reports"]["render"]["verdicts"] == recorded["render"]["verdicts"]
 
+    def read_only(self):  # an archived render on a read-only file system
+        raise OSError(30, "Read-only file system", str(out / ".framestyle" / "locks" / "folder.lock"))
+
+    with pytest.MonkeyPatch.context() as patch:
+        patch.setattr(store.Store, "folder_lock", read_only)
+        code, stdout, err = _run("flashes", out, "--json")
+    assert code == 1 and json.loads(stdout)["plot"] is None
+    assert "folder.lock: Read-only file system; the timeline is not drawn there (give --plot PATH" in err
+
     clip.rename(tmp_path / "moved")  # the footage moved: named as the render's, and --source finds it
     code, _, err = _run("flashes", out)
     assert code == 2 and len(err.strip().splitlines()) == 1 and "give --source" in err
