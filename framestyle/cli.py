@@ -305,6 +305,7 @@ def resume(
     threads: Annotated[Optional[int], typer.Option(help="Torch threads per process (default: all cores, shared among --workers).")] = None,
     quiet: Annotated[bool, typer.Option("--quiet", "-q", help="No progress display.")] = False,
     prores: Annotated[bool, typer.Option("--prores", help="Also write the ProRes 422 HQ hand-off, to a render started without it (its frames are kept).")] = False,
+    source: Annotated[Optional[Path], typer.Option("--source", help="The footage, if it moved since the render started (checked by content; the render then follows it).")] = None,
 ) -> None:
     """Continue a render from its manifest alone (input, settings and shot list are in it).
 
@@ -319,8 +320,9 @@ def resume(
     settings = _run(Settings.from_dict, manifest["settings"], str(out / store.MANIFEST))
     if prores:
         settings = dataclasses.replace(settings, prores=True)
-    _render(Path(manifest["inputs"]["input"]), out, settings, workers=workers, scheduler=scheduler, threads=threads,
-            quiet=quiet, shots=shots, keep_shot_list=True)
+    footage = _check_path(source or Path(manifest["inputs"]["input"]), "source footage (give --source if it moved)")
+    _render(footage, out, settings, workers=workers, scheduler=scheduler, threads=threads, quiet=quiet, shots=shots,
+            keep_shot_list=True)
 
 
 def _report(result, quiet: bool) -> None:

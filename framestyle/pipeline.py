@@ -183,10 +183,14 @@ def plan_render(
         if manifest is not None:
             store.log(f"resuming render of {source.path}")
             handed_off = [key for key in HAND_OFF if manifest["settings"].get(key) != getattr(settings, key)]
+            moved = manifest["inputs"]["input"] != inputs["input"]  # the same content (check_resume), elsewhere
+            if handed_off or moved:
+                store.create({**manifest, "settings": settings.to_dict(), "inputs": inputs})
             if handed_off:  # the frames stay; the videos are made from them as now asked
-                store.create({**manifest, "settings": settings.to_dict()})
                 store.log(f"hand-off changed ({', '.join(f'{k} {getattr(settings, k)}' for k in handed_off)}); "
                           f"the frames are kept")
+            if moved:  # resume, report and flashes read the footage from its new place
+                store.log(f"the footage moved from {manifest['inputs']['input']} to {inputs['input']}")
         else:
             store.log(f"frames numbered {source.numbers[0]}-{source.numbers[-1]}, first frame at timecode "
                       f"{clip_timecode(source, settings, shot_file).label(0)}")

@@ -48,6 +48,23 @@ def test_resume_renders_the_remaining_shots_from_the_manifest_alone(small_clip, 
     assert len(store.Store(out).finished()) == 20
 
 
+def test_a_render_follows_its_footage_when_it_moves(small_clip, tmp_path):
+    clip, out = tmp_path / "clip", tmp_path / "o"
+    shutil.copytree(small_clip, clip)
+    assert _run("stylise", clip, "--style", STYLE, "--out", out, "-q", *FAST, "--shots", "1")[0] == 0
+    clip.rename(tmp_path / "moved")
+    code, _, err = _run("resume", out, "--shots", "2")
+    _one_line_error(code, err, f"{clip}: source footage (give --source if it moved) not found")
+    code, _, err = _run("resume", out, "--source", tmp_path / "moved", "-q")
+    assert code == 0, err
+    assert store.read_manifest(out)["inputs"]["input"] == str(tmp_path / "moved")
+    assert len(store.Store(out).finished()) == 20
+    assert _run("report", out)[0] == 0 and _run("resume", out, "-q")[0] == 0  # no --source needed any more
+    (tmp_path / "moved").rename(clip)  # stylise with the footage at a new place updates the manifest too
+    assert _run("stylise", clip, "--style", STYLE, "--out", out, "-q", *FAST)[0] == 0
+    assert store.read_manifest(out)["inputs"]["input"] == str(clip)
+
+
 def test_preview_writes_every_nth_frame_and_a_contact_sheet_per_shot(small_clip, tmp_path):
     code, out, _ = _run("preview", small_clip, "--style", STYLE, "--out", tmp_path, "--every", "4", "-q", *FAST)
     assert code == 0
