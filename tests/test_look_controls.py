@@ -79,6 +79,22 @@ def test_a_matte_limits_where_the_style_applies(small_clip, tmp_path):
     assert np.abs(src[:, 64:] - styled[:, 64:]).mean() > 0.03
 
 
+def test_a_matte_frame_with_alpha_counts_as_it_shows_over_black(small_clip, tmp_path):
+    # white everywhere, the matte in the alpha (as a compositor exports one); and a grey-level
+    # matte on opaque frames (tools that always write RGBA)
+    from framestyle.finish.matte import Mattes
+
+    alpha = np.zeros((72, 128), np.uint8)
+    alpha[:, 64:] = 255
+    for name, bgra in (("in_alpha", np.dstack([np.full((72, 128, 3), 255, np.uint8), alpha])),
+                       ("opaque", np.dstack([np.repeat(alpha[..., None], 3, axis=2), np.full((72, 128), 255, np.uint8)]))):
+        (tmp_path / name).mkdir()
+        for n in range(1, 21):
+            cv2.imwrite(str(tmp_path / name / f"m_{n:03d}.png"), bgra)
+        matte = Mattes(io.open_source(small_clip), str(tmp_path / name))(3, softness=0.0)
+        np.testing.assert_array_equal(matte, alpha / np.float32(255))
+
+
 def test_mattes_that_do_not_match_the_input_are_refused(small_clip, tmp_path):
     mattes = tmp_path / "mattes"
     mattes.mkdir()

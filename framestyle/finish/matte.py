@@ -29,8 +29,9 @@ class Mattes:
     Parameters
     ----------
     source : the input clip
-    spec : a folder of matte frames (one per input frame, its size), ``"alpha"`` for the
-        input's own alpha channel, or None for no matte
+    spec : a folder of matte frames (one per input frame, its size; grey level times alpha,
+        so a white matte in an alpha channel and a grey matte on opaque frames both work),
+        ``"alpha"`` for the input's own alpha channel, or None for no matte
     """
 
     def __init__(self, source: io.FrameSource, spec: str | None):
@@ -53,6 +54,8 @@ class Mattes:
             return None
         if self.folder is None:
             raw = io.read_alpha(self.source, index)
-        else:
+        else:  # the matte frame as it shows over black: grey level times its alpha, if it has one
             raw = io.read_frame(self.folder, index).mean(axis=2)
+            if self.folder.has_alpha:
+                raw = raw * io.read_alpha(self.folder, index)
         return soft_matte(raw, softness)
