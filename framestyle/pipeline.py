@@ -19,6 +19,7 @@ from __future__ import annotations
 import dataclasses
 import functools
 import importlib.metadata
+import math
 import re
 import time
 from collections import deque
@@ -302,12 +303,18 @@ TEMPORAL_SETTINGS = ("temporal_weight", "long_term", "flow_preset", "warp_filter
 """Settings that act only on frames started from their predecessor (the temporal chain)."""
 
 
+STYLE_ENLARGEMENT = 4.0
+"""Most times a style image is enlarged (by its stroke size, beside the working frame) before
+a warning: past it the image's own brush detail is gone (a judgement from looking at renders)."""
+
+
 def setting_warnings(source: io.FrameSource, settings: Settings, min_side: int, preview: bool = False) -> list[str]:
     """Where a setting (per shot too) cannot act as asked, one line each: coarse-to-fine levels
     the working size has no room for (those under the network's ``min_side`` are skipped), a
     width past the source's, settings of the temporal chain with the chain off or in a
     preview (whose frames are stylised one by one), later passes' iterations with one pass,
-    a style weighted 0 in the mix, a matte softness without a matte, and matte frames paired
+    a style weighted 0 in the mix, a style image enlarged more than :data:`STYLE_ENLARGEMENT`
+    times beside the working frame, a matte softness without a matte, and matte frames paired
     by position with input frames numbered otherwise."""
     defaults = Settings()
     messages = []
@@ -331,6 +338,14 @@ def setting_warnings(source: io.FrameSource, settings: Settings, min_side: int, 
         unmixed = [Path(style).name for style, weight in zip(variant.styles, variant.style_mix) if weight == 0]
         if unmixed:
             messages.append(f"style_mix{label}: {', '.join(unmixed)} weighted 0, so no part of the look")
+        for style in variant.styles:
+            style_size = io.image_header(Path(style))[:2]
+            enlarged = variant.stroke_size * max(size) / max(style_size)
+            if enlarged > STYLE_ENLARGEMENT:
+                messages.append(f"{style}{label}: a {style_size[0]}×{style_size[1]} style image is enlarged "
+                                f"{enlarged:.0f}× beside the {size[0]}×{size[1]} working frame, so its strokes come out "
+                                f"blurred; one of {math.ceil(enlarged * max(style_size) / STYLE_ENLARGEMENT)} pixels "
+                                f"or more on its longer side keeps them")
         if not variant.matte and variant.matte_softness != defaults.matte_softness:
             messages.append(f"matte_softness{label}: no effect without a matte")
         if variant.matte and variant.matte != "alpha" and source.kind == "folder":

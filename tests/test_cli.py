@@ -149,6 +149,12 @@ def test_settings_that_cannot_act_as_asked_are_said(small_clip, tmp_path):
     said = out + err
     assert "temporal_weight: no effect in a preview" in said and "matte_softness: no effect without a matte" in said
     assert "style_mix: style.png weighted 0, so no part of the look" in said
+    tiny = tmp_path / "tiny.png"
+    cv2.imwrite(str(tiny), cv2.resize(cv2.imread(str(STYLE)), (8, 8), interpolation=cv2.INTER_AREA))
+    code, out, err = _run("preview", small_clip, "--style", tiny, "--out", tmp_path / "t", *FAST, "--every", "9")
+    assert code == 0, err
+    assert (f"{tiny}: a 8×8 style image is enlarged 16× beside the 128×72 working frame, so its strokes come out "
+            f"blurred; one of 32 pixels or more on its longer side keeps them") in out + err
     code, out, err = _run("stylise", small_clip, "--style", STYLE, "--out", tmp_path / "q", *FAST, "--shots", "2")
     assert code == 0 and "framestyle: warning" not in out + err  # the defaults: nothing to say
 
