@@ -326,6 +326,13 @@ def test_a_sequence_whose_frames_differ_in_alpha_is_refused_naming_the_frame(tmp
         open_source(tmp_path)
 
 
+def test_a_sequence_whose_frames_differ_in_depth_is_refused_naming_the_frame(tmp_path):
+    write_uint(tmp_path / "d_1.png", levels(16, (4, 6, 3), 255, np.uint8))
+    write_uint(tmp_path / "d_2.png", levels(17, (4, 6, 3), 65535, np.uint16))
+    with pytest.raises(FramestyleError, match=r"d_2.png: 16-bit samples but d_1.png has 8-bit"):
+        open_source(tmp_path)
+
+
 def test_a_broken_link_among_the_frames_is_refused_not_taken_for_a_gap(tmp_path):
     for k in (1, 3):
         write_uint(tmp_path / f"f_{k}.png", levels(k, (4, 6, 3), 255, np.uint8))

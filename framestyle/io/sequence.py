@@ -21,6 +21,7 @@ import numpy as np
 from framestyle.errors import FramestyleError
 from framestyle.io.stills import DTYPE_DEPTH, IMAGE_EXTS, check_not_empty, image_header, load_image
 
+_DEPTH_WORDS = {8: "8-bit", 16: "16-bit", 32: "float"}
 _NUMBERED = re.compile(r"^(.*?)(\d+)$")  # non-greedy prefix: the digit run is as long as possible
 
 
@@ -81,9 +82,9 @@ def scan_folder(path: Path) -> Sequence:
         check_not_empty(path / name)
     first_frame = load_image(path / files[0])
     height, width = first_frame.shape[:2]
-    has_alpha = first_frame.shape[2] in (2, 4)
+    has_alpha, depth = first_frame.shape[2] in (2, 4), DTYPE_DEPTH[first_frame.dtype]
     for name in files[1:]:
-        frame_width, frame_height, frame_alpha = image_header(path / name)
+        frame_width, frame_height, frame_alpha, frame_depth = image_header(path / name)
         if (frame_width, frame_height) != (width, height):
             raise FramestyleError(
                 f"{path / name}: frame is {frame_width}x{frame_height} but {files[0]} is {width}x{height}"
@@ -92,9 +93,11 @@ def scan_folder(path: Path) -> Sequence:
             raise FramestyleError(f"{path / name}: {'has' if frame_alpha else 'has no'} alpha channel but {files[0]} "
                                   f"{'has' if has_alpha else 'has none'}; give every frame of the sequence the same "
                                   f"channels")
+        if frame_depth != depth:  # the output follows the first frame's: deeper frames would lose levels
+            raise FramestyleError(f"{path / name}: {_DEPTH_WORDS[frame_depth]} samples but {files[0]} has "
+                                  f"{_DEPTH_WORDS[depth]}; give every frame of the sequence the same depth")
     ignored = tuple(sorted(name for _, others in ranked[1:] for _, name in others))
-    return Sequence(files, tuple(number for number, _ in frames), width, height,
-                    DTYPE_DEPTH[first_frame.dtype], has_alpha, ignored)
+    return Sequence(files, tuple(number for number, _ in frames), width, height, depth, has_alpha, ignored)
 
 
 def read_sequence_frame(file: Path, width: int, height: int) -> np.ndarray:

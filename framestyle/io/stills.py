@@ -36,14 +36,15 @@ _WRITE_DEPTHS = {".png": (8, 16), ".tif": (8, 16, 32), ".tiff": (8, 16, 32), ".e
 _WRITE_TYPES = {8: oiio.UINT8, 16: oiio.UINT16, 32: oiio.FLOAT}
 _INT_SCALE = {np.dtype(np.uint8): 255.0, np.dtype(np.uint16): 65535.0}
 DTYPE_DEPTH = {np.dtype(np.uint8): 8, np.dtype(np.uint16): 16, np.dtype(np.float32): 32}
+_SAMPLE_DEPTH = {oiio.UINT8: 8, oiio.UINT16: 16, oiio.FLOAT: 32}
 
 
-def image_header(file: Path) -> tuple[int, int, bool]:
-    """(width, height, has alpha) of an image file as :func:`load_image` decodes it, from its
-    header without decoding the pixels."""
+def image_header(file: Path) -> tuple[int, int, bool, int]:
+    """(width, height, has alpha, bit depth) of an image file as :func:`load_image` decodes
+    it, from its header without decoding the pixels; the depth as in :data:`DTYPE_DEPTH`."""
     spec = _open(file, lambda image: image.spec())
     width, height = (spec.height, spec.width) if _orientation(spec) >= 5 else (spec.width, spec.height)
-    return width, height, _channels(spec)[1]
+    return width, height, _channels(spec)[1], _SAMPLE_DEPTH[_sample_type(spec)]
 
 
 def load_image(file: Path) -> np.ndarray:
@@ -55,9 +56,7 @@ def load_image(file: Path) -> np.ndarray:
     """
     def read(image):
         spec = image.spec()
-        base = spec.format.basetype
-        kind = {oiio.UINT8: oiio.UINT8, oiio.UINT16: oiio.UINT16}.get(
-            base, oiio.FLOAT if base in (oiio.HALF, oiio.FLOAT, oiio.DOUBLE) else oiio.UINT16)
+        kind = _sample_type(spec)
         colour, alpha = _channels(spec)
         channels = colour + alpha
         with _native_stderr() as said:  # libpng prints its own error there; ours names the file
@@ -140,6 +139,15 @@ def quantise(image: np.ndarray, bit_depth: int) -> np.ndarray:
     dtype = np.uint8 if bit_depth == 8 else np.uint16
     top = np.iinfo(dtype).max
     return np.rint(np.clip(image, 0.0, 1.0) * top).astype(dtype)
+
+
+def _sample_type(spec):
+    """The type samples are read as: 8 and 16-bit integers as stored, floats as float32,
+    other integer depths (10/12-bit DPX) as uint16."""
+    base = spec.format.basetype
+    if base in (oiio.UINT8, oiio.UINT16):
+        return base
+    return oiio.FLOAT if base in (oiio.HALF, oiio.FLOAT, oiio.DOUBLE) else oiio.UINT16
 
 
 def _channels(spec) -> tuple[int, bool]:
