@@ -5,7 +5,6 @@ import functools
 import inspect
 import json
 import math
-import sys
 from pathlib import Path
 from typing import Annotated, Optional
 
@@ -211,6 +210,7 @@ class _Bars:
     def stop(self) -> None:
         if self.progress is not None:
             self.progress.stop()
+            self.progress = None
 
 
 # --- commands ---------------------------------------------------------------------------------
@@ -258,6 +258,10 @@ def _render(input: Path, out: Path, settings: Settings, *, workers: int, schedul
 
             result = _run(farm_render, input, out, settings, workers=workers, scheduler=scheduler, threads=threads,
                           progress=bars, **options)
+    except KeyboardInterrupt:  # Ctrl-C: said here, as typer would end the process without a word
+        bars.stop()  # the bars first, or the line lands inside them
+        typer.echo(f"framestyle: interrupted; finished frames are kept: `framestyle resume {out}` continues", err=True)
+        raise typer.Exit(130) from None
     finally:
         bars.stop()
     _report(result, quiet)
@@ -528,9 +532,5 @@ def flashes_command(
 
 
 def main() -> None:
-    """Entry point that never shows a traceback for an interrupted render."""
-    try:
-        app()
-    except KeyboardInterrupt:
-        typer.echo("framestyle: interrupted; run the same command again to resume", err=True)
-        sys.exit(130)
+    """Entry point (typer ends an interrupted command with exit code 130, without a traceback)."""
+    app()

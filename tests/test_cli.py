@@ -2,7 +2,11 @@
 
 import json
 import shutil
+import signal
 import subprocess
+import sys
+import time
+from pathlib import Path
 
 import cv2
 import imageio_ffmpeg
@@ -63,6 +67,20 @@ def test_a_render_follows_its_footage_when_it_moves(small_clip, tmp_path):
     (tmp_path / "moved").rename(clip)  # stylise with the footage at a new place updates the manifest too
     assert _run("stylise", clip, "--style", STYLE, "--out", out, "-q", *FAST)[0] == 0
     assert store.read_manifest(out)["inputs"]["input"] == str(clip)
+
+
+def test_ctrl_c_says_the_render_is_kept_and_how_to_continue(small_clip, tmp_path):
+    out = tmp_path / "o"
+    child = subprocess.Popen([sys.executable, "-m", "framestyle", "stylise", str(small_clip), "--style", str(STYLE),
+                              "--out", str(out), "--width", "128", "--iterations", "40", "-q"],
+                             stderr=subprocess.PIPE, text=True, cwd=Path(__file__).parents[1])
+    deadline = time.monotonic() + 240
+    while not list(out.glob("take_*.png")) and time.monotonic() < deadline and child.poll() is None:
+        time.sleep(0.2)
+    child.send_signal(signal.SIGINT)
+    err = child.communicate(timeout=120)[1]
+    assert child.returncode == 130
+    assert err.strip().splitlines()[-1] == f"framestyle: interrupted; finished frames are kept: `framestyle resume {out}` continues"
 
 
 def test_preview_writes_every_nth_frame_and_a_contact_sheet_per_shot(small_clip, tmp_path):
