@@ -125,6 +125,20 @@ def test_flashes_command_names_the_kind_standard_and_worst_second(tmp_path):
     assert code == 1 and "of a 10° field (over WCAG's 25 %)" in out and "of the screen (within BT.1702's 25 %)" in out
 
 
+def test_a_picture_narrower_than_a_10_degree_field_says_how_its_area_is_counted(tmp_path):
+    # 1200×64 fitted to WCAG's 1024×768 reference screen: a 10° field (341×256 there) is
+    # 400×300 px of the picture, which fills 64/300 = 21 % of it; a whole-picture strobe is
+    # then within WCAG's 25 % and over BT.1702's (the screen is the picture).
+    strip = _write_folder(tmp_path / "strip", _strobe(_grey(0, (1200, 64)), _grey(1, (1200, 64)), 3))
+    code, out, _ = _run("flashes", strip, "--fps", FPS)
+    assert code == 1 and "(a 10° field is 400×300 px)" in out
+    assert "the picture fills 21 % of a 10° field at most: WCAG's area counts the screen around it as steady" in out
+    assert "WCAG 2.1 SC 2.3.1 (25 % of any 10° field): general flashes pass" in out
+    assert "ITU-R BT.1702 (25 % of the screen): general flashes fail" in out
+    code, out, _ = _run("flashes", _write_folder(tmp_path / "full", _strobe(_grey(0), _grey(1), 3)), "--fps", FPS)
+    assert "the picture fills" not in out
+
+
 def test_flashes_command_json_parses_and_plot_is_a_png(tmp_path):
     folder = _write_folder(tmp_path / "strobe", CASES["full-frame black/white, 4 flashes/s"][0]())
     plot = tmp_path / "timeline.png"

@@ -214,6 +214,11 @@ def report_lines(label: str, report: Mapping, worst: int = 3) -> list[str]:
     field_w, field_h = report["geometry"]["field_size"]
     lines = [f"{label}: {report['frames']} frames at {report['fps']:g} fps, {report['width']}×{report['height']} "
              f"(a 10° field is {field_w:.0f}×{field_h:.0f} px)"]
+    covered = min(1.0, report["width"] / field_w) * min(1.0, report["height"] / field_h)
+    if covered < 1.0:  # a strip of a picture: WCAG's field reaches past it onto the screen around it
+        lines.append(f"  the picture fills {_percent(covered)} of a 10° field at most: WCAG's area counts the "
+                     f"screen around it as steady (the picture fitted to a 1024×768 screen), BT.1702's screen is "
+                     f"the picture; shown larger than that, judge it by BT.1702's area")
     for standard, text in STANDARDS.items():
         kinds = ", ".join(f"{kind} flashes {report['verdicts'][standard][kind]}" for kind in KINDS)
         lines.append(f"  {text}: {kinds}")
