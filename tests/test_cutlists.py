@@ -92,6 +92,10 @@ def test_non_drop_29_97_clip_is_refused_for_edl_but_written_as_otio(tmp_path):
 @pytest.mark.parametrize("fcm, record_in, label", [
     ("FCM: NON-DROP FRAME", "01:00:00:00", "01:00:00:00"),
     ("FCM: DROP FRAME", "01:00:00;00", "01:00:00;00"),
+    # the FCM line decides, whatever the separators (CMX 3600, from memory): a drop-frame list
+    # written with ':' (as many writers do) was placed 108 frames late
+    ("FCM: DROP FRAME", "01:00:00:00", "01:00:00;00"),
+    ("FCM: NON-DROP FRAME", "01:00:00;00", "01:00:00:00"),
     ("", "01:00:00:00", "01:00:00:00"),  # no FCM line: the record timecode's own separator says
 ])
 def test_a_29_97_cut_places_a_clip_without_timecode_in_its_own_counting_mode(tmp_path, fcm, record_in, label):
@@ -103,6 +107,31 @@ def test_a_29_97_cut_places_a_clip_without_timecode_in_its_own_counting_mode(tmp
                     encoding="utf-8")
     clock = cut_list_timecode(path, ClipTimecode(30000 / 1001))
     assert clock.start == label and clock.label(30) == ("01:00:01:00" if ":" == label[-3] else "01:00:01;00")
+
+
+def test_a_drop_frame_edl_for_a_25_fps_clip_and_an_edl_with_a_byte_order_mark(tmp_path):
+    path = tmp_path / "cut.edl"
+    event = "001  A001C003 V     C        10:00:00:00 10:00:02:10 01:00:00:00 01:00:02:10\n"
+    path.write_text(f"TITLE: night\nFCM: DROP FRAME\n\n{event}", encoding="utf-8")
+    with pytest.raises(FramestyleError, match=r"cut.edl: the cut list counts drop-frame, which exists only at "
+                                              r"29.97 and 59.94 frames/s; the clip is at 25$"):
+        parse_shot_file(path, PLATE, TC25)  # drop-frame exists at 29.97 and 59.94 only (SMPTE ST 12-1)
+    path.write_text(f"TITLE: night\nFCM: NON-DROP FRAME\n\n{event}", encoding="utf-8-sig")  # a BOM first
+    assert parse_shot_file(path, PLATE, TC25) == [Shot(1, 0, 59)]
+
+
+def test_edl_reel_names_are_cmx_reels_and_a_clip_past_midnight_is_refused(tmp_path):
+    path = tmp_path / "cut.edl"
+    write_cut_list(path, SHOTS, TC25, "my take #2 (v3).mov", "/footage/my take #2 (v3).mov")
+    assert {reel for _, reel, *_ in events(path.read_text())} == {"mytake2v"}  # 8 letters or digits, no spaces
+    assert [c.metadata["cmx_3600"]["reel"] for c in otio.adapters.read_from_file(str(path)).find_clips()] == [
+        "mytake2v"] * 3  # reference: OpenTimelineIO's cmx_3600 reader
+    late = ClipTimecode(25, "23:59:59:00")
+    with pytest.raises(FramestyleError, match=r"cut.edl: the clip's timecode runs past midnight \(23:59:59:00 to "
+                                              r"00:00:01:09\), which an EDL cannot hold; write an .otio file"):
+        write_cut_list(path, SHOTS, late, "dusk", "/footage/dusk.mov")
+    write_cut_list(tmp_path / "cut.otio", SHOTS, late, "dusk", "/footage/dusk.mov")
+    assert parse_shot_file(tmp_path / "cut.otio", PLATE, late) == SHOTS
 
 
 def test_otio_written_reads_back_with_its_start_and_shot_numbers(tmp_path):
@@ -202,8 +231,6 @@ def bad_edl(tmp_path, rows):
          "the event recorded from 01:00:00:00 starts before the event listed above it ends"),
         ([("A", "10:00:00:00", "10:00:00:28", "01:00:00:00", "01:00:00:28")], ClipTimecode(24, "01:00:00:00"),
          "not a readable CMX 3600 EDL at 24 frames/s"),
-        ([("A", "10:00:00;00", "10:00:02;10", "01:00:00;00", "01:00:02;10")], TC25,
-         "not a readable CMX 3600 EDL at 25 frames/s"),
     ],
 )
 def test_cut_lists_that_do_not_fit_the_clip_are_named_in_one_line(tmp_path, rows, clock, words):

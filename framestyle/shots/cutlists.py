@@ -41,6 +41,7 @@ if TYPE_CHECKING:
 # layout (the cmx_3600 adapter is a plugin package since OpenTimelineIO 0.16).
 _ADAPTERS = {".edl": "cmx_3600", ".otio": "otio_json"}
 _KIND = {"cmx_3600": "CMX 3600 EDL", "otio_json": "OpenTimelineIO file"}
+_TIMECODE = re.compile(r"\b(\d\d:\d\d:\d\d)[:;.,](\d\d)\b")  # HH:MM:SS then the frames' separator
 # The cmx_3600 adapter's error for an event out of record order or overlapping the one before.
 _OVERLAP = re.compile(r"Overlapping record in value: (\S+)")
 
@@ -149,7 +150,14 @@ def _record_ranges(path: str | os.PathLike, timecode: ClipTimecode) -> list[tupl
     kind = _KIND[adapter]
     options = {"rate": float(rate)} if adapter == "cmx_3600" else {}
     try:
-        timeline = otio.adapters.read_from_file(str(path), adapter_name=adapter, **options)
+        if adapter == "cmx_3600" and ntsc_nominal(timecode.fps) not in (30, 60) and _cut_drop_frame(path):
+            raise FramestyleError(f"{path}: the cut list counts drop-frame, which exists only at 29.97 and 59.94 "
+                                  f"frames/s; the clip is at {timecode.fps:g}")
+        if adapter == "cmx_3600":  # as text: the header decides how its timecodes count
+            text = _edl_as_counted(Path(path).read_text(encoding="utf-8-sig", errors="replace"))
+            timeline = otio.adapters.read_from_string(text, adapter_name=adapter, **options)
+        else:
+            timeline = otio.adapters.read_from_file(str(path), adapter_name=adapter, **options)
     except OSError as exc:
         raise FramestyleError(f"{path}: cannot read the cut list ({exc.strerror or exc})") from None
     except (otio.exceptions.OTIOError, ValueError, KeyError) as exc:
@@ -252,16 +260,35 @@ def write_cut_list(path: str | os.PathLike, shots: Sequence[Shot], timecode: Cli
     if ntsc_nominal(timecode.fps) in (30, 60) and not timecode.drop_frame:
         raise FramestyleError(f"{path}: the EDL writer labels {timecode.fps:g} frames/s as drop-frame but this clip's"
                               " timecode is non-drop; write an .otio file instead")
+    if timecode.label(0) > timecode.label(shots[-1].end):  # the labels wrap at 24:00:00:00
+        raise FramestyleError(f"{path}: the clip's timecode runs past midnight ({timecode.label(0)} to "
+                              f"{timecode.label(shots[-1].end)}), which an EDL cannot hold; write an .otio file, or "
+                              f"give an earlier --start-timecode")
     # The adapter places events on the record timeline through the track's own range
     # (its reader stores a record start of 01:00:00:00 as a track starting at -01:00:00:00),
     # not through the timeline's global start time: give it the record start that way.
     edl = copy.deepcopy(timeline)
     track = edl.tracks[0]
+    reel = re.sub(r"[^A-Za-z0-9]", "", Path(name).stem)[:8] or "AX"  # CMX 3600: 8 letters or digits, no spaces
+    for clip in track:
+        clip.metadata["cmx_3600"] = {"reel": reel}
     track.source_range = otio.opentime.TimeRange(-timeline.global_start_time, track.duration())
     text = otio.adapters.write_to_string(edl, adapter_name=adapter, rate=float(exact_rate(timecode.fps)))
     title, _, events = text.partition("\n")
     fcm = "FCM: DROP FRAME" if timecode.drop_frame else "FCM: NON-DROP FRAME"
     write_bytes(path, f"{title}\n{fcm}\n{events}".encode())
+
+
+def _edl_as_counted(text: str) -> str:
+    """An EDL's text with every timecode's last separator saying what its ``FCM:`` line says
+    (``;`` drop-frame, ``:`` non-drop), for the cmx_3600 adapter, which counts each timecode
+    by its separator alone: a drop-frame list written with ``:`` (common) was read 108 frames
+    an hour late. A UTF-8 byte-order mark is already gone (read as ``utf-8-sig``)."""
+    mode = re.search(r"^FCM:\s*(NON-DROP|DROP)", text, re.MULTILINE | re.IGNORECASE)
+    if mode is None:
+        return text
+    separator = ";" if mode[1].upper() == "DROP" else ":"
+    return _TIMECODE.sub(lambda m: f"{m[1]}{separator}{m[2]}", text)
 
 
 def _cut_drop_frame(path: str | os.PathLike) -> bool | None:
