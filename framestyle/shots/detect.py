@@ -18,7 +18,10 @@ out from the changes around it:
   and at least ``peak_ratio`` times every other step within ``peak_window`` frames: the
   sliding-window test of Yeo & Liu (1995). Fast pans, camera shake and objects crossing the
   frame give large steps, but many in a row, so none stands out; a one-frame flash gives
-  two equal steps (into it and out of it), so neither does.
+  two equal steps (into it and out of it), so neither does. A shot of a few frames between
+  two others (an insert) gives the same pair of steps, but the picture does not come back
+  after it: two steps that stand out together, around frames unlike each other, are its
+  cuts (:func:`_inserts`).
 * **Gradual transitions** (fades through black, cross-dissolves) follow the twin-comparison
   idea of Zhang, Kankanhalli & Smoliar (1993): a transition is a stretch of frames whose
   *two ends* differ by more than ``gradual_threshold``, though no single step does; here
@@ -197,6 +200,7 @@ def detect_shots(
         return [Shot(1, 0, 0)]
     steps = signature_distance(sigs[1:], sigs[:-1])
     cuts = np.flatnonzero(_cut_mask(steps, cut_threshold, peak_ratio, peak_window)) + 1
+    cuts = np.union1d(cuts, _inserts(sigs, steps, cut_threshold, peak_ratio, peak_window)).astype(np.intp)
     boundaries = [(int(c), float(steps[c - 1])) for c in cuts]
     blank = sigs[:, :_COLOURS].max(axis=1) >= _BLANK_SHARE
     up_to, from_ = _ends(sigs, cuts)
@@ -227,6 +231,31 @@ def _cut_mask(steps: np.ndarray, threshold: float, ratio: float, window: int) ->
     """Mark the steps that are hard cuts (see :func:`detect_shots`)."""
     before, after = _running_max(steps, window)
     return (steps >= threshold) & (steps >= ratio * np.maximum(before[:-1], after[1:]))
+
+
+def _inserts(sigs: np.ndarray, steps: np.ndarray, threshold: float, ratio: float, window: int) -> np.ndarray:
+    """Cuts around a shot shorter than ``window`` frames between two others (a flash-frame
+    insert, a music video's rapid cutting), which the sliding-window test misses: its two
+    steps stand out together, neither from the other. They are told from a flash by what
+    is on either side: after a flash the picture comes back, after an insert it does not.
+    For steps ``i < j`` under ``window`` apart that are both at least ``threshold`` and
+    ``ratio`` times every other step within ``window`` of them (those between them too),
+    and whose outer frames ``i`` and ``j + 1`` differ by ``ratio`` times as much as that many
+    ordinary steps (motion adds up over them), returns the first frames after both
+    (``i + 1``, ``j + 1``)."""
+    found = []
+    for i in np.flatnonzero(steps >= threshold):
+        for j in range(i + 1, min(i + window, len(steps))):
+            if steps[j] < threshold:
+                continue
+            around = np.delete(steps[max(0, i - window):j + window + 1], [i - max(0, i - window), j - max(0, i - window)])
+            others = around.max(initial=0.0)
+            change = float(signature_distance(sigs[i], sigs[j + 1]))
+            span = j + 1 - i  # frames i and j + 1 are this many ordinary steps apart
+            if min(steps[i], steps[j]) >= max(threshold, ratio * others) and change >= max(threshold,
+                                                                                     ratio * others * span):
+                found += [i + 1, j + 1]
+    return np.asarray(found, np.intp)
 
 
 def _running_max(values: np.ndarray, width: int) -> tuple[np.ndarray, np.ndarray]:
