@@ -120,6 +120,30 @@ def test_a_drop_frame_edl_for_a_25_fps_clip_and_an_edl_with_a_byte_order_mark(tm
     assert parse_shot_file(path, PLATE, TC25) == [Shot(1, 0, 59)]
 
 
+def test_comments_above_the_first_event_are_read_past_and_a_nested_stack_is_refused(tmp_path):
+    path = tmp_path / "cut.edl"
+    path.write_text("TITLE: night\nFCM: NON-DROP FRAME\n\n* COMMENT: reel list v2\n"
+                    "001  A001C003 V     C        10:00:00:00 10:00:00:10 01:00:00:00 01:00:00:10\n"
+                    "* FROM CLIP NAME: A001C003.mov\n"
+                    "002  A001C007 V     C        11:00:00:00 11:00:02:00 01:00:00:10 01:00:02:10\n", encoding="utf-8")
+    assert parse_shot_file(path, PLATE, TC25) == [Shot(1, 0, 9), Shot(2, 10, 59)]
+    rate = 25.0
+    timeline = otio.schema.Timeline(global_start_time=otio.opentime.RationalTime(90000, rate))
+    track, nest, inner = otio.schema.Track(), otio.schema.Stack(name="nest"), otio.schema.Track()
+
+    def clip(length):
+        return otio.schema.Clip(source_range=otio.opentime.TimeRange(otio.opentime.RationalTime(0, rate),
+                                                                     otio.opentime.RationalTime(length, rate)))
+    track.append(clip(20))
+    inner.extend([clip(20), clip(20)])
+    nest.append(inner)
+    track.append(nest)
+    timeline.tracks.append(track)
+    otio.adapters.write_to_file(timeline, str(tmp_path / "nested.otio"))
+    with pytest.raises(FramestyleError, match=r"nested.otio: holds a nested stack \(nest, a compound clip\)"):
+        parse_shot_file(tmp_path / "nested.otio", PLATE, TC25)
+
+
 def test_edl_reel_names_are_cmx_reels_and_a_clip_past_midnight_is_refused(tmp_path):
     path = tmp_path / "cut.edl"
     write_cut_list(path, SHOTS, TC25, "my take #2 (v3).mov", "/footage/my take #2 (v3).mov")

@@ -178,6 +178,9 @@ def _record_ranges(path: str | os.PathLike, timecode: ClipTimecode) -> list[tupl
     for item in tracks[0]:
         if isinstance(item, otio.schema.Transition):
             continue
+        if isinstance(item, otio.schema.Stack):  # its own cuts would be lost in one event
+            raise FramestyleError(f"{path}: holds a nested stack ({item.name or 'unnamed'}, a compound clip); "
+                                  f"flatten it in the editing program and export the cut again")
         record = item.transformed_time_range(item.trimmed_range(), timeline.tracks)
         if exact_rate(record.duration.rate) != rate:
             raise FramestyleError(f"{path}: the cut is at {record.duration.rate:g} frames/s but the clip is at"
@@ -283,7 +286,13 @@ def _edl_as_counted(text: str) -> str:
     """An EDL's text with every timecode's last separator saying what its ``FCM:`` line says
     (``;`` drop-frame, ``:`` non-drop), for the cmx_3600 adapter, which counts each timecode
     by its separator alone: a drop-frame list written with ``:`` (common) was read 108 frames
-    an hour late. A UTF-8 byte-order mark is already gone (read as ``utf-8-sig``)."""
+    an hour late. Comment lines (``*``) above the first event, which the adapter cannot
+    place, are left out; a UTF-8 byte-order mark is already gone (read as ``utf-8-sig``)."""
+    first_event = re.search(r"^\s*\d+\s", text, re.MULTILINE)  # comments above it stop the adapter
+    if first_event:
+        head = text[:first_event.start()]
+        text = "".join(line for line in head.splitlines(keepends=True) if not line.lstrip().startswith("*")) + \
+            text[first_event.start():]
     mode = re.search(r"^FCM:\s*(NON-DROP|DROP)", text, re.MULTILINE | re.IGNORECASE)
     if mode is None:
         return text
