@@ -147,6 +147,16 @@ def test_fade_through_black_gives_one_boundary_inside_the_fade():
     assert abs(starts[1] - 39.5) <= 3  # near the black point, where the shots meet
 
 
+@pytest.mark.parametrize("length", [12, 24])
+def test_a_fade_in_at_the_clips_start_or_out_at_its_end_is_no_boundary(length):
+    # nothing is on the far side of the black: the fade opens (closes) the one shot
+    a = shot_frames("sea", 1, 0, 50)
+    fade_in = [a[k] * (k / length) for k in range(length)] + a[length:]
+    assert starts_of(fade_in) == [0]
+    fade_out = a[:50 - length] + [a[50 - length + k] * (1 - (k + 1) / length) for k in range(length)]
+    assert starts_of(fade_out) == [0]
+
+
 def test_fade_out_hold_on_black_and_fade_in_is_one_transition():
     a, b = shot_frames("forest", 5, 0, 40), shot_frames("dusk", 6, 0, 40)
     black = [np.zeros((H, W, 3), np.float32)] * 8

@@ -31,7 +31,8 @@ out from the changes around it:
   Weymouth (1995): every frame inside is a mix of the two ends (a dissolve), or of an end
   and the blank frames between (a fade through black), the mix moving steadily from one
   end to the other. A pan's or a zoom's middle frame is no such mix. The boundary goes to
-  the middle of a fade's blank frames, or to a dissolve's frame least like either end.
+  the middle of a fade's blank frames, or to a dissolve's frame least like either end; a
+  fade in at the clip's start or out at its end has no shot on its far side, and none.
 
 References
 ----------
@@ -209,7 +210,9 @@ def detect_shots(
             sigs, steps, up_to, from_, blank, first, last,
             gradual_threshold, peak_ratio, max_transition_length, blend_tolerance,
         ):
-            boundaries.append((_transition_frame(sigs, up_to[start], from_[end], start, end, blank), strength))
+            frame = _transition_frame(sigs, up_to[start], from_[end], start, end, blank)
+            if not (blank[:frame].all() or blank[frame:].all()):  # a fade in from (out to) black at the clip's
+                boundaries.append((frame, strength))               # start (end) opens (closes) its shot
     return shots_from_boundaries(_space_boundaries(boundaries, min_shot_length), n_frames)
 
 
