@@ -413,7 +413,7 @@ def shots_command(
     found = _run(apply_overrides, found, source.numbers, add_cut or (), remove_cut or ())
     name = source.path.resolve().stem if source.kind == "video" else source.path.resolve().name
     for path in filter(None, (edl, otio_file)):
-        _run(write_cut_list, path, found, timecode, name, str(source.path.resolve()))
+        _run(write_cut_list, path, found, timecode, name, str(source.path.resolve()), source)
         typer.echo(f"wrote {path}", err=True)
     if json_out:
         typer.echo(json.dumps(shot_entries(found, source.numbers, timecode)))

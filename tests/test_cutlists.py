@@ -170,6 +170,31 @@ def test_otio_written_reads_back_with_its_start_and_shot_numbers(tmp_path):
     assert parse_shot_file(path, PLATE, TC25) == SHOTS
 
 
+def test_otio_of_a_frame_folder_refers_to_its_frames_as_an_image_sequence(tmp_path):
+    import cv2
+    import numpy as np
+
+    from framestyle import io
+
+    plate = tmp_path / "harbour plate"
+    plate.mkdir()
+    for number in PLATE:
+        cv2.imwrite(str(plate / f"hp_{number:05d}.png"), np.full((4, 6, 3), number % 256, np.uint8))
+    source = io.open_source(plate)
+    write_cut_list(tmp_path / "cut.otio", SHOTS, TC25, "harbour plate", str(plate), source)
+    clips = list(otio.adapters.read_from_file(str(tmp_path / "cut.otio")).find_clips())
+    reference = clips[1].media_reference  # reference: OpenTimelineIO's ImageSequenceReference arithmetic
+    assert isinstance(reference, otio.schema.ImageSequenceReference)
+    assert reference.frame_for_time(clips[1].source_range.start_time) == 1011  # shot 2 starts at position 10
+    assert reference.target_url_for_image_number(10) == (plate / "hp_01011.png").as_uri()
+    assert parse_shot_file(tmp_path / "cut.otio", PLATE, TC25) == SHOTS
+    (plate / "hp_01030.png").unlink()  # a gap: the folder itself, as one reference
+    write_cut_list(tmp_path / "gap.otio", shots_from_boundaries([10, 35], 59), TC25, "harbour plate", str(plate),
+                   io.open_source(plate))
+    clip = otio.adapters.read_from_file(str(tmp_path / "gap.otio")).find_clips()[0]
+    assert clip.media_reference.target_url == str(plate)
+
+
 def test_timeline_of_shots_matches_source_and_record():
     timeline = shots_timeline(SHOTS, TC25, "harbour_plate", "/footage/harbour_plate.mov")
     clip = list(timeline.find_clips())[1]

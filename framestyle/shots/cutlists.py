@@ -197,7 +197,8 @@ def _record_ranges(path: str | os.PathLike, timecode: ClipTimecode) -> list[tupl
     return events
 
 
-def shots_timeline(shots: Sequence[Shot], timecode: ClipTimecode, name: str, media: str) -> otio.schema.Timeline:
+def shots_timeline(shots: Sequence[Shot], timecode: ClipTimecode, name: str, media: str,
+                   sequence: io.FrameSource | None = None) -> otio.schema.Timeline:
     """The shots as an OpenTimelineIO timeline: one clip per shot on one video track.
 
     Each clip's source range is the shot's frames at the clip's timecode (first frame =
@@ -211,6 +212,9 @@ def shots_timeline(shots: Sequence[Shot], timecode: ClipTimecode, name: str, med
     timecode : the clip's rate and start timecode
     name : the input's name (the timeline's, the clips' and, shortened, the EDL reel name)
     media : the input's path, as the clips' media reference
+    sequence : the input, when it is a folder of frames: the clips then refer to its frame
+        files as an image sequence (``ImageSequenceReference``: prefix, number, suffix), which
+        editing programs link to, where its names and numbering allow
     """
     check_contiguous(shots)
     if not name:
@@ -227,7 +231,7 @@ def shots_timeline(shots: Sequence[Shot], timecode: ClipTimecode, name: str, med
     for shot in shots:
         track.append(otio.schema.Clip(
             name=name,
-            media_reference=otio.schema.ExternalReference(target_url=media, available_range=frames(first, count)),
+            media_reference=_media_reference(media, sequence, frames(first, count)),
             source_range=frames(first + shot.start, shot.length),
             metadata={"framestyle": {"shot": shot.index}},
         ))
@@ -235,8 +239,24 @@ def shots_timeline(shots: Sequence[Shot], timecode: ClipTimecode, name: str, med
     return timeline
 
 
+def _media_reference(media: str, sequence: io.FrameSource | None,
+                     available: otio.opentime.TimeRange) -> otio.core.MediaReference:
+    """The clips' media: the frame files of ``sequence`` as an image sequence when they are
+    numbered without gaps and named alike (prefix, digits of one width or unpadded, suffix),
+    else ``media`` as one external file or folder."""
+    if sequence is not None and sequence.kind == "folder" and not sequence.gaps:
+        parts = [re.fullmatch(r"(.*?)(\d+)(\.[^.]+)", name) for name in sequence.files]
+        widths = {len(m[2]) for m in parts}
+        if len({(m[1], m[3]) for m in parts}) == 1 and (len(widths) == 1 or all(m[2][0] != "0" for m in parts)):
+            return otio.schema.ImageSequenceReference(
+                target_url_base=Path(media).as_uri() + "/", name_prefix=parts[0][1], name_suffix=parts[0][3],
+                start_frame=sequence.numbers[0], frame_step=1, rate=available.duration.rate,
+                frame_zero_padding=widths.pop() if len(widths) == 1 else 0, available_range=available)
+    return otio.schema.ExternalReference(target_url=media, available_range=available)
+
+
 def write_cut_list(path: str | os.PathLike, shots: Sequence[Shot], timecode: ClipTimecode, name: str,
-                   media: str) -> None:
+                   media: str, sequence: io.FrameSource | None = None) -> None:
     """Write the shots (see :func:`shots_timeline`) as a CMX 3600 EDL or an OpenTimelineIO file, atomically.
 
     The extension chooses: ``.edl`` or ``.otio``. The EDL header gets the frame-count mode
@@ -256,7 +276,7 @@ def write_cut_list(path: str | os.PathLike, shots: Sequence[Shot], timecode: Cli
     adapter = _ADAPTERS.get(Path(path).suffix.lower())
     if adapter is None:
         raise FramestyleError(f"{path}: a cut list is written as .edl (CMX 3600) or .otio (OpenTimelineIO)")
-    timeline = shots_timeline(shots, timecode, name, media)
+    timeline = shots_timeline(shots, timecode, name, media, sequence)
     if adapter == "otio_json":
         write_bytes(path, otio.adapters.write_to_string(timeline, adapter_name=adapter).encode())
         return
