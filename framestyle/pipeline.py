@@ -170,9 +170,6 @@ def plan_render(
         manifest = None if restart else store.manifest()
         if manifest is not None:
             check_resume(manifest, settings, inputs, None if keep_shot_list else shot_list, store.out)
-            for change in environment_changes(manifest, environment(net)):
-                progress("warning", message=f"resumed under {change}: the frames rendered now keep the look but "
-                                            f"may place their strokes differently from an uninterrupted render")
             shot_list_ = tuple(Shot(s["shot"], s["start"], s["end"]) for s in manifest["shots"])
         else:
             shot_list_ = tuple(find_shots(source, settings, shot_file))
@@ -212,6 +209,10 @@ def plan_render(
     chosen = [s for s in shot_list_ if s.index in wanted]
     names = plan.names
     done = sum(1 for s in chosen for i in range(s.start, s.end + 1) if names[i] in finished)
+    if manifest is not None and done < sum(s.length for s in chosen):  # said only where frames remain
+        for change in environment_changes(manifest, environment(net)):
+            progress("warning", message=f"resumed under {change}: the frames rendered now keep the look but "
+                                        f"may place their strokes differently from an uninterrupted render")
     size = working_size(source.width, source.height, settings.width, net.min_side)
     progress("start", frames=sum(s.length for s in chosen), shots=len(chosen), done=done, size=size)
     refresh_report(plan.out, plan.source, plan.settings, plan.timecode)

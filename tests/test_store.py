@@ -265,6 +265,24 @@ def test_progress_on_resume_starts_from_the_frames_already_done(small_clip, tmp_
     assert sum(1 for e, _ in events if e == "frame") == 10
 
 
+def test_a_resume_under_another_setup_says_so_only_where_frames_remain(small_clip, tmp_path, monkeypatch):
+    out = tmp_path / "out"
+    pipeline.render(small_clip, out, fast_settings(iterations=2), shots="1")
+    real = pipeline.environment
+    monkeypatch.setattr(pipeline, "environment", lambda net: {**real(net), "torch threads": 99})
+
+    def warnings(**options):
+        events = []
+        pipeline.render(small_clip, out, fast_settings(iterations=2), progress=lambda e, **i: events.append((e, i)),
+                        **options)
+        return [i["message"] for e, i in events if e == "warning" and "resumed under" in i["message"]]
+
+    assert warnings(shots="1") == []  # shot 1 is finished: nothing renders under the new setup
+    said = warnings()
+    assert len(said) == 1 and said[0].startswith("resumed under torch threads 99 (was ")
+    assert "may place their strokes differently" in said[0]
+
+
 def test_a_lock_that_cannot_be_written_names_its_file_and_is_let_go(tmp_path, monkeypatch):
     lock = store.Lock(tmp_path / "locks" / "shot_001.lock", "shot 1")
 
