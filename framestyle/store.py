@@ -449,14 +449,16 @@ class ShotStore:
         _remove_temporary(self._state)
         _remove_temporary(self.store._flash_path("render", self.shot).parent)
         _remove_temporary(self.store.out, set(names).__contains__)
-        problems = []
+        problems, forgotten = [], set()
         for name in list(self.record["frames"]):
             path = self.store.out / name
             if not _reads_back(path):
                 del self.record["frames"][name]
+                forgotten.add(name)
                 problems.append(f"{name} is recorded but {'missing' if not path.exists() else 'unreadable'}; "
                                 f"rendering it again")
-        unknown = [n for n in names if n not in self.record["frames"] and (self.store.out / n).exists()]
+        unknown = [n for n in names if n not in self.record["frames"] and n not in forgotten
+                   and (self.store.out / n).exists()]  # an unreadable frame is said once, above
         if unknown:
             problems.append(f"{len(unknown)} frame(s) of shot {self.shot} on disk are not in its record "
                             f"({unknown[0]}{', ...' if len(unknown) > 1 else ''}); rendering them again")
