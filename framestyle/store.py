@@ -591,9 +591,12 @@ def input_fingerprints(source: io.FrameSource, settings: Settings) -> dict:
     variants = [variant for _, variant in settings.looks()]
     styles = {p for v in variants for p in v.styles}
     mattes = {v.matte for v in variants if v.matte and v.matte != "alpha"}
+    files = io.file_digests(source)
     return {
         "input": str(Path(source.path).resolve()),
-        "input_fingerprint": io.fingerprint(source),
+        "input_fingerprint": io.fingerprint(source, files),
+        # each frame file's, short: a resume refused for changed frames names them
+        "input_files": {name: digest[:16] for name, digest in files.items()} if source.kind == "folder" else {},
         "styles": {p: file_hash(Path(p)) for p in sorted(styles)},
         "mattes": {m: io.fingerprint(io.open_source(Path(m))) for m in sorted(mattes)},
     }
@@ -629,11 +632,23 @@ def check_resume(manifest: dict, settings: Settings, inputs: dict, shot_list: di
         )
     for key, what in (("input_fingerprint", "input frames"), ("styles", "style image(s)"), ("mattes", "mattes")):
         if manifest["inputs"][key] != inputs[key]:
-            raise FramestyleError(f"{out}: the {what} changed since this render started; use --restart to start over")
+            which = _changed_files(manifest["inputs"].get("input_files"), inputs["input_files"]) if key == \
+                "input_fingerprint" else ""
+            raise FramestyleError(f"{out}: the {what} changed since this render started{which}; use --restart to "
+                                  f"start over")
     if shot_list is not None and shot_list != manifest["shot_list"]:
         was = manifest["shot_list"]["file"] or "detected shots"
         raise FramestyleError(f"{out}: was rendered with another shot list ({was}); give the same --shot-list, "
                               f"a new --out, or --restart to start over")
+
+
+def _changed_files(old: dict | None, new: dict) -> str:
+    """`` (NAME and N more)``: the frame files whose content differs, or that came or went,
+    between two ``input_files`` records; "" where either has none (a video, an older render)."""
+    if not old or not new:
+        return ""
+    changed = [name for name in new if old.get(name) != new[name]] + [name for name in old if name not in new]
+    return f" ({changed[0]}{f' and {len(changed) - 1} more' if len(changed) > 1 else ''})" if changed else ""
 
 
 def environment_changes(manifest: dict, environment: dict) -> list[str]:

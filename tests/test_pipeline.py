@@ -90,7 +90,10 @@ def test_a_changed_input_is_refused(small_clip, tmp_path):
     render(clip, out, fast_settings(), shots="2")
     image = cv2.imread(str(clip / "take_001.png"))
     cv2.imwrite(str(clip / "take_001.png"), 255 - image)
-    with pytest.raises(FramestyleError, match="input frames changed"):
+    with pytest.raises(FramestyleError, match=r"input frames changed since this render started \(take_001.png\); "):
+        render(clip, out, fast_settings(), shots="2")
+    (clip / "take_020.png").unlink()  # a frame gone too: each is named, the first of them
+    with pytest.raises(FramestyleError, match=r"input frames changed .* \(take_001.png and 1 more\)"):
         render(clip, out, fast_settings(), shots="2")
 
 
