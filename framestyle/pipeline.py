@@ -863,9 +863,9 @@ def preview(input_path: Path, out: Path, settings: Settings, every: int, *, widt
                       - {io.frame_name(source, i) for i in chosen})
         # sheets of shots this preview's shot list does not have (or, previewing every shot,
         # of any shot) are an earlier preview's: the report would show them as this one's
+        written = {sheet.name for sheet in sheets}
         stale = [Path(name).name for name in Store(out).preview_sheets()]
-        folder.remove(name for name in stale if name not in {sheet.name for sheet in sheets}
-                      and (not shots or _sheet_shot(name) > len(shot_list)))
+        folder.remove(name for name in stale if name not in written and (not shots or _sheet_shot(name) > len(shot_list)))
     warning = preview_warning(analyse_source(source, clip_timecode(source, settings, shot_file)).to_dict())
     if warning:
         progress("warning", message=warning)

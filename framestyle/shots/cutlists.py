@@ -150,12 +150,12 @@ def _record_ranges(path: str | os.PathLike, timecode: ClipTimecode) -> list[tupl
     kind = _KIND[adapter]
     options = {"rate": float(rate)} if adapter == "cmx_3600" else {}
     try:
-        if adapter == "cmx_3600" and ntsc_nominal(timecode.fps) not in (30, 60) and _cut_drop_frame(path):
-            raise FramestyleError(f"{path}: the cut list counts drop-frame, which exists only at 29.97 and 59.94 "
-                                  f"frames/s; the clip is at {timecode.fps:g}")
         if adapter == "cmx_3600":  # as text: the header decides how its timecodes count
-            text = _edl_as_counted(Path(path).read_text(encoding="utf-8-sig", errors="replace"))
-            timeline = otio.adapters.read_from_string(text, adapter_name=adapter, **options)
+            text = Path(path).read_text(encoding="utf-8-sig", errors="replace")
+            if ntsc_nominal(timecode.fps) not in (30, 60) and _edl_drop_frame(text):
+                raise FramestyleError(f"{path}: the cut list counts drop-frame, which exists only at 29.97 and 59.94 "
+                                      f"frames/s; the clip is at {timecode.fps:g}")
+            timeline = otio.adapters.read_from_string(_edl_as_counted(text), adapter_name=adapter, **options)
         else:
             timeline = otio.adapters.read_from_file(str(path), adapter_name=adapter, **options)
     except OSError as exc:
@@ -313,11 +313,26 @@ def _edl_as_counted(text: str) -> str:
         head = text[:first_event.start()]
         text = "".join(line for line in head.splitlines(keepends=True) if not line.lstrip().startswith("*")) + \
             text[first_event.start():]
-    mode = re.search(r"^FCM:\s*(NON-DROP|DROP)", text, re.MULTILINE | re.IGNORECASE)
-    if mode is None:
+    drop = _fcm_drop_frame(text)
+    if drop is None:
         return text
-    separator = ";" if mode[1].upper() == "DROP" else ":"
-    return _TIMECODE.sub(lambda m: f"{m[1]}{separator}{m[2]}", text)
+    return _TIMECODE.sub(lambda m: f"{m[1]}{';' if drop else ':'}{m[2]}", text)
+
+
+def _fcm_drop_frame(text: str) -> bool | None:
+    """What an EDL's ``FCM:`` line says: drop-frame (True), non-drop (False), or None without one."""
+    mode = re.search(r"^FCM:\s*(NON-DROP|DROP)", text, re.MULTILINE | re.IGNORECASE)
+    return None if mode is None else mode[1].upper() == "DROP"
+
+
+def _edl_drop_frame(text: str) -> bool | None:
+    """Whether an EDL counts drop-frame: its ``FCM:`` line, else its first event's record
+    timecode (``;`` before the frames: drop-frame); None where neither says."""
+    drop = _fcm_drop_frame(text)
+    if drop is not None:
+        return drop
+    event = re.search(r"^\d+\s.*\d\d:\d\d:\d\d([:;.,])\d\d\s*$", text, re.MULTILINE)
+    return None if event is None else event[1] in ";,"
 
 
 def _cut_drop_frame(path: str | os.PathLike) -> bool | None:
@@ -334,12 +349,7 @@ def _cut_drop_frame(path: str | os.PathLike) -> bool | None:
     if cut_list_adapter(path) == "otio_json":
         timeline = otio.adapters.read_from_file(str(path), adapter_name="otio_json")
         return timeline.metadata.get("framestyle", {}).get("drop_frame")
-    text = Path(path).read_text(encoding="utf-8-sig", errors="replace")
-    mode = re.search(r"^FCM:\s*(NON-DROP|DROP)", text, re.MULTILINE | re.IGNORECASE)
-    if mode:
-        return mode[1].upper() == "DROP"
-    event = re.search(r"^\d+\s.*\d\d:\d\d:\d\d([:;.,])\d\d\s*$", text, re.MULTILINE)
-    return None if event is None else event[1] in ";,"
+    return _edl_drop_frame(Path(path).read_text(encoding="utf-8-sig", errors="replace"))
 
 
 def _frames(time: otio.opentime.RationalTime, rate) -> int:

@@ -139,11 +139,12 @@ class _FrozenConv(torch.autograd.Function):
     @staticmethod
     def backward(ctx, grad: torch.Tensor):
         (weight,) = ctx.saved_tensors
+        grad = grad.to(weight.dtype)
         if ctx.groups == 1 and ctx.stride == 1 and weight.shape[1] <= _FEW_CHANNELS:
-            return _input_grad_by_taps(grad.to(weight.dtype), weight, ctx.padding, ctx.shape[-2:]), None, None, None, None, None
+            return _input_grad_by_taps(grad, weight, ctx.padding, ctx.shape[-2:]), None, None, None, None, None
         stand_in = weight.new_empty(ctx.shape)
         dx = torch.ops.aten.convolution_backward(
-            grad.to(weight.dtype), stand_in, weight, None, (ctx.stride,) * 2, (ctx.padding,) * 2, (1, 1), False,
+            grad, stand_in, weight, None, (ctx.stride,) * 2, (ctx.padding,) * 2, (1, 1), False,
             (0, 0), ctx.groups, (True, False, False))[0]
         return dx, None, None, None, None, None
 
