@@ -117,7 +117,7 @@ def main() -> None:
         source = io.open_source(input_path)
         shot = Shot(1, 0, source.count - 1)
         net = network(settings)
-        size = working_size(source.width, source.height, settings.width, net.min_side)
+        size = working_size(source.width, source.height, settings.width, net.min_side, source.pixel_aspect)
         contents = np.stack([prepare_frame(f, size, settings, source.linear).content for _, f in io.iter_frames(source)])
 
         # frames on their own first: the process's one-off warm-up then lands outside the timed render

@@ -33,7 +33,7 @@ import torch
 from framestyle import io
 from framestyle.errors import FramestyleError
 from framestyle.finish.matte import Mattes
-from framestyle.finish.compose import to_display, with_alpha
+from framestyle.finish.compose import to_display
 from framestyle.imaging import from_8bit, to_8bit, to_array
 from framestyle.motion import FlowPair
 from framestyle.preview import contact_sheet, sample_frames
@@ -213,7 +213,7 @@ def plan_render(
         for change in environment_changes(manifest, environment(net)):
             progress("warning", message=f"resumed under {change}: the frames rendered now keep the look but "
                                         f"may place their strokes differently from an uninterrupted render")
-    size = working_size(source.width, source.height, settings.width, net.min_side)
+    size = working_size(source.width, source.height, settings.width, net.min_side, source.pixel_aspect)
     progress("start", frames=sum(s.length for s in chosen), shots=len(chosen), done=done, size=size)
     refresh_report(plan.out, plan.source, plan.settings, plan.timecode)
     return plan
@@ -290,7 +290,7 @@ def check_render(source: io.FrameSource, settings: Settings) -> FeatureNet:
     first = io.read_frame(source, 0)
     for shot, variant in settings.looks():  # the network and its device are the whole clip's (settings.CLIP_WIDE)
         try:
-            size = working_size(source.width, source.height, variant.width, net.min_side)
+            size = working_size(source.width, source.height, variant.width, net.min_side, source.pixel_aspect)
             frame = prepare_frame(first, size, variant, source.linear)
             build_look(net, variant, frame.display).targets(size)
             Mattes(source, variant.matte)
@@ -315,13 +315,13 @@ def setting_warnings(source: io.FrameSource, settings: Settings, min_side: int, 
     width past the source's, settings of the temporal chain with the chain off or in a
     preview (whose frames are stylised one by one), later passes' iterations with one pass,
     a style weighted 0 in the mix, a style image enlarged more than :data:`STYLE_ENLARGEMENT`
-    times beside the working frame, a matte softness without a matte, and matte frames paired
-    by position with input frames numbered otherwise."""
+    times beside the working frame, a style image with transparent areas, a matte softness
+    without a matte, and matte frames paired by position with input frames numbered otherwise."""
     defaults = Settings()
     messages = []
     for shot, variant in settings.looks():
         label = "" if shot is None else f" (shot {shot})"
-        size = working_size(source.width, source.height, variant.width, min_side)
+        size = working_size(source.width, source.height, variant.width, min_side, source.pixel_aspect)
         for key, asked in (("levels", variant.levels), ("warm_levels", variant.warm_levels)):
             used = len(level_sizes(size, asked or 1, min_side))
             if used < (asked or 1):
@@ -462,7 +462,8 @@ class _ShotRender:
         self.plan, self.work, self.settings, self.shot = plan, work, settings, shot
         self.source, self.names = plan.source, plan.names
         self.net = network(settings)
-        self.size = working_size(self.source.width, self.source.height, settings.width, self.net.min_side)
+        source = self.source
+        self.size = working_size(source.width, source.height, settings.width, self.net.min_side, source.pixel_aspect)
         self.params = solver_params(settings)
         self.offsets = sorted(settings.long_term) if settings.temporal else []
         self.passes = settings.passes if settings.temporal else 1
@@ -700,9 +701,9 @@ class _ShotRender:
         if name in self.work.record["frames"]:
             return
         matte = mattes(index, settings.matte_softness)
-        image = deliver(result, frame, settings, matte, self.source.linear)
-        if self.source.has_alpha:  # the footage's alpha passes through, as a compositor expects
-            image = with_alpha(image, io.read_alpha(self.source, index), premultiplied=self.source.linear)
+        # the footage's alpha passes through, as a compositor expects
+        alpha = io.read_alpha(self.source, index) if self.source.has_alpha else None
+        image = deliver(result, frame, settings, matte, self.source.linear, alpha)
         self.work.write_frame(name, image, _output_depth(self.source))
         self.work.finish_frame(name, {**entry, "seconds": round(seconds, 3), "finished": round(time.time(), 3)})
         self.work.store.log(f"frame {name} shot {self.shot.index}: {entry['iterations']} iterations, "
@@ -770,7 +771,7 @@ def _stylised_alone(source: io.FrameSource, net: FeatureNet, settings: Settings,
             looks[shot.index] = (shot_settings, shot_look(net, source, shot_settings, shot),
                                  Mattes(source, shot_settings.matte))
         shot_settings, look, mattes = looks[shot.index]
-        size = working_size(source.width, source.height, shot_settings.width, net.min_side)
+        size = working_size(source.width, source.height, shot_settings.width, net.min_side, source.pixel_aspect)
         frame = prepare_frame(raw, size, shot_settings, source.linear)
         result, stats = stylise(look, frame.content, index, [], solver_params(shot_settings), shot_settings.seed,
                                 temporal=False)
@@ -848,7 +849,7 @@ def preview(input_path: Path, out: Path, settings: Settings, every: int, *, widt
     shot_list = find_shots(source, settings, shot_file)
     wanted = parse_shot_selection(shots, len(shot_list)) if shots else [s.index for s in shot_list]
     chosen = {i: shot for shot in shot_list if shot.index in wanted for i in sample_frames(shot.start, shot.end, every)}
-    size = working_size(source.width, source.height, settings.width, net.min_side)
+    size = working_size(source.width, source.height, settings.width, net.min_side, source.pixel_aspect)
     progress("start", frames=len(chosen), shots=len(wanted), done=0, size=size)
     tiles: dict[int, list] = {n: [] for n in wanted}
     with Store(out).preview() as folder:

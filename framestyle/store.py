@@ -348,7 +348,7 @@ class Store:
             video = self.out / f"{stem}{VIDEO_SUFFIX}{suffix}"
             if wanted and not video.exists():
                 encode(self.frame_paths(names), timecode.fps, video, audio_from=audio,
-                       start_timecode=timecode.label(0))
+                       start_timecode=timecode.label(0), pixel_aspect=source.pixel_aspect)
                 self.log(f"wrote {video.name}")
             if wanted:
                 made.append(video)

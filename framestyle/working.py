@@ -8,7 +8,7 @@ from dataclasses import dataclass
 import numpy as np
 
 from framestyle.errors import FramestyleError
-from framestyle.finish.compose import finish, from_display, luma_image, to_display
+from framestyle.finish.compose import associated, from_display, luma_image, mix, paint, to_display, with_alpha
 from framestyle.imaging import resize
 from framestyle.settings import Settings
 
@@ -20,16 +20,20 @@ HD_WIDTH = 1280
 at most, strokes keep their detail in a 1:1 crop (see the README's "HD sources")."""
 
 
-def working_size(width: int, height: int, settings_width: int | None, min_side: int) -> tuple[int, int]:
-    """Working (w, h): ``settings_width`` wide (never wider than the source), same aspect.
+def working_size(width: int, height: int, settings_width: int | None, min_side: int,
+                 pixel_aspect: float = 1.0) -> tuple[int, int]:
+    """Working (w, h) in square pixels: ``settings_width`` wide (never wider than the source),
+    the picture's shape as shown.
 
     ``settings_width`` None is the default: :data:`WIDTH`, or :data:`HD_WIDTH` for a source
-    wider than :data:`HD_WIDTH`.
+    wider than :data:`HD_WIDTH`. ``pixel_aspect`` is the width over height of a source pixel
+    (an anamorphic video's SAR): the network then sees round shapes round and paints round
+    strokes, which come back squeezed into the source's pixels.
     """
     if settings_width is None:
         settings_width = HD_WIDTH if width > HD_WIDTH else WIDTH
     w = min(settings_width, width)
-    h = max(1, round(height * w / width))
+    h = max(1, round(height * w / (width * pixel_aspect)))
     if min(w, h) < min_side:
         raise FramestyleError(
             f"width {settings_width}: the working frame would be {w}×{h}, smaller than the "
@@ -42,11 +46,13 @@ def working_size(width: int, height: int, settings_width: int | None, min_side: 
 class Frame:
     """One source frame at both sizes.
 
+    source : (H, W, 3) the frame as read, in its own encoding (float samples as stored)
     display : (H, W, 3) display-referred source frame at source size (sRGB-encoded if the
-        source is linear light)
+        source is linear light, clipped to [0, 1])
     content : (h, w, 3) what the solver sees at working size (luma only in "luma" mode)
     """
 
+    source: np.ndarray
     display: np.ndarray
     content: np.ndarray
 
@@ -57,20 +63,39 @@ def prepare_frame(frame: np.ndarray, size: tuple[int, int], settings: Settings, 
     content = resize(display, size)
     if settings.colour == "luma":
         content = luma_image(content, settings.luma_standard)
-    return Frame(display, content)
+    return Frame(frame, display, content)
 
 
 def deliver(result: np.ndarray, frame: Frame, settings: Settings, matte: np.ndarray | None,
-            linear: bool) -> np.ndarray:
-    """The delivered frame at source size in the source's encoding.
+            linear: bool, alpha: np.ndarray | None = None) -> np.ndarray:
+    """The delivered frame at source size in the source's encoding, RGB or with ``alpha``.
+
+    The stylised picture is mixed with the footage by strength and matte
+    (:func:`~framestyle.finish.compose.mix`): display-referred sources in their own encoding,
+    with straight alpha; linear-light (float) ones in linear light with the frame as read, and
+    with alpha in associated colour, as OpenEXR stores it. Where the style does not apply
+    (strength 0, a black matte) the delivered samples are the source's own: a float frame's
+    values outside [0, 1] (highlights, negatives) and colour where its alpha is 0 (glows)
+    included, which the network's [0, 1] view cannot carry.
 
     Parameters
     ----------
     result : (h, w, 3) the solver's result at working size
     frame : the source frame it was made from
     matte : (H, W) softened matte at source size, or None
+    alpha : (H, W) the source frame's alpha in [0, 1], passed through; None without one
+
+    Returns
+    -------
+    (H, W, 3) or, with alpha, (H, W, 4) float32
     """
     h, w = frame.display.shape[:2]
-    final = finish(resize(result, (w, h)), frame.display, colour=settings.colour,
-                   standard=settings.luma_standard, strength=settings.strength, matte=matte)
-    return from_display(final, linear)
+    picture = paint(resize(result, (w, h)), frame.display, colour=settings.colour, standard=settings.luma_standard)
+    if not linear:
+        out = mix(frame.display, picture, settings.strength, matte)
+        return out if alpha is None else with_alpha(out, alpha)
+    picture = from_display(picture, linear)
+    if alpha is None:
+        return mix(frame.source, picture, settings.strength, matte)
+    colour = mix(associated(frame.source, alpha), picture * alpha[..., None], settings.strength, matte)
+    return with_alpha(colour, alpha)

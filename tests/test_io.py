@@ -20,7 +20,8 @@ import numpy as np
 import pytest
 
 from framestyle.errors import FramestyleError
-from framestyle.finish.compose import with_alpha
+from framestyle.finish.compose import associated
+from framestyle.working import working_size
 from framestyle.io import (
     fingerprint,
     frame_name,
@@ -271,8 +272,8 @@ def test_exr_rgba_file_laid_out_per_the_spec_reads_with_its_premultiplied_colour
     np.testing.assert_allclose(read_frame(source, 0), straight, rtol=1e-6)
     np.testing.assert_array_equal(read_alpha(source, 0), alpha)
     # delivered premultiplied again (an unstylised frame), the colour is the file's
-    delivered = with_alpha(read_frame(source, 0), read_alpha(source, 0), premultiplied=True)
-    np.testing.assert_allclose(delivered[alpha > 0], np.dstack([rgba[c] for c in "RGBA"])[alpha > 0], rtol=1e-6)
+    delivered = associated(read_frame(source, 0), read_alpha(source, 0))
+    np.testing.assert_allclose(delivered, np.dstack([rgba[c] for c in "RGB"]), rtol=1e-6)
 
 
 @pytest.mark.parametrize("depth", [np.uint8, np.uint16])
@@ -339,6 +340,29 @@ def test_a_broken_link_among_the_frames_is_refused_not_taken_for_a_gap(tmp_path)
     (tmp_path / "f_2.png").symlink_to(tmp_path / "gone.png")
     with pytest.raises(FramestyleError, match=r"f_2.png: a broken link \(to .*gone.png\)"):
         open_source(tmp_path)
+
+
+@pytest.mark.parametrize("x, y, width, height", [(8, 4, 12, 6), (-2, -1, 24, 10)])
+def test_an_exr_is_its_display_window_with_the_data_window_placed_in_it(tmp_path, x, y, width, height):
+    # OpenEXR keeps a data window (the pixels stored) and a display window (the picture); a
+    # renderer crops the data to what is lit, or stores overscan beyond the picture (Kainz,
+    # Bogart et al., "Technical Introduction to OpenEXR", from memory). Written with OpenImageIO.
+    import OpenImageIO as oiio
+
+    data = np.random.default_rng(5).random((height, width, 3)).astype(np.float32)
+    spec = oiio.ImageSpec(width, height, 3, oiio.FLOAT)
+    spec.x, spec.y = x, y
+    spec.full_x, spec.full_y, spec.full_width, spec.full_height = 0, 0, 20, 8
+    out = oiio.ImageOutput.create(str(tmp_path / "cg_0001.exr"))
+    assert out.open(str(tmp_path / "cg_0001.exr"), spec) and out.write_image(data) and out.close()
+    source = open_source(tmp_path)
+    assert (source.width, source.height) == (20, 8)
+    picture = np.zeros((8, 20, 3), np.float32)
+    for row in range(height):
+        for col in range(width):
+            if 0 <= y + row < 8 and 0 <= x + col < 20:
+                picture[y + row, x + col] = data[row, col]
+    np.testing.assert_array_equal(read_frame(source, 0), picture)
 
 
 def test_exr_half_float_luminance_file_reads_as_gray_rgb(tmp_path):
@@ -412,6 +436,66 @@ def test_variable_frame_rate_video_is_read_one_frame_per_decoded_frame(tmp_path)
     assert len(sequential) == 20
     for index, frame in iter_frames(source, start=12):
         np.testing.assert_array_equal(frame, sequential[index])
+    # delivered at its commonest rate, an edit rate (ffmpeg's average would be 20 frames in 1.1 s),
+    # and said: after the jump (0.3 s on the encoder's 1/24 s time base: 7 frame times) the frames
+    # stand 292 ms from their own times
+    assert source.fps == 24.0 and source.video.drift == pytest.approx(7 / 24)
+    assert [line for line in sequence_warnings(source) if "variable frame rate" in line and "292 ms" in line]
+
+
+def test_an_evenly_timed_video_gets_no_frame_rate_warning(clip):
+    assert open_source(clip).video.drift == 0 and sequence_warnings(open_source(clip)) == []
+
+
+@pytest.mark.parametrize("size, matrix", [("1280x720", "bt709"), ("640x480", "bt470bg")])
+def test_an_untagged_video_is_decoded_with_hds_or_sds_matrix(tmp_path, size, matrix):
+    # Encoded with BT.709 (HD) or BT.601 (SD) and its colour tags set to "unspecified" (2,
+    # ITU-T H.264 Table E-5): players decode untagged HD as BT.709 (common practice), ffmpeg's
+    # own default is BT.601. The two matrices put an orange 20-40 levels apart (ITU-R BT.709 and
+    # BT.601 luma weights), so a flat field tells them apart.
+    path = tmp_path / "untagged.mp4"
+    ffmpeg("-f", "lavfi", "-i", f"color=c=0xE6781E:size={size}:rate=10", "-frames:v", "1",
+           "-vf", f"scale=out_color_matrix={matrix}:out_range=tv,format=yuv420p", "-c:v", "libx264", "-qp", "0",
+           "-bsf:v", "h264_metadata=matrix_coefficients=2:colour_primaries=2:transfer_characteristics=2", str(path))
+    assert "bt709" not in probe(path) and "bt470bg" not in probe(path)
+    decoded = read_frame(open_source(path), 0)
+    np.testing.assert_allclose(decoded[8, 8] * 255, [0xE6, 0x78, 0x1E], atol=3)
+
+
+def test_an_anamorphic_video_keeps_its_pixel_aspect_in_the_working_frame_and_the_videos(tmp_path):
+    # 2:1 pixels (a 2x anamorphic squeeze): shown 256 wide, so the network works at 128x36 in
+    # square pixels and the videos say SAR 2:1 (ffmpeg's report) to show at the source's shape
+    path = tmp_path / "squeezed.mp4"
+    ffmpeg("-f", "lavfi", "-i", "testsrc2=size=128x72:rate=24,setsar=2", "-frames:v", "2", "-c:v", "libx264",
+           "-pix_fmt", "yuv420p", str(path))
+    source = open_source(path)
+    assert source.pixel_aspect == 2
+    assert working_size(source.width, source.height, None, 16, source.pixel_aspect) == (128, 36)
+    frames = []
+    for index, frame in iter_frames(source):
+        frames.append(tmp_path / frame_name(source, index))
+        write_image(frames[-1], frame)
+    write_video(frames, 24, tmp_path / "out.mp4", pixel_aspect=source.pixel_aspect)
+    write_prores(frames, 24, tmp_path / "out.mov", pixel_aspect=source.pixel_aspect)
+    for out in ("out.mp4", "out.mov"):
+        assert "SAR 2:1 DAR 32:9" in probe(tmp_path / out)
+        assert open_source(tmp_path / out).pixel_aspect == 2
+
+
+def test_frames_with_alpha_go_into_the_videos_over_black(tmp_path):
+    # the videos have no alpha: a title over transparency shows over black, not its hidden colour
+    rgba = np.zeros((48, 64, 4), np.float32)
+    rgba[..., :3] = (0.2, 0.6, 0.8)
+    rgba[:, :32, 3] = 1.0
+    paths = [tmp_path / f"t_{n}.png" for n in range(2)]
+    for path in paths:
+        write_image(path, rgba)
+    write_video(paths, 24, tmp_path / "out.mp4")
+    write_prores(paths, 24, tmp_path / "out.mov")
+    for out in ("out.mp4", "out.mov"):
+        decoded = read_frame(open_source(tmp_path / out), 1)
+        np.testing.assert_allclose(decoded[24, 8], (0.2, 0.6, 0.8), atol=4 / 255)
+        np.testing.assert_allclose(decoded[24, 56], 0.0, atol=4 / 255)
 
 
 def test_a_video_cut_short_is_refused_not_read_as_a_shorter_clip(tmp_path):

@@ -6,14 +6,16 @@ from pathlib import Path
 
 import cv2
 import numpy as np
+import OpenImageIO as oiio
 import pytest
 
 from framestyle import io, store
-from framestyle.finish.colour import rgb_to_ycbcr
-from framestyle.finish.compose import finish, with_alpha
+from framestyle.finish.colour import rgb_to_ycbcr, srgb_to_linear
+from framestyle.finish.compose import mix
 from framestyle.errors import FramestyleError
 from framestyle.pipeline import plan_render, render
 from framestyle.settings import Settings, load_look
+from framestyle.working import deliver, prepare_frame
 
 from conftest import SAMPLE, STYLE, fast_settings, kill_and_resume
 
@@ -39,7 +41,7 @@ def test_strength_zero_gives_back_the_footage(small_clip, tmp_path):
 def test_strength_mixes_linearly_between_footage_and_style():
     src = np.random.default_rng(0).random((8, 8, 3)).astype(np.float32)
     styled = np.random.default_rng(1).random((8, 8, 3)).astype(np.float32)
-    half = finish(styled, src, strength=0.5)
+    half = mix(src, styled, strength=0.5)
     np.testing.assert_allclose(half, (src + styled) / 2, atol=1e-6)
 
 
@@ -117,18 +119,32 @@ def test_sixteen_bit_frames_stay_sixteen_bit(tmp_path):
 
 
 def test_exr_in_gives_exr_out_in_linear_light(tmp_path):
-    # EXR is linear light; the network sees sRGB (IEC 61966-2-1) and the output is decoded
-    # back, so with strength 0 the delivered frames equal the input within half precision.
+    # EXR is linear light; the network sees sRGB (IEC 61966-2-1), clipped to [0, 1]. With strength
+    # 0 the delivered frames are the input within half precision, highlights above 1 and negative
+    # values included; a renderer's NaN sample reads as 0 and an infinite one as half's largest
+    # finite value, 65504 (IEEE 754 binary16), instead of stopping the render.
     clip = tmp_path / "exr"
+    clip.mkdir()
     rng = np.random.default_rng(3)
     base = cv2.resize(rng.random((9, 16, 3)).astype(np.float32), (128, 72), interpolation=cv2.INTER_CUBIC)
     for n in range(1, 4):
-        io.write_image(clip / f"plate_{n:03d}.exr", np.clip(np.roll(base, n, axis=1), 0, 1) ** 2.2, 32)
+        plate = np.clip(np.roll(base, n, axis=1), 0, 1) ** 2.2 * 4.0 - 0.5  # -0.5 .. 3.5
+        if n == 2:
+            plate[3, 5], plate[4, 6, 1] = np.nan, np.inf
+        # written with OpenImageIO itself: framestyle writes no NaN
+        out = oiio.ImageOutput.create(str(clip / f"plate_{n:03d}.exr"))
+        assert out.open(str(clip / f"plate_{n:03d}.exr"), oiio.ImageSpec(128, 72, 3, oiio.FLOAT))
+        assert out.write_image(np.ascontiguousarray(plate)) and out.close()
     render(clip, tmp_path / "out", fast_settings(iterations=3, strength=0.0))
     source = io.open_source(clip)
     result = io.open_source(tmp_path / "out")
     assert result.count == 3 and result.files[0].endswith(".exr")
-    np.testing.assert_allclose(io.read_frame(result, 1), io.read_frame(source, 1), atol=2e-3)
+    for index in range(3):
+        expected = io.read_frame(source, index)
+        assert expected.min() < -0.4 and expected.max() > 3.0
+        np.testing.assert_allclose(io.read_frame(result, index), expected, rtol=1e-3, atol=1e-3)
+    cleaned = io.read_frame(source, 1)
+    assert np.array_equal(cleaned[3, 5], [0, 0, 0]) and cleaned[4, 6, 1] == 65504.0
 
 
 def test_a_look_file_sets_everything_and_per_shot_looks(small_clip, tmp_path):
@@ -199,16 +215,37 @@ def test_every_control_survives_sigkill_and_resume(small_clip, tmp_path):
     kill_and_resume(small_clip, tmp_path, ["--look", str(look), "--shots", "1"])
 
 
-def test_the_alpha_passes_through_straight_or_premultiplied():
-    rgb = np.full((2, 3, 3), 0.8, np.float32)
+def test_the_alpha_passes_through_straight_or_associated():
+    painted = np.full((2, 3, 3), 0.8, np.float32)  # the solver's result, display-referred
     alpha = np.array([[0.0, 0.5, 1.0], [1.0, 0.25, 0.0]], np.float32)
-    straight = with_alpha(rgb, alpha, premultiplied=False)
-    assert straight.shape == (2, 3, 4) and np.array_equal(straight[..., :3], rgb) and np.array_equal(straight[..., 3], alpha)
-    # premultiplied (OpenEXR's convention): colour = straight colour × alpha, so a fully transparent
-    # pixel carries no colour and adds none in an "over" (Porter & Duff 1984: out = A + (1 - αA) B)
-    premultiplied = with_alpha(rgb, alpha, premultiplied=True)
-    np.testing.assert_allclose(premultiplied[..., :3], rgb * alpha[..., None])
+    footage = np.full((2, 3, 3), 0.3, np.float32)
+    # straight alpha (PNG, TIFF): the colour as painted, the paint kept where the alpha hides it
+    straight = deliver(painted, prepare_frame(footage, (3, 2), Settings(), linear=False), Settings(), None,
+                       False, alpha)
+    assert straight.shape == (2, 3, 4) and np.allclose(straight[..., :3], 0.8) and np.array_equal(straight[..., 3], alpha)
+    # associated (OpenEXR's convention, Kainz, Bogart et al., from memory): colour = straight colour × alpha,
+    # so a fully transparent pixel carries no paint and adds none in an "over" (Porter & Duff 1984:
+    # out = A + (1 - αA) B)
+    full = deliver(painted, prepare_frame(footage, (3, 2), Settings(), linear=True), Settings(), None, True, alpha)
+    np.testing.assert_allclose(full[..., :3], np.broadcast_to(srgb_to_linear(0.8) * alpha[..., None], (2, 3, 3)), rtol=1e-6)
     background = np.full((2, 3, 3), 0.1, np.float32)
-    over = premultiplied[..., :3] + (1 - alpha[..., None]) * background
+    over = full[..., :3] + (1 - alpha[..., None]) * background
     np.testing.assert_allclose(over[0, 0], background[0, 0])  # transparent: the background alone
-    np.testing.assert_allclose(over[0, 2], rgb[0, 2])  # opaque: the frame alone
+    np.testing.assert_allclose(over[0, 2], srgb_to_linear(0.8) * np.ones(3), rtol=1e-6)  # opaque: the frame alone
+
+
+def test_unstyled_float_samples_come_back_as_the_file_stored_them():
+    # Where the style does not apply (strength 0, a black matte) a float frame's samples are the
+    # file's own: highlights above 1, negatives and colour where the alpha is 0 (a glow, which an
+    # "over" adds: Porter & Duff 1984), none of which the network's [0, 1] view can hold.
+    stored = np.array([[[3.5, 1.2, 0.9], [-0.2, 0.1, 0.4], [0.3, 0.3, 0.3]]], np.float32)  # associated
+    alpha = np.array([[1.0, 0.5, 0.0]], np.float32)
+    read = stored / np.where(alpha > 0, alpha, 1)[..., None]  # straight, as io reads it
+    painted = np.full((1, 3, 3), 0.6, np.float32)
+    for settings, matte in ((Settings(strength=0.0), None), (Settings(), np.zeros((1, 3), np.float32))):
+        for a, expected in ((alpha, stored), (None, read)):
+            frame = prepare_frame(read, (3, 1), settings, linear=True)
+            out = deliver(painted, frame, settings, matte, True, a)
+            np.testing.assert_allclose(out[..., :3], expected, rtol=1e-6)
+    half = deliver(painted, prepare_frame(read, (3, 1), Settings(), linear=True), Settings(strength=0.5), None, True)
+    np.testing.assert_allclose(half, (read + srgb_to_linear(0.6)) / 2, rtol=1e-6)  # the mix is in linear light

@@ -9,7 +9,7 @@ them disturbs the temporal chain (which is built from the solver's results).
 Example
 -------
 >>> src = np.random.rand(4, 6, 3).astype(np.float32)
->>> np.array_equal(finish(src * 0.5, src, strength=0.0), src)
+>>> np.array_equal(mix(src, paint(src * 0.5, src), strength=0.0), src)
 True
 """
 
@@ -34,11 +34,8 @@ def luma_image(rgb: np.ndarray, standard: str) -> np.ndarray:
     return np.repeat(luma(rgb, standard)[..., None], 3, axis=2).astype(np.float32)
 
 
-def finish(
-    stylised: np.ndarray, source: np.ndarray, *, colour: str = "style", standard: str = "bt709",
-    strength: float = 1.0, matte: np.ndarray | None = None,
-) -> np.ndarray:
-    """The delivered frame from the solver's result and the source frame (same size).
+def paint(stylised: np.ndarray, source: np.ndarray, *, colour: str = "style", standard: str = "bt709") -> np.ndarray:
+    """The stylised picture at full strength, display-referred, from the solver's result.
 
     Parameters
     ----------
@@ -46,37 +43,58 @@ def finish(
     source : (H, W, 3) the source frame, display-referred, in [0, 1]
     colour : one of :data:`COLOURS`; "luma" recombines the stylised luma with the source's
         chroma (Gatys et al. 2017, Sec. 5.1; ITU-R BT.601/BT.709 luma per ``standard``)
-    strength : 0 = the footage, 1 = full style; a linear mix, as an opacity control would be
-    matte : (H, W) in [0, 1] where the style applies (already softened), or None for everywhere
 
     Returns
     -------
-    (H, W, 3) float32 in [0, 1]
+    (H, W, 3) float32
     """
-    out = luminance_transfer(stylised, source, standard) if colour == "luma" else stylised
-    weight = np.float32(strength) if matte is None else strength * matte[..., None]
-    return (source + weight * (out - source)).astype(np.float32)
+    return (luminance_transfer(stylised, source, standard) if colour == "luma" else stylised).astype(np.float32)
 
 
-def with_alpha(rgb: np.ndarray, alpha: np.ndarray, premultiplied: bool) -> np.ndarray:
-    """The delivered frame with the source frame's alpha as its fourth channel.
-
-    A straight-alpha source (PNG, TIFF) keeps the colour as it is, the stylised paint
-    included where the alpha hides it; a premultiplied one (OpenEXR's convention: Kainz,
-    Bogart et al., "Technical Introduction to OpenEXR", from memory) has its colour multiplied
-    by the alpha, so that no colour shows where the frame is transparent (a compositor adds
-    it in an "over": Porter & Duff 1984).
+def mix(footage: np.ndarray, picture: np.ndarray, strength: float = 1.0, matte: np.ndarray | None = None) -> np.ndarray:
+    """``footage + w·(picture − footage)``, w = strength × matte: a linear mix, as an opacity
+    control would be, so w = 0 gives back ``footage`` exactly.
 
     Parameters
     ----------
-    rgb : (H, W, 3) the delivered frame, in the source's encoding
+    footage, picture : (H, W, C) arrays in the same encoding
+    strength : 0 = the footage, 1 = the picture
+    matte : (H, W) in [0, 1] where the picture applies (already softened), or None for everywhere
+
+    Returns
+    -------
+    (H, W, C) float32
+    """
+    weight = np.float32(strength) if matte is None else strength * matte[..., None]
+    return (footage + weight * (picture - footage)).astype(np.float32)
+
+
+def associated(rgb: np.ndarray, alpha: np.ndarray) -> np.ndarray:
+    """Straight colour ``(H, W, 3)`` back to associated (premultiplied) colour as a file stores
+    it: times the alpha ``(H, W)`` where it is above 0. Where the alpha is 0 the colour is left
+    as read (:mod:`framestyle.io.stills` reads it undivided there): light that covers nothing,
+    such as a glow, which an "over" adds (Porter & Duff 1984)."""
+    a = alpha[..., None]
+    return np.where(a > 0, rgb * a, rgb).astype(np.float32)
+
+
+def with_alpha(colour: np.ndarray, alpha: np.ndarray) -> np.ndarray:
+    """The delivered frame with the source frame's alpha as its fourth channel.
+
+    The colour is given in the source's convention: straight for PNG and TIFF (the stylised
+    paint kept where the alpha hides it), associated for OpenEXR (Kainz, Bogart et al.,
+    "Technical Introduction to OpenEXR", from memory: colour times alpha, so that no paint
+    shows where the frame is transparent and a compositor's "over" adds it, Porter & Duff 1984).
+
+    Parameters
+    ----------
+    colour : (H, W, 3) the delivered frame, in the source's encoding
     alpha : (H, W) the source frame's alpha in [0, 1]
 
     Returns
     -------
     (H, W, 4) float32
     """
-    colour = rgb * alpha[..., None] if premultiplied else rgb
     return np.concatenate([colour, alpha[..., None]], axis=2).astype(np.float32)
 
 

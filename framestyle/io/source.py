@@ -14,6 +14,7 @@ from __future__ import annotations
 
 import hashlib
 from dataclasses import dataclass, field
+from fractions import Fraction
 from pathlib import Path
 from typing import Iterator, Literal
 
@@ -67,6 +68,11 @@ class FrameSource:
     video: VideoInfo | None = field(default=None, repr=False)
     start_timecode: str | None = None
     ignored: tuple[str, ...] = ()
+
+    @property
+    def pixel_aspect(self) -> Fraction:
+        """Width over height of a stored pixel: a video's SAR (2 for 2× anamorphic); 1 for folders."""
+        return self.video.pixel_aspect if self.video else Fraction(1)
 
     @property
     def linear(self) -> bool:
@@ -128,8 +134,14 @@ def source_timecode(source: FrameSource, fps: float | None = None, start_timecod
 
 def sequence_warnings(source: FrameSource) -> list[str]:
     """Lines saying which frame numbers are missing from a folder's numbering and which
-    numbered files of other sequences in the folder are not read (none for a video)."""
+    numbered files of other sequences in the folder are not read; for a video, how far its
+    frames stand from their own times when its frame rate varies."""
     lines = []
+    if source.video and source.video.drift:
+        lines.append(f"{source.path}: variable frame rate; its frames are delivered one for one at a constant "
+                     f"{source.fps:.6g} fps, its commonest, so the videos' picture runs up to "
+                     f"{source.video.drift * 1000:.0f} ms off its audio; for sync, conform the clip to a constant "
+                     f"rate first (e.g. in the editing software)")
     if source.gaps:
         shown = ", ".join(f"{a}-{b}" if b > a else f"{a}" for a, b in source.gaps[:5])
         more = ", ..." if len(source.gaps) > 5 else ""

@@ -10,7 +10,9 @@ alpha is associated (premultiplied: always for EXR, by convention, Kainz, Bogart
 section 18) has its colour divided by the alpha where the alpha is above 0. Only a channel
 the file marks as alpha is alpha (an RGB TIFF's unspecified extra channel is not read).
 Pixels are turned upright by the file's EXIF/TIFF Orientation tag (1-8, TIFF 6.0 section 8;
-Exif 2.32 section 4.6.4), as viewers show them.
+Exif 2.32 section 4.6.4), as viewers show them. An image is its display window: an OpenEXR
+data window smaller than it (a renderer's crop to the lit region) is placed in it, black
+around; data beyond it (overscan) is not read.
 
 Images leave this module as float32 ``(H, W, 3)`` RGB (gray replicated), alpha as
 ``(H, W)``; channel order is RGB(A) throughout, as OpenImageIO delivers it.
@@ -37,13 +39,16 @@ _WRITE_TYPES = {8: oiio.UINT8, 16: oiio.UINT16, 32: oiio.FLOAT}
 _INT_SCALE = {np.dtype(np.uint8): 255.0, np.dtype(np.uint16): 65535.0}
 DTYPE_DEPTH = {np.dtype(np.uint8): 8, np.dtype(np.uint16): 16, np.dtype(np.float32): 32}
 _SAMPLE_DEPTH = {oiio.UINT8: 8, oiio.UINT16: 16, oiio.FLOAT: 32}
+HALF_MAX = 65504.0
+"""The largest finite half float (IEEE 754 binary16): what an infinite sample is read as."""
 
 
 def image_header(file: Path) -> tuple[int, int, bool, int]:
     """(width, height, has alpha, bit depth) of an image file as :func:`load_image` decodes
     it, from its header without decoding the pixels; the depth as in :data:`DTYPE_DEPTH`."""
     spec = _open(file, lambda image: image.spec())
-    width, height = (spec.height, spec.width) if _orientation(spec) >= 5 else (spec.width, spec.height)
+    width, height = _display_size(spec)
+    width, height = (height, width) if _orientation(spec) >= 5 else (width, height)
     return width, height, _channels(spec)[1], _SAMPLE_DEPTH[_sample_type(spec)]
 
 
@@ -52,7 +57,9 @@ def load_image(file: Path) -> np.ndarray:
     float32), colour straight.
 
     C is 1 (gray), 2 (gray + alpha), 3 (RGB) or 4 (RGBA); half floats are widened to float32,
-    other integer depths (10/12-bit DPX) to uint16.
+    other integer depths (10/12-bit DPX) to uint16. A float sample that is NaN reads as 0 and
+    an infinite one as ±:data:`HALF_MAX`, as compositors commonly clean a renderer's stray
+    samples (common practice), so that they cannot spread through filters, flow and solver.
     """
     def read(image):
         spec = image.spec()
@@ -67,9 +74,11 @@ def load_image(file: Path) -> np.ndarray:
         if "Premature end" in problem:  # libjpeg's warning for a cut-off file: it fills the rest grey
             raise FramestyleError(f"{file}: the file is cut short; only part of the image could be decoded")
         pixels = pixels.reshape(spec.height, spec.width, channels)
+        if kind == oiio.FLOAT:  # a renderer's NaN or infinite samples: no picture to keep there
+            pixels = np.nan_to_num(pixels, nan=0.0, posinf=HALF_MAX, neginf=-HALF_MAX)
         if alpha and not spec.get_int_attribute("oiio:UnassociatedAlpha", 0):  # set only for straight alpha
             pixels = _unpremultiply(pixels)
-        return np.ascontiguousarray(_upright(pixels, _orientation(spec)))
+        return np.ascontiguousarray(_upright(_in_display_window(pixels, spec), _orientation(spec)))
 
     check_not_empty(file)
     return _open(file, read)
@@ -165,6 +174,29 @@ def _unpremultiply(pixels: np.ndarray) -> np.ndarray:
     if scale != 1.0:
         colour = np.clip(np.rint(colour), 0, scale)
     return np.concatenate([colour.astype(pixels.dtype), pixels[..., -1:]], axis=2)
+
+
+def _display_size(spec) -> tuple[int, int]:
+    """(width, height) of the picture: the display window (OpenEXR's displayWindow, OpenImageIO's
+    "full" rectangle; Kainz, Bogart et al., "Technical Introduction to OpenEXR", from memory),
+    which formats without one give as the pixels' own."""
+    return (spec.full_width, spec.full_height) if spec.full_width > 0 and spec.full_height > 0 else (
+        spec.width, spec.height)
+
+
+def _in_display_window(pixels: np.ndarray, spec) -> np.ndarray:
+    """``(h, w, C)`` pixels of the data window placed in the display window: where no data
+    lies the samples are 0 (transparent black), data outside it (overscan) is cut off."""
+    width, height = _display_size(spec)
+    if (spec.x, spec.y, spec.width, spec.height) == (spec.full_x, spec.full_y, width, height):
+        return pixels
+    out = np.zeros((height, width, pixels.shape[2]), pixels.dtype)
+    x0, x1 = max(spec.x, spec.full_x), min(spec.x + spec.width, spec.full_x + width)
+    y0, y1 = max(spec.y, spec.full_y), min(spec.y + spec.height, spec.full_y + height)
+    if x0 < x1 and y0 < y1:
+        out[y0 - spec.full_y:y1 - spec.full_y, x0 - spec.full_x:x1 - spec.full_x] = \
+            pixels[y0 - spec.y:y1 - spec.y, x0 - spec.x:x1 - spec.x]
+    return out
 
 
 def _orientation(spec) -> int:

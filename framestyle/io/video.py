@@ -11,6 +11,12 @@ uses ffmpeg's ``trim=start_frame=N`` filter: it decodes and discards the first N
 Two encodings come out: an H.264 preview (:func:`write_video`) and an edit-ready Apple
 ProRes 422 HQ hand-off (:func:`write_prores`); both carry the source's audio and start
 timecode.
+
+Colour: a YUV stream is converted to RGB with the matrix its tags name; an untagged one with
+BT.709 when it is HD (wider than 1024 or taller than 576 pixels) and BT.601 otherwise, as
+players treat untagged files (common practice; from memory, e.g. mpv's rule), where ffmpeg's
+own default would be BT.601 for every size. The videos written carry the source's pixel
+aspect ratio, and frames with alpha go into them composited over black.
 """
 
 from __future__ import annotations
@@ -21,6 +27,7 @@ import re
 import subprocess
 import tempfile
 from dataclasses import dataclass
+from fractions import Fraction
 from pathlib import Path
 from typing import Callable, Iterator, Sequence
 
@@ -41,6 +48,17 @@ _ALPHA_PIX = re.compile(r"^(yuva|gbrap|ya|rgba|bgra|argb|abgr)")
 # ffmpeg's stream report shows a file's start timecode as "timecode : 01:00:00:00" (or
 # ";00" for drop-frame), from a QuickTime/MP4 timecode (tmcd) track or a container tag.
 _TIMECODE_TAG = re.compile(r"^\s*timecode\s*:\s*(\d{2}:\d{2}:\d{2}[:;]\d{2})\s*$", re.IGNORECASE | re.MULTILINE)
+# The first video stream's line of the report ("Video: h264 ..., yuv420p(tv, bt709, progressive),
+# 1280x720 [SAR 1:1 DAR 16:9], ..."), cover-art pictures skipped, and what is read from it.
+_VIDEO_LINE = re.compile(r"^\s*Stream #.*?: Video: (?!.*\(attached pic\)).*$", re.MULTILINE)
+_SAR = re.compile(r"SAR (\d+):(\d+)")
+# Colour-space names ffmpeg prints for a stream's YUV matrix ("bt709", or "bt709/bt709/bt709"
+# spelled matrix/primaries/transfer); "unknown" or none at all is an untagged matrix.
+_MATRICES = {"bt709", "bt470bg", "smpte170m", "smpte240m", "bt2020nc", "bt2020c", "fcc", "ycgco", "gbr",
+             "chroma-derived-nc", "chroma-derived-c", "ictcp", "smpte2085"}
+# Frames of a variable-frame-rate clip are timed against the commonest frame time; a frame more
+# than this share of it early or late is out of step with the audio (half a frame: common practice).
+_OUT_OF_STEP = 0.5
 
 # BT.709 matrix, and frame tags (primaries, transfer, matrix, range) that the encoders copy
 # into the stream, so players and editing software decode the colours as they were
@@ -79,10 +97,20 @@ class VideoInfo:
     bit_depth: int  # 8, or 16 for high-bit-depth pixel formats (10-bit and up)
     has_alpha: bool
     timecode: str | None = None  # the first frame's label, from the file's timecode tag
+    pixel_aspect: Fraction = Fraction(1)  # width over height of a stored pixel (the stream's SAR)
+    matrix: str | None = None  # YUV→RGB matrix to decode with where the stream names none
+    drift: float = 0.0  # seconds: the largest lead or lag of a frame against the constant ``fps``
 
 
 def probe_video(path: Path) -> VideoInfo:
-    """Decode ``path`` once to count its frames exactly; read its size, rate, format and timecode."""
+    """Decode ``path`` once to count its frames exactly; read its size, rate, format, timecode,
+    pixel aspect ratio and colour matrix.
+
+    A clip whose frames are not evenly timed (variable frame rate, common from phones) gets
+    as ``fps`` the rate of its commonest frame time, an edit rate, rather than its average
+    (ffmpeg's "fps", 17.65 for a 25 fps clip with a held frame); ``drift`` says how far its
+    frames then stand from their own times.
+    """
     meta = _video_meta(path)
     decoded = _ffmpeg(["-i", str(path), *_VIDEO_STREAM, "-f", "null", "-progress", "pipe:1", "-"])
     if decoded.returncode != 0:
@@ -96,24 +124,78 @@ def probe_video(path: Path) -> VideoInfo:
         raise FramestyleError(f"{path}: video has no frames")
     if not meta["fps"] > 0:
         raise FramestyleError(f"{path}: video frame rate is unknown")
-    pix_fmt = meta["pix_fmt"].split("(", 1)[0]
+    pix_fmt, _, tags = meta["pix_fmt"].partition("(")
     width, height = meta["size"]
-    return VideoInfo(count, width, height, float(exact_rate(meta["fps"])),
+    report = stream_report(path)
+    line = _VIDEO_LINE.search(report)
+    sar = _SAR.search(line[0]) if line else None
+    pixel_aspect = Fraction(int(sar[1]), int(sar[2])) if sar and int(sar[1]) and int(sar[2]) else Fraction(1)
+    if meta.get("rotate", 0) % 180:  # the frames come upright, turned a quarter: so are their pixels
+        pixel_aspect = 1 / pixel_aspect
+    fps, drift = frame_timing(_frame_times(path), meta["fps"])
+    return VideoInfo(count, width, height, float(exact_rate(fps)),
                      16 if _HIGH_DEPTH_PIX.search(pix_fmt) else 8, bool(_ALPHA_PIX.match(pix_fmt)),
-                     timecode_tag(path))
+                     timecode_tag(report), pixel_aspect, untagged_matrix(pix_fmt, tags, width, height), drift)
 
 
-def timecode_tag(path: Path) -> str | None:
-    """The start timecode label a video file carries in its timecode tag, or None.
-
-    Read from the bundled ffmpeg's stream report, which lists the tag of a QuickTime/MP4
-    timecode (tmcd) track or a container's TIMECODE tag; the first one listed is taken.
-    """
+def stream_report(path: Path) -> str:
+    """The bundled ffmpeg's report of a file's streams (what ``ffmpeg -i`` prints)."""
     cmd = [imageio_ffmpeg.get_ffmpeg_exe(), "-hide_banner", "-i", str(path)]
     # With no output file ffmpeg prints the report and exits with status 1.
-    report = subprocess.run(cmd, stdin=subprocess.DEVNULL, capture_output=True).stderr
-    match = _TIMECODE_TAG.search(report.decode(errors="replace"))
+    return subprocess.run(cmd, stdin=subprocess.DEVNULL, capture_output=True).stderr.decode(errors="replace")
+
+
+def timecode_tag(report: str) -> str | None:
+    """The start timecode label in a file's :func:`stream_report`, or None.
+
+    The report lists the tag of a QuickTime/MP4 timecode (tmcd) track or a container's
+    TIMECODE tag; the first one listed is taken.
+    """
+    match = _TIMECODE_TAG.search(report)
     return match[1] if match else None
+
+
+def untagged_matrix(pix_fmt: str, tags: str, width: int, height: int) -> str | None:
+    """"bt709" for an HD YUV stream whose tags (ffmpeg's "tv, bt709, progressive") name no
+    matrix; None otherwise: a tagged stream, an RGB one, or an untagged one up to 1024×576,
+    which ffmpeg's default (BT.601) decodes as players do."""
+    named = {part.strip().split("/")[0] for part in tags.rstrip(")").split(",")}
+    hd = width > 1024 or height > 576
+    return "bt709" if pix_fmt.startswith("yuv") and hd and not named & _MATRICES else None
+
+
+def frame_timing(times: Sequence[float], average_fps: float) -> tuple[float, float]:
+    """(frame rate, drift in seconds) of frames shown at ``times`` (seconds, any order).
+
+    Evenly timed frames (every frame time within a quarter of the commonest) keep
+    ``average_fps``, with no drift. Otherwise the rate is that of the commonest frame time
+    (the mean of the frame times within a quarter of the median), and the drift is the
+    largest distance of a frame from its place at that constant rate, counted from the first.
+    """
+    shown = np.sort(np.asarray(times, dtype=np.float64))
+    steps = np.diff(shown)
+    if steps.size == 0 or not np.median(steps) > 0:
+        return average_fps, 0.0
+    usual = np.median(steps)
+    close = np.abs(steps - usual) <= usual / 4
+    if close.all():
+        return average_fps, 0.0
+    step = float(steps[close].mean())
+    return 1.0 / step, float(np.abs(shown - shown[0] - step * np.arange(shown.size)).max())
+
+
+def _frame_times(path: Path) -> list[float]:
+    """Presentation times (seconds) of the first video stream's packets, without decoding."""
+    listing = _ffmpeg(["-i", str(path), "-map", "0:V:0", "-c", "copy", "-f", "framecrc", "-"]).stdout.decode()
+    base = re.search(r"^#tb 0: (\d+)/(\d+)", listing, re.MULTILINE)
+    if not base:
+        return []
+    tick = Fraction(int(base[1]), int(base[2]))
+    # data lines: stream index, dts, pts, duration, size, checksum[, flags]; a packet without a
+    # time (AVI's) shows INT64_MIN
+    rows = (line.split(",") for line in listing.splitlines() if not line.startswith("#"))
+    return [float(int(row[2]) * tick) for row in rows
+            if len(row) >= 6 and row[2].strip().lstrip("-").isdigit() and int(row[2]) != -2**63]
 
 
 def iter_video(path: Path, info: VideoInfo, start: int, stop: int) -> Iterator[tuple[int, np.ndarray]]:
@@ -125,7 +207,9 @@ def iter_video(path: Path, info: VideoInfo, start: int, stop: int) -> Iterator[t
         pix_fmt, dtype = ("rgba" if info.has_alpha else "rgb24"), np.dtype(np.uint8)
     frame_bytes = info.width * info.height * channels * dtype.itemsize
     cmd = [imageio_ffmpeg.get_ffmpeg_exe(), "-hide_banner", "-loglevel", "error", "-i", str(path)]
-    cmd += _VIDEO_STREAM + (["-vf", f"trim=start_frame={start}"] if start else [])
+    filters = ([f"trim=start_frame={start}"] if start else []) + (
+        [f"scale=in_color_matrix={info.matrix}", f"format={pix_fmt}"] if info.matrix else [])
+    cmd += _VIDEO_STREAM + (["-vf", ",".join(filters)] if filters else [])
     cmd += ["-frames:v", str(stop - start), "-f", "rawvideo", "-pix_fmt", pix_fmt, "-"]
     with tempfile.TemporaryFile() as errors:
         process = subprocess.Popen(cmd, stdin=subprocess.DEVNULL, stdout=subprocess.PIPE, stderr=errors)
@@ -146,7 +230,7 @@ def iter_video(path: Path, info: VideoInfo, start: int, stop: int) -> Iterator[t
 
 
 def write_video(frames_paths: Sequence[Path], fps: float, out_path: Path, audio_from: Path | None = None,
-                start_timecode: str | None = None) -> None:
+                start_timecode: str | None = None, pixel_aspect: Fraction = Fraction(1)) -> None:
     """Encode image files, in the given order, into an H.264 preview video, atomically.
 
     The files are streamed to the bundled ffmpeg as they are (no decoding in Python) and
@@ -163,15 +247,19 @@ def write_video(frames_paths: Sequence[Path], fps: float, out_path: Path, audio_
     audio_from : the source video whose first audio stream, if any, is carried over
     start_timecode : the first frame's SMPTE label (``HH:MM:SS:FF``, ``HH:MM:SS;FF``
         drop-frame), written as the file's timecode track; None writes none
+    pixel_aspect : width over height of a pixel (the source's SAR), written in the stream so
+        that anamorphic footage shows at its own shape
+
+    Frames with alpha are composited over black (the video has no alpha channel).
     """
     def audio(codec: str) -> list[str]:
         return ["-c:a", "copy"] if codec == "aac" else ["-c:a", "aac", "-b:a", "192k"]
 
-    _encode(frames_paths, fps, out_path, _H264_FILTER, _H264_VIDEO, audio, audio_from, start_timecode)
+    _encode(frames_paths, fps, out_path, _H264_FILTER, _H264_VIDEO, audio, audio_from, start_timecode, pixel_aspect)
 
 
 def write_prores(frames_paths: Sequence[Path], fps: float, out_path: Path, audio_from: Path | None = None,
-                 start_timecode: str | None = None) -> None:
+                 start_timecode: str | None = None, pixel_aspect: Fraction = Fraction(1)) -> None:
     """Encode image files into an edit-ready Apple ProRes 422 HQ QuickTime file, atomically.
 
     The hand-off counterpart of :func:`write_video`: ffmpeg's ``prores_ks`` at profile HQ
@@ -188,6 +276,9 @@ def write_prores(frames_paths: Sequence[Path], fps: float, out_path: Path, audio
     audio_from : the source video whose first audio stream, if any, is carried over
     start_timecode : the first frame's SMPTE label (``HH:MM:SS:FF``, ``HH:MM:SS;FF``
         drop-frame), written as the file's timecode track; None writes none
+    pixel_aspect : the source's pixel aspect ratio, as in :func:`write_video`
+
+    Frames with alpha are composited over black, as in :func:`write_video`.
 
     References
     ----------
@@ -198,11 +289,12 @@ def write_prores(frames_paths: Sequence[Path], fps: float, out_path: Path, audio
     if out_path.suffix.lower() != ".mov":
         raise FramestyleError(f"{out_path}: a ProRes hand-off is a QuickTime file; name it .mov")
     _encode(frames_paths, fps, out_path, _PRORES_FILTER, _PRORES_VIDEO, lambda codec: _PRORES_AUDIO,
-            audio_from, start_timecode)
+            audio_from, start_timecode, pixel_aspect)
 
 
 def _encode(frames_paths: Sequence[Path], fps: float, out_path: Path, video_filter: str, video: list[str],
-            audio: Callable[[str], list[str]], audio_from: Path | None, start_timecode: str | None) -> None:
+            audio: Callable[[str], list[str]], audio_from: Path | None, start_timecode: str | None,
+            pixel_aspect: Fraction) -> None:
     """Stream image files through the bundled ffmpeg into ``out_path`` (see :func:`write_video`).
 
     ``audio(codec)`` gives the audio encoding options for the source's audio codec.
@@ -235,7 +327,10 @@ def _encode(frames_paths: Sequence[Path], fps: float, out_path: Path, video_filt
         # Cut at the last frame's end instead of -shortest, which would also cut the video
         # when the audio is the shorter stream.
         audio_options = audio(audio_codec) + ["-t", f"{float(len(paths) / rate) + 1e-6:.6f}"]
-    cmd += streams + ["-vf", video_filter] + video + audio_options + timecode
+    # over black: colour times alpha (frames without alpha get an opaque one), then the alpha dropped
+    over_black = "format=gbrap16le,premultiply=inplace=1,"
+    aspect = f",setsar={pixel_aspect.numerator}/{pixel_aspect.denominator}"
+    cmd += streams + ["-vf", over_black + video_filter + aspect] + video + audio_options + timecode
     with atomic.atomic_path(out_path) as tmp, tempfile.TemporaryFile() as errors:
         process = subprocess.Popen(cmd + [str(tmp)], stdin=subprocess.PIPE, stderr=errors, bufsize=0)
         try:

@@ -203,7 +203,7 @@ def stability(out: Path, source_path: Path, preset: str = "medium", alone: Alone
         )
         if alone is not None:
             width = Settings.from_dict(manifest["settings"]).for_shot(shot.index).width
-            size = working_size(source.width, source.height, width, 1)
+            size = working_size(source.width, source.height, width, 1, source.pixel_aspect)
             row.detail = [(source.numbers[i], detail_ratio(io.read_frame(rendered, i), image, size))
                           for i, image in alone(detail_frames(shot, detail_count))]
         result.append(row)

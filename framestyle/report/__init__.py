@@ -144,7 +144,7 @@ def _measured(store: Store, files: ReportStore, source: io.FrameSource, settings
     missing = sorted(k for key, ks in needs.items() for k in ks if measured[key][k] is None)
     if not missing:
         return measured
-    size = working_size(source.width, source.height, settings.width, 1)  # the render checked its minimum
+    size = working_size(source.width, source.height, settings.width, 1, source.pixel_aspect)  # the render checked its minimum
     previous = None
     for index, raw in io.iter_frames(source, shot.start + missing[0] - 1, shot.start + missing[-1] + 1):
         k = index - shot.start
