@@ -117,7 +117,7 @@ def _with_settings_options(command):
 
 def _settings(options: dict) -> Settings:
     """Settings from a look file (if any) overridden by the options given."""
-    from framestyle.settings import load_look
+    from framestyle.settings import load_look, overlay
 
     base = _run(load_look, options["look"]) if options["look"] else {}
     given = options["values"]
@@ -126,10 +126,10 @@ def _settings(options: dict) -> Settings:
         if kept:
             typer.echo(f"framestyle: warning: the look's [shots.{shot}] sets {', '.join(kept)} for shot {shot}; "
                        f"the option(s) given apply to the other shots", err=True)
-    settings = _run(Settings.from_dict, {**base, **given}, "options")
-    if not settings.styles:
+    values = overlay(base, given)
+    if not values.get("styles"):
         _fail("no style image: give --style or a look file with styles")
-    return settings
+    return _run(Settings.from_dict, values, "options")
 
 
 def _numbers(text: str, option: str) -> tuple[float, ...]:
@@ -318,6 +318,8 @@ def resume(
     from framestyle import store
 
     _check_path(out, "render folder")
+    if not out.is_dir():
+        _fail(f"{out}: a file, not a render's output folder; give the --out folder of `framestyle stylise`")
     manifest = _run(store.read_manifest, out)
     if manifest is None:
         _fail(f"{out}: no {store.MANIFEST}; start the render with `framestyle stylise`")

@@ -341,6 +341,11 @@ def setting_warnings(source: io.FrameSource, settings: Settings, min_side: int, 
             messages.append(f"style_mix{label}: {', '.join(unmixed)} weighted 0, so no part of the look")
         for style in variant.styles:
             style_size = io.image_header(Path(style))[:2]
+            hidden = io.transparent_share(style) if io.image_header(Path(style))[2] else 0.0
+            if hidden:
+                messages.append(f"{style}{label}: {hidden:.0%} of the style image is transparent, and the colour "
+                                f"hidden there counts in the look as if it showed; flatten it onto the background "
+                                f"you mean first")
             enlarged = variant.stroke_size * max(size) / max(style_size)
             if enlarged > STYLE_ENLARGEMENT:
                 messages.append(f"{style}{label}: a {style_size[0]}×{style_size[1]} style image is enlarged "
@@ -837,8 +842,9 @@ def preview(input_path: Path, out: Path, settings: Settings, every: int, *, widt
     are not: a warning says when the source already flashes). ``out`` may hold a render of
     the same footage (the preview goes beside it), not of other footage.
     """
-    if every < 1:
-        raise FramestyleError(f"--every {every}: must be 1 or more")
+    for option, value in (("--every", every), ("--width", width)):
+        if value is not None and value < 1:
+            raise FramestyleError(f"{option} {value}: must be 1 or more")
     width = width or min(settings.width or PREVIEW_WIDTH, PREVIEW_WIDTH)
     settings = dataclasses.replace(settings, width=width, shot_looks={
         n: {**look, "width": width} for n, look in settings.shot_looks.items()})

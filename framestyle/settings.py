@@ -58,7 +58,7 @@ class Settings:
     stroke_size: Annotated[float, Field(gt=0, le=MAX_STROKE_SIZE, allow_inf_nan=False)] = 1.0  # style image resized to this × the working size
     colour: Literal[COLOURS] = "style"  # palette: the painting's, the footage's (luma), recoloured
     luma_standard: Literal["bt709", "bt601"] = "bt709"  # luma weights for "luma": HD or SD
-    strength: Annotated[float, Field(ge=0, le=1)] = 1.0  # 0 = the footage, 1 = full style
+    strength: Annotated[float, Field(ge=0, le=1, allow_inf_nan=False)] = 1.0  # 0 = the footage, 1 = full style
     matte: str | None = None  # folder of matte frames (white = stylise), or "alpha" for the input's
     matte_softness: Annotated[float, Field(ge=0, le=1000, allow_inf_nan=False)] = 2.0  # soft matte edge:
     #                                 Gaussian sigma in source pixels (1000: wider than any frame needs)
@@ -105,8 +105,14 @@ class Settings:
     def __post_init__(self) -> None:
         if 1 not in self.long_term:
             raise ValueError("long_term must include 1 (the previous frame)")
-        if self.style_mix and (len(self.style_mix) != len(self.styles) or sum(self.style_mix) <= 0):
-            raise ValueError(f"style_mix needs {len(self.styles)} weights, one per style, not all 0")
+        if self.style_mix and len(self.style_mix) != len(self.styles):
+            count = len(self.styles)
+            raise ValueError(f"style_mix needs {count} weight{'s' if count != 1 else ''}, one per style, "
+                             f"not {len(self.style_mix)}")
+        if self.style_mix and sum(self.style_mix) <= 0:
+            raise ValueError("style_mix: the weights are all 0")
+        if self.matte == "":
+            raise ValueError("matte: give a folder of matte frames or 'alpha'")
         names = {f.name for f in dataclasses.fields(self)} - {"shot_looks"}
         for shot, overrides in self.shot_looks.items():
             unknown = sorted(set(overrides) - names)
@@ -147,12 +153,28 @@ class Settings:
         overrides = self.shot_looks.get(str(shot), {})
         if not overrides:
             return dataclasses.replace(self, shot_looks={})
-        return _validated(type(self), {**self.to_dict(), **overrides, "shot_looks": {}}, f"{source} [shots.{shot}]")
+        return _validated(type(self), {**overlay(self.to_dict(), overrides), "shot_looks": {}},
+                          f"{source} [shots.{shot}]")
 
     def differences(self, other: "Settings") -> list[str]:
-        """Names of the settings whose values differ from ``other``'s."""
+        """Names of the settings whose values differ from ``other``'s; a shot's own look as
+        ``[shots.N] name``, one per setting that differs."""
         a, b = self.to_dict(), other.to_dict()
-        return [k for k in a if a[k] != b[k]]
+        names = [k for k in a if a[k] != b[k] and k != "shot_looks"]
+        mine, theirs = a["shot_looks"], b["shot_looks"]
+        for shot in sorted({*mine, *theirs}, key=int):
+            ours, others = mine.get(shot, {}), theirs.get(shot, {})
+            names += [f"[shots.{shot}] {k}" for k in sorted({*ours, *others}) if ours.get(k) != others.get(k)]
+        return names
+
+
+def overlay(base: dict, over: dict) -> dict:
+    """Settings ``base`` with ``over``'s values in their place; a list of styles given without
+    its own ``style_mix`` mixes them equally (the weights left over were for other styles)."""
+    merged = {**base, **over}
+    if "styles" in over and "style_mix" not in over:
+        merged.pop("style_mix", None)
+    return merged
 
 
 def _validated(cls: type, values: dict, source: str):

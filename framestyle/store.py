@@ -630,10 +630,10 @@ def check_resume(manifest: dict, settings: Settings, inputs: dict, shot_list: di
             f"{out}: was rendered with different settings ({', '.join(changed)}); "
             f"use the same options, a new --out, or --restart to start over"
         )
-    for key, what in (("input_fingerprint", "input frames"), ("styles", "style image(s)"), ("mattes", "mattes")):
+    for key, files, what in (("input_fingerprint", "input_files", "input frames"),
+                             ("styles", "styles", "style image(s)"), ("mattes", "mattes", "mattes")):
         if manifest["inputs"][key] != inputs[key]:
-            which = _changed_files(manifest["inputs"].get("input_files"), inputs["input_files"]) if key == \
-                "input_fingerprint" else ""
+            which = _changed_files(manifest["inputs"].get(files), inputs[files])
             raise FramestyleError(f"{out}: the {what} changed since this render started{which}; use --restart to "
                                   f"start over")
     if shot_list is not None and shot_list != manifest["shot_list"]:
@@ -643,8 +643,9 @@ def check_resume(manifest: dict, settings: Settings, inputs: dict, shot_list: di
 
 
 def _changed_files(old: dict | None, new: dict) -> str:
-    """`` (NAME and N more)``: the frame files whose content differs, or that came or went,
-    between two ``input_files`` records; "" where either has none (a video, an older render)."""
+    """`` (NAME and N more)``: the files whose content differs, or that came or went, between
+    two records of digests by name (frame files, style images, matte folders); "" where either
+    has none (a video's frames, an older render)."""
     if not old or not new:
         return ""
     changed = [name for name in new if old.get(name) != new[name]] + [name for name in old if name not in new]

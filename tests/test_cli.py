@@ -50,6 +50,8 @@ def test_resume_renders_the_remaining_shots_from_the_manifest_alone(small_clip, 
     assert len(list(out.glob("take_*.png"))) == 20
     assert "shot" in stdout and "all" in stdout  # the summary table
     assert len(store.Store(out).finished()) == 20
+    code, _, err = _run("resume", small_clip / "take_001.png")  # the footage given by mistake
+    _one_line_error(code, err, "take_001.png: a file, not a render's output folder")
 
 
 def test_a_render_follows_its_footage_when_it_moves(small_clip, tmp_path):
@@ -171,11 +173,14 @@ def test_settings_that_cannot_act_as_asked_are_said(small_clip, tmp_path):
     assert "temporal_weight: no effect in a preview" in said and "matte_softness: no effect without a matte" in said
     assert "style_mix: style.png weighted 0, so no part of the look" in said
     tiny = tmp_path / "tiny.png"
-    cv2.imwrite(str(tiny), cv2.resize(cv2.imread(str(STYLE)), (8, 8), interpolation=cv2.INTER_AREA))
+    bgra = cv2.cvtColor(cv2.resize(cv2.imread(str(STYLE)), (8, 8), interpolation=cv2.INTER_AREA), cv2.COLOR_BGR2BGRA)
+    bgra[:4, :4, 3] = 0  # a quarter transparent, its colour hidden
+    cv2.imwrite(str(tiny), bgra)
     code, out, err = _run("preview", small_clip, "--style", tiny, "--out", tmp_path / "t", *FAST, "--every", "9")
     assert code == 0, err
     assert (f"{tiny}: a 8×8 style image is enlarged 16× beside the 128×72 working frame, so its strokes come out "
             f"blurred; one of 32 pixels or more on its longer side keeps them") in out + err
+    assert f"{tiny}: 25% of the style image is transparent, and the colour hidden there counts" in out + err
     code, out, err = _run("stylise", small_clip, "--style", STYLE, "--out", tmp_path / "q", *FAST, "--shots", "2")
     assert code == 0 and "framestyle: warning" not in out + err  # the defaults: nothing to say
 
@@ -630,6 +635,54 @@ def test_an_option_given_overrides_the_look_but_a_shots_own_table_decides_for_it
     assert np.array_equal(cv2.imread(str(tmp_path / "o" / "take_003.png")), cv2.imread(str(small_clip / "take_003.png")))
     assert not np.array_equal(cv2.imread(str(tmp_path / "o" / "take_015.png")),
                               cv2.imread(str(small_clip / "take_015.png")))
+
+
+def test_the_readme_look_example_loads_and_a_shot_or_option_giving_styles_mixes_them_equally(small_clip, tmp_path):
+    # The README's "Look files" example: two styles mixed 0.7/0.3, and a shot given one style of
+    # its own, whose weights are then its own (equal), not the two left over from the top
+    for name in ("collage.png", "ink.png"):
+        (tmp_path / name).write_bytes(STYLE.read_bytes())
+    look = tmp_path / "look.toml"
+    look.write_text('styles = ["collage.png", "ink.png"]\nstyle_mix = [0.7, 0.3]\nstyle_weight = 8.0\n'
+                    'colour = "luma"\nwidth = 640\n\n[shots.2]\nstyles = ["collage.png"]\nstrength = 0.5\n')
+    code, _, err = _run("preview", small_clip, "--look", look, "--out", tmp_path / "p", "--width", "128",
+                        "--every", "20", "--shots", "2", "-q")
+    assert code == 0, err
+    # a style given on the command line takes the place of the look's two, and their weights with them
+    code, _, err = _run("preview", small_clip, "--look", look, "-s", STYLE, "--out", tmp_path / "p", "--width",
+                        "128", "--every", "20", "--shots", "2", "-q")
+    assert code == 0, err
+
+
+@pytest.mark.parametrize(("options", "words"), [
+    (["--style-mix", "0.5"], "no style image: give --style or a look file with styles"),  # not "needs 0 weights"
+    (["-s", STYLE, "--style-mix", "0.5,0.5"], "style_mix needs 1 weight, one per style, not 2"),
+    (["-s", STYLE, "-s", STYLE, "--style-mix", "0,0"], "style_mix: the weights are all 0"),
+    (["-s", STYLE, "--matte", ""], "matte: give a folder of matte frames or 'alpha'"),  # was a traceback mid-render
+])
+def test_style_and_matte_options_that_cannot_work_are_one_line_before_anything_is_written(small_clip, tmp_path,
+                                                                                           options, words):
+    code, _, err = _run("stylise", small_clip, *options, "--out", tmp_path / "o")
+    _one_line_error(code, err, words)
+    assert not (tmp_path / "o").exists()
+
+
+@pytest.mark.parametrize("width", ["-5", "0"])
+def test_a_preview_width_below_1_is_one_line(small_clip, tmp_path, width):
+    code, _, err = _run("preview", small_clip, "-s", STYLE, "--out", tmp_path / "p", "--width", width)
+    _one_line_error(code, err, f"--width {width}: must be 1 or more")
+
+
+def test_a_matte_folder_numbered_with_a_gap_the_input_lacks_is_refused(small_clip, tmp_path):
+    # paired in order, matte 0013 would have gone with take_012: every frame after the gap a frame off
+    mattes = tmp_path / "mattes"
+    mattes.mkdir()
+    frames = sorted(small_clip.glob("take_*.png"))
+    white = np.full(cv2.imread(str(frames[0])).shape, 255, np.uint8)
+    for n in [*range(1, 12), *range(13, len(frames) + 2)]:
+        cv2.imwrite(str(mattes / f"matte_{n:04d}.png"), white)
+    code, _, err = _run("stylise", small_clip, "-s", STYLE, "--matte", mattes, "--out", tmp_path / "o", *FAST)
+    _one_line_error(code, err, "its numbering skips where the input's does not (matte_0013.png would go with take_012.png)")
 
 
 @pytest.fixture

@@ -318,6 +318,15 @@ def test_unreadable_cut_lists_are_named(tmp_path, name, content):
         parse_shot_file(path, PLATE, TC25)
 
 
+def test_a_hand_edited_edl_the_reader_cannot_place_is_one_line_not_a_traceback(tmp_path):
+    # CMX 3600 gives each event its own number; two lines share one only for a dissolve (from memory)
+    path = editors_edl(tmp_path / "hand.edl")
+    path.write_text(path.read_text().replace("003  A002C001", "002  A002C001"))  # a number twice
+    with pytest.raises(FramestyleError, match=r"hand.edl: not a readable CMX 3600 EDL: .* give every event its own "
+                                              r"number \(only a dissolve's two lines share one\)"):
+        parse_shot_file(path, PLATE, TC25)
+
+
 def test_missing_cut_list_is_named(tmp_path):
     with pytest.raises(FramestyleError, match=r"gone.edl: cannot read the cut list"):
         parse_shot_file(tmp_path / "gone.edl", PLATE, TC25)

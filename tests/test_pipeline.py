@@ -97,6 +97,19 @@ def test_a_changed_input_is_refused(small_clip, tmp_path):
         render(clip, out, fast_settings(), shots="2")
 
 
+def test_a_changed_style_image_or_shot_look_is_refused_by_name(small_clip, tmp_path):
+    paint = tmp_path / "paint.png"
+    paint.write_bytes(STYLE.read_bytes())
+    out = tmp_path / "out"
+    settings = fast_settings(styles=(str(paint),), iterations=2, shot_looks={"2": {"strength": 0.5}})
+    render(small_clip, out, settings, shots="1")
+    with pytest.raises(FramestyleError, match=r"different settings \(\[shots.2\] strength\)"):
+        render(small_clip, out, fast_settings(styles=(str(paint),), iterations=2, shot_looks={"2": {"strength": 0.4}}))
+    cv2.imwrite(str(paint), 255 - cv2.imread(str(paint)))
+    with pytest.raises(FramestyleError, match=rf"style image\(s\) changed since this render started \({paint}\)"):
+        render(small_clip, out, settings)
+
+
 def test_shots_can_be_rendered_separately_and_give_the_same_frames(full_render, small_clip, tmp_path):
     out, _, _ = full_render
     part = tmp_path / "parts"

@@ -45,6 +45,13 @@ class Mattes:
                     f"frame per input frame ({source.count}), found {self.folder.count} of "
                     f"{self.folder.width}×{self.folder.height}"
                 )
+            shifts = [m - n for m, n in zip(self.folder.numbers, source.numbers)]
+            if self.folder.kind == source.kind == "folder" and len(set(shifts)) > 1:
+                at = next(i for i, shift in enumerate(shifts) if shift != shifts[0])
+                raise FramestyleError(
+                    f"{spec}: its numbering skips where the input's does not ({self.folder.files[at]} would go "
+                    f"with {source.files[at]}); give one matte frame per input frame, numbered alike"
+                )
         elif spec == "alpha" and not source.has_alpha:
             raise FramestyleError(f"{source.path}: --matte alpha, but the input has no alpha channel")
 

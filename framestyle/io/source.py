@@ -195,6 +195,12 @@ def read_image(path: str | Path) -> np.ndarray:
     return to_rgb(load_image(path))
 
 
+def transparent_share(path: str | Path) -> float:
+    """The share of an image file's pixels that are not fully opaque; 0 without an alpha channel."""
+    alpha = to_alpha(load_image(Path(path)))
+    return 0.0 if alpha is None else float((alpha < 1).mean())
+
+
 def frame_name(source: FrameSource, index: int, ext: str = ".png") -> str:
     """The output file name for frame ``index``: its name stem plus ``ext``."""
     _check_index(source, index)

@@ -97,8 +97,8 @@ def _shot_view(store: Store, files: ReportStore, source: io.FrameSource, setting
     shot_settings = settings.for_shot(shot.index)
     names = output_names(source)
     stem = f"shot_{shot.index:03d}"
-    changed = settings.differences(shot_settings)
-    look = ", ".join(f"{key} {_setting(getattr(shot_settings, key))}" for key in changed if key != "shot_looks")
+    changed = settings.for_shot(0).differences(shot_settings)  # the clip's look against the shot's
+    look = ", ".join(f"{key} {_setting(getattr(shot_settings, key))}" for key in changed)
     view = ShotView(index=shot.index, frames=frame_range(shot, source.numbers),
                     timecode=f"{timecode.label(shot.start)} – {timecode.label(shot.end)}", length=shot.length,
                     series=None, look=look,

@@ -166,6 +166,10 @@ def _record_ranges(path: str | os.PathLike, timecode: ClipTimecode) -> list[tupl
             raise FramestyleError(f"{path}: the event recorded from {overlap[1]} starts before the event listed above "
                                   f"it ends; list the events in record order, without overlaps") from None
         raise FramestyleError(f"{path}: not a readable {kind} at {timecode.fps:g} frames/s ({exc})") from None
+    except (AttributeError, TypeError, IndexError) as exc:  # the CMX 3600 reader trips on a line it cannot place
+        raise FramestyleError(f"{path}: not a readable {kind}: OpenTimelineIO's reader failed ({exc}); give every "
+                              f"event its own number (only a dissolve's two lines share one) in CMX 3600's "
+                              f"columns") from None
     if not isinstance(timeline, otio.schema.Timeline):
         raise FramestyleError(f"{path}: holds a {type(timeline).__name__}, not a timeline")
     tracks = timeline.video_tracks()
