@@ -125,12 +125,17 @@ class Lock:
             os.close(self._fd)  # closing the descriptor releases the flock
             self._fd = None
 
-    def holder(self) -> str:
-        """Who holds the lock, in words, with a way out."""
+    def holder_record(self) -> dict:
+        """What the lock file says of its last holder (pid, host, since); {} if nothing."""
         try:
             who = json.loads(self.path.read_text() or "{}")
         except (OSError, ValueError):
-            who = {}
+            return {}
+        return who if isinstance(who, dict) else {}
+
+    def holder(self) -> str:
+        """Who holds the lock, in words, with a way out."""
+        who = self.holder_record()
         if not who:
             return f"another process holds {self.what}"
         since = time.strftime("%H:%M:%S", time.localtime(who.get("since", 0)))
@@ -322,6 +327,16 @@ class Store:
     def rendering(self, shots: Sequence[int]) -> list[int]:
         """Which of ``shots`` a process renders now (holds its lock), changing nothing."""
         return [shot for shot in shots if self._shot_lock(shot).held()]
+
+    def neighbours(self) -> list[int]:
+        """Process ids of the other processes on this machine that render a shot here now."""
+        pids = set()
+        for path in (self._private / "locks").glob("shot_*.lock"):
+            lock = Lock(path, path.stem)
+            who = lock.holder_record()
+            if who.get("host") == socket.gethostname() and who.get("pid") != os.getpid() and lock.held():
+                pids.add(who["pid"])
+        return sorted(pids)
 
     def _shot_lock(self, shot: int) -> Lock:
         return Lock(self._private / "locks" / f"shot_{shot:03d}.lock", f"shot {shot}")
