@@ -6,9 +6,11 @@ import numpy as np
 import pytest
 
 from footage_edits import (
+    BBB,
     BIKES,
     BIKES_CUTS,
     CUT_TOLERANCE,
+    PHONE,
     Dissolve,
     Edit,
     Fade,
@@ -68,6 +70,25 @@ def test_fade_through_black_gives_one_boundary_on_its_black_frames():
                                   "no cut: fast diagonal pan 1.6x, street"])
 def test_a_flash_or_a_fast_pan_gives_no_boundary(name):
     assert boundaries(EDITS[name]) == []
+
+
+@pytest.mark.parametrize("parts", [
+    # angles of one scene with a 3-frame shot of another clip between them, the camera moving:
+    (Take(BBB, 0, 40, 1.6, (0.2, 0.5), centre_to=(0.8, 0.5), move=(20, 39)), Take(BIKES, 100, 3),
+     Take(BBB, 43, 40)),  # a pan into the insert
+    (Take(BBB, 0, 40, 1.5, (0.5, 0.5), zoom_to=2.0, move=(25, 39)), Take(BIKES, 150, 3),
+     Take(BBB, 43, 40, 1.3, (0.4, 0.5))),  # a push-in, then another framing
+    (Take(BIKES, 137, 30, 1.4, (0.3, 0.5), centre_to=(0.7, 0.5)), Take(BBB, 60, 3),
+     Take(BIKES, 170, 15)),  # a pan along the street
+    (Take(PHONE, 0, 40, 1.3, shake=0.03, seed=3), Take(BIKES, 100, 3),
+     Take(PHONE, 43, 40)),  # a hand-held talking head
+])
+def test_a_3_frame_insert_in_moving_footage_gets_one_of_its_cuts(parts):
+    # Documented: a shot of a few frames between two others gets one cut and joins a neighbour.
+    # The motion around it once hid both cuts (a render wrangler's music-video edit).
+    edit = Edit("insert", "cut", parts)
+    found = boundaries(edit)
+    assert len(found) == 1 and any(abs(found[0] - cut) <= CUT_TOLERANCE for cut in edit.cuts), (found, edit.cuts)
 
 
 # --- the whole evaluation ---------------------------------------------------------------------
