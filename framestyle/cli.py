@@ -5,6 +5,7 @@ import functools
 import inspect
 import json
 import math
+import re
 from pathlib import Path
 from typing import Annotated, Optional
 
@@ -129,7 +130,17 @@ def _settings(options: dict) -> Settings:
     values = overlay(base, given)
     if not values.get("styles"):
         _fail("no style image: give --style or a look file with styles")
-    return _run(Settings.from_dict, values, "options")
+    try:
+        return Settings.from_dict(values, "options")
+    except FramestyleError as exc:  # said with the options' own names where one was given
+        message = str(exc)
+        for key in given:
+            option = _OPTION_NAMES.get(key, "--" + key.replace("_", "-"))
+            message = re.sub(rf"(^options: |; ){key}:", lambda m: f"{m[1]}{option}:", message)
+        _fail(message.removeprefix("options: ") if message.startswith("options: --") else message)
+
+
+_OPTION_NAMES = {"styles": "--style", "temporal": "--no-temporal"}  # settings named otherwise on the command line
 
 
 def _numbers(text: str, option: str) -> tuple[float, ...]:

@@ -225,7 +225,7 @@ def load_look(path: Path) -> dict:
     """
     path = Path(path)
     try:
-        data = tomllib.loads(path.read_text())
+        data = tomllib.loads(path.read_text(encoding="utf-8-sig"))  # a byte-order mark, as some editors save
     except (OSError, UnicodeDecodeError, tomllib.TOMLDecodeError) as exc:
         raise FramestyleError(f"{path}: not a readable look file ({exc})")
     shots = data.pop("shots", {})

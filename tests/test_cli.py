@@ -657,7 +657,9 @@ def test_the_readme_look_example_loads_and_a_shot_or_option_giving_styles_mixes_
 @pytest.mark.parametrize(("options", "words"), [
     (["--style-mix", "0.5"], "no style image: give --style or a look file with styles"),  # not "needs 0 weights"
     (["-s", STYLE, "--style-mix", "0.5,0.5"], "style_mix needs 1 weight, one per style, not 2"),
-    (["-s", STYLE, "-s", STYLE, "--style-mix", "0,0"], "style_mix: the weights are all 0"),
+    (["-s", STYLE, "-s", STYLE, "--style-mix", "0,0"], "--style-mix: the weights are all 0"),
+    (["-s", STYLE, "--stroke-size", "0"], "framestyle: error: --stroke-size: expected greater than 0"),  # its own name
+    (["-s", STYLE, "--strength", "nan"], "--strength: expected a finite number (got nan)"),
     (["-s", STYLE, "--matte", ""], "matte: give a folder of matte frames or 'alpha'"),  # was a traceback mid-render
 ])
 def test_style_and_matte_options_that_cannot_work_are_one_line_before_anything_is_written(small_clip, tmp_path,

@@ -185,6 +185,13 @@ def test_a_bad_look_file_names_the_file_and_the_problem(tmp_path):
         load_look(look)
 
 
+def test_a_look_file_saved_with_a_byte_order_mark_reads(tmp_path):
+    # some editors save UTF-8 with a BOM, which TOML 1.0 does not allow (tomllib: "Invalid statement")
+    look = tmp_path / "look.toml"
+    look.write_text('strength = 0.5\n', encoding="utf-8-sig")
+    assert load_look(look)["strength"] == 0.5
+
+
 def test_coarse_to_fine_solves_a_coarse_level_first_on_a_shots_first_frame(tmp_path):
     # Gatys et al. 2017: optimise at half size, upsample, refine. Warm-started frames already
     # start from the warped previous frame, so only a shot's first frame uses both levels.
