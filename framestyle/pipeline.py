@@ -161,6 +161,14 @@ def render(
     return finish_render(plan, progress)
 
 
+def _unmatched_looks(settings: Settings, shots: int, progress: Progress) -> None:
+    """Say which shots given a look of their own the clip does not have."""
+    unmatched = sorted(int(n) for n in settings.shot_looks if int(n) > shots)
+    if unmatched:
+        progress("warning", message=f"the look's settings for shot(s) {', '.join(map(str, unmatched))} apply to no "
+                                    f"shot: the clip has {shots}")
+
+
 def _crowding(plan: Plan, progress: Progress) -> bool:
     """Say so (and return True) when other processes on this machine render shots of this
     folder and the torch threads of all of them outnumber the cores: each process then runs
@@ -220,10 +228,7 @@ def plan_render(
             store.log(f"new render of {source.path}, settings {settings.digest()}, "
                       f"shots {', '.join(f'{s.index}:{frame_range(s, source.numbers)}' for s in shot_list_)}")
         finished = store.finished()
-    unmatched = sorted(int(n) for n in settings.shot_looks if int(n) > len(shot_list_))
-    if unmatched:
-        progress("warning", message=f"the look's settings for shot(s) {', '.join(map(str, unmatched))} apply to no "
-                                    f"shot: the clip has {len(shot_list_)}")
+    _unmatched_looks(settings, len(shot_list_), progress)
     if keep_shot_list and manifest is not None and manifest["shot_list"]["file"]:
         shot_file = Path(manifest["shot_list"]["file"])  # resumed: the list it was started with
     timecode = clip_timecode(source, settings, shot_file)
@@ -875,6 +880,7 @@ def preview(input_path: Path, out: Path, settings: Settings, every: int, *, widt
     if render_of is not None:  # the preview goes beside a render of the same footage only
         check_footage(render_of, source, out)
     shot_list = find_shots(source, settings, shot_file)
+    _unmatched_looks(settings, len(shot_list), progress)
     wanted = parse_shot_selection(shots, len(shot_list)) if shots else [s.index for s in shot_list]
     chosen = {i: shot for shot in shot_list if shot.index in wanted for i in sample_frames(shot.start, shot.end, every)}
     size = working_size(source.width, source.height, settings.width, net.min_side, source.pixel_aspect)

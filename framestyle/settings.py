@@ -228,6 +228,8 @@ def load_look(path: Path) -> dict:
         data = tomllib.loads(path.read_text(encoding="utf-8-sig"))  # a byte-order mark, as some editors save
     except (OSError, UnicodeDecodeError, tomllib.TOMLDecodeError) as exc:
         raise FramestyleError(f"{path}: not a readable look file ({exc})")
+    if "shot_looks" in data:  # the settings' own name for the [shots.N] tables
+        raise FramestyleError(f"{path}: shot_looks: unknown setting; give a shot its look in a [shots.N] table")
     shots = data.pop("shots", {})
     if not isinstance(shots, dict) or not all(isinstance(v, dict) for v in shots.values()):
         raise FramestyleError(f"{path}: shots: expected tables like [shots.2]")

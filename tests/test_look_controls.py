@@ -13,7 +13,7 @@ from framestyle import io, store
 from framestyle.finish.colour import rgb_to_ycbcr, srgb_to_linear
 from framestyle.finish.compose import mix
 from framestyle.errors import FramestyleError
-from framestyle.pipeline import plan_render, render
+from framestyle.pipeline import plan_render, preview, render
 from framestyle.settings import Settings, load_look
 from framestyle.working import deliver, prepare_frame
 
@@ -170,6 +170,17 @@ def test_a_shot_look_for_a_shot_the_clip_does_not_have_is_said(small_clip, tmp_p
     plan_render(small_clip, tmp_path / "out", settings, progress=lambda e, **i: events.append((e, i)))
     warnings = [i["message"] for e, i in events if e == "warning"]
     assert warnings == ["the look's settings for shot(s) 5 apply to no shot: the clip has 2"]
+    events.clear()  # a preview says so too
+    preview(small_clip, tmp_path / "p", settings, 20, shots="1", progress=lambda e, **i: events.append((e, i)))
+    assert "the look's settings for shot(s) 5 apply to no shot: the clip has 2" in [
+        i["message"] for e, i in events if e == "warning"]
+
+
+def test_a_look_file_may_not_set_the_settings_own_shot_looks(tmp_path):
+    look = tmp_path / "look.toml"
+    look.write_text('shot_looks = {}\n')
+    with pytest.raises(FramestyleError, match=r"look.toml: shot_looks: unknown setting; .* \[shots.N\] table"):
+        load_look(look)
 
 
 def test_a_bad_look_file_names_the_file_and_the_problem(tmp_path):
