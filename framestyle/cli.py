@@ -90,7 +90,7 @@ def _settings_options(
         _check_path(Path(matte), "matte folder")
     given.update(
         styles=[str(p.resolve()) for p in style] if style else None,
-        style_mix=_numbers(style_mix, "--style-mix") if style_mix else None,
+        style_mix=_numbers(style_mix, "--style-mix") if style_mix is not None else None,
         matte=str(Path(matte).resolve()) if matte and matte != "alpha" else matte,
         network_weights=str(network_weights.resolve()) if network_weights else None,
         temporal=False if no_temporal else None,

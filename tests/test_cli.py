@@ -661,6 +661,8 @@ def test_the_readme_look_example_loads_and_a_shot_or_option_giving_styles_mixes_
     (["-s", STYLE, "--stroke-size", "0"], "framestyle: error: --stroke-size: expected greater than 0"),  # its own name
     (["-s", STYLE, "--strength", "nan"], "--strength: expected a finite number (got nan)"),
     (["-s", STYLE, "--matte", ""], "matte: give a folder of matte frames or 'alpha'"),  # was a traceback mid-render
+    (["-s", STYLE, "--style-mix", ""], "--style-mix '': expected numbers like 0.7,0.3"),  # was silently equal
+    (["-s", STYLE, "--matte", "alpha"], "the matte is to be the input's alpha, but the input has no alpha channel"),
 ])
 def test_style_and_matte_options_that_cannot_work_are_one_line_before_anything_is_written(small_clip, tmp_path,
                                                                                            options, words):

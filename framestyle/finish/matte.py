@@ -53,7 +53,8 @@ class Mattes:
                     f"with {source.files[at]}); give one matte frame per input frame, numbered alike"
                 )
         elif spec == "alpha" and not source.has_alpha:
-            raise FramestyleError(f"{source.path}: --matte alpha, but the input has no alpha channel")
+            raise FramestyleError(f"{source.path}: the matte is to be the input's alpha, but the input has no alpha "
+                                  f"channel")
 
     def __call__(self, index: int, softness: float) -> np.ndarray | None:
         """The softened (H, W) matte of frame ``index``, or None without mattes."""
