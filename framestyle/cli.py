@@ -136,7 +136,8 @@ def _settings(options: dict) -> Settings:
         message = str(exc)
         for key in given:
             option = _OPTION_NAMES.get(key, "--" + key.replace("_", "-"))
-            message = re.sub(rf"(^options: |; ){key}:", lambda m: f"{m[1]}{option}:", message)
+            message = re.sub(rf"(^options: |; ){key}(?:\.(\d+))?:",
+                             lambda m: f"{m[1]}{option}{f' (value {int(m[2]) + 1})' if m[2] else ''}:", message)
         _fail(message.removeprefix("options: ") if message.startswith("options: --") else message)
 
 

@@ -504,11 +504,11 @@ def test_a_broken_json_shot_list_is_reported_as_json(small_clip, tmp_path):
 
 
 @pytest.mark.parametrize("option, value, words", [
-    ("--style-weight", "inf", "style_weight: expected a finite number"),
-    ("--temporal-weight", "1e300", "temporal_weight: expected less than or equal to 1000000"),
-    ("--style-mix", "inf,1", "style_mix.0: expected a finite number"),
-    ("--matte-softness", "1e9", "matte_softness: expected less than or equal to 1000"),
-    ("--stroke-size", "inf", "stroke_size: expected a finite number"),
+    ("--style-weight", "inf", "--style-weight: expected a finite number"),
+    ("--temporal-weight", "1e300", "--temporal-weight: expected less than or equal to 1000000"),
+    ("--style-mix", "inf,1", "--style-mix (value 1): expected a finite number"),
+    ("--matte-softness", "1e9", "--matte-softness: expected less than or equal to 1000"),
+    ("--stroke-size", "inf", "--stroke-size: expected a finite number"),
 ])
 def test_an_infinite_or_overflowing_number_is_refused_before_anything_is_written(small_clip, tmp_path, option, value,
                                                                                   words):
