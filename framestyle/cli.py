@@ -205,8 +205,8 @@ class _Bars:
             self.progress.advance(self.total)
             if self.shot_task is not None and not self.in_passes:  # a pass's bar is full by delivery
                 self.progress.advance(self.shot_task)
-        elif event == "farm":  # frames done across workers, and which shot each worker is on
-            busy = ", ".join(f"shot {n}" for n in sorted(filter(None, info["workers"].values())))
+        elif event == "farm":  # frames done across workers, and the shots being rendered
+            busy = ", ".join(f"shot {n}" for n in info["shots"])
             self.progress.update(self.total, completed=info["done"],
                                  description=f"all frames ({busy or 'idle'})")
         elif event == "waiting":

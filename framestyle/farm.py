@@ -20,6 +20,7 @@ from __future__ import annotations
 import logging
 import os
 import time
+import uuid
 from pathlib import Path
 
 from framestyle.errors import FramestyleError
@@ -31,6 +32,7 @@ from framestyle.store import FLASH_KINDS, Store
 RESOURCE = "shot"  # the Dask worker resource a shot task needs: one shot per worker at a time
 _CONNECT_TIMEOUT = "5s"
 _POLL_SECONDS = 1.0
+_NO_WORKER_SECONDS = 30.0  # a worker killed is restarted by its nanny within seconds; past this, none is left
 
 
 def farm_render(
@@ -46,9 +48,9 @@ def farm_render(
     scheduler : address of a running Dask scheduler whose workers see the same input and
         output paths, each offering one ``shot`` resource
     threads : torch threads per worker (default: this machine's cores / ``workers`` locally,
-        the worker machine's cores on a shared cluster)
-    progress : as :func:`pipeline.render`, plus ``"farm"`` events (done, workers: address →
-        shot number) about once a second
+        on a shared cluster the worker machine's cores shared among its shot workers)
+    progress : as :func:`pipeline.render`, plus ``"farm"`` events (done, shots: the shots being
+        rendered in the folder now) about once a second
     """
     from distributed import Client, LocalCluster
 
@@ -57,6 +59,10 @@ def farm_render(
     local_threads = threads or max(1, (os.cpu_count() or 1) // workers)
     if scheduler is None:
         _set_threads(local_threads)  # recorded with the render: what each worker computes with
+    # Dask's own log lines (a lost connection's traceback ...) would bury the one line said here
+    for name in ["distributed", *logging.root.manager.loggerDict]:
+        if name.startswith("distributed"):
+            logging.getLogger(name).setLevel(logging.CRITICAL)
     client = None if scheduler is None else _connect(scheduler)  # before the output folder is touched
     cluster = None
     try:
@@ -72,7 +78,8 @@ def farm_render(
             cluster = LocalCluster(n_workers=workers, threads_per_worker=1, processes=True, resources={RESOURCE: 1},
                                    memory_limit=0, dashboard_address=None, silence_logs=logging.CRITICAL)
             client = Client(cluster)
-        _run_shots(client, plan, local_threads if scheduler is None else threads, progress)
+        _run_shots(client, plan, local_threads if scheduler is None else threads, progress,
+                   "the local cluster" if scheduler is None else f"--scheduler {scheduler}")
     finally:
         if client is not None:
             client.close()
@@ -100,38 +107,75 @@ def _connect(scheduler: str):
     return client
 
 
-def _run_shots(client, plan: Plan, threads: int | None, progress: Progress) -> None:
-    """Submit one task per wanted shot, longest first; report progress; stop at a user error."""
-    from distributed import KilledWorker
+def _run_shots(client, plan: Plan, threads: int | None, progress: Progress, where: str) -> None:
+    """Submit one task per wanted shot, longest first; report progress; stop at a user error.
 
+    Task keys carry a token of this submission, so two renders sent to one cluster never
+    share a task. Without ``threads`` a worker takes its machine's cores shared among the
+    shot workers on that machine. ``where`` names the cluster in messages."""
+    from distributed import KilledWorker
+    from distributed.client import FutureCancelledError
+
+    token = uuid.uuid4().hex[:8]
+    shares = _workers_per_machine(client)
     order = sorted(plan.wanted, key=lambda n: (-plan.shots[n - 1].length, n))
-    futures = {client.submit(_shot_task, plan, n, threads, key=f"shot-{n}", resources={RESOURCE: 1}, pure=False,
-                             priority=plan.shots[n - 1].length): n for n in order}
+    futures = {client.submit(_shot_task, plan, n, threads, shares, key=f"shot-{n}-{token}", resources={RESOURCE: 1},
+                             pure=False, priority=plan.shots[n - 1].length): n for n in order}
     store, names = Store(plan.out), plan.names
     wanted = {names[i] for n in plan.wanted for i in range(plan.shots[n - 1].start, plan.shots[n - 1].end + 1)}
-    pending, error = set(futures), None
+    pending, error, died, alone_since = set(futures), None, [], None
     while pending:
         time.sleep(_POLL_SECONDS)
-        done = {f for f in pending if f.done()}
-        pending -= done
-        for future in done:
-            try:
-                progress("shot", summary=future.result())
-                _warn_flashes(store, futures[future], progress)
-            except (FramestyleError, KilledWorker) as exc:  # a user error in one shot: start no further shot
-                if isinstance(exc, KilledWorker):
-                    exc = FramestyleError(f"shot {futures[future]}: the workers rendering it died repeatedly "
-                                          f"(out of memory?); the frames it finished are kept")
-                error = error or exc
-                for other in pending:
-                    if other.status == "pending" and not _running(client, other.key):
-                        other.cancel()
-                pending = {f for f in pending if not f.cancelled()}
+        try:
+            done = {f for f in pending if f.done()}
+            pending -= done
+            for future in done:
+                try:
+                    progress("shot", summary=future.result())
+                    _warn_flashes(store, futures[future], progress)
+                except KilledWorker:
+                    died.append(futures[future])
+                except FramestyleError as exc:  # a user error in one shot: start no further shot
+                    error = error or exc
+                if error or died:
+                    for other in pending:
+                        if other.status == "pending" and not _running(client, other.key):
+                            other.cancel()
+                    pending = {f for f in pending if not f.cancelled()}
+            if not _workers_per_machine(client):  # every worker offering the resource is gone
+                alone_since = alone_since or time.monotonic()
+                if time.monotonic() - alone_since > _NO_WORKER_SECONDS:
+                    raise FramestyleError(f"{where}: no worker offering the '{RESOURCE}' resource has been there for "
+                                          f"{_NO_WORKER_SECONDS:.0f} s; the frames finished are kept: start workers "
+                                          f"and run the same command again")
+            else:
+                alone_since = None
+        except (FutureCancelledError, OSError) as exc:  # the scheduler went away (CommClosedError is an OSError)
+            reason = (str(exc).strip().splitlines() or [type(exc).__name__])[0]
+            raise FramestyleError(f"{where}: lost the Dask scheduler ({reason}); the frames finished are kept: run "
+                                  f"the same command again, or with --workers N on this machine") from None
         finished = sum(1 for name in store.finished() if name in wanted)
-        on = {address: _shot_of(keys) for address, keys in client.processing().items()}
-        progress("farm", done=finished, workers=on)
+        progress("farm", done=finished, shots=store.rendering(plan.wanted))
+    if died:
+        shots = ", ".join(map(str, sorted(died)))
+        error = error or FramestyleError(f"shot(s) {shots}: the workers rendering or holding them died repeatedly "
+                                         f"(out of memory?); the frames they finished are kept")
     if error is not None:
         raise error
+    unfinished = sorted({n for n in plan.wanted for i in range(plan.shots[n - 1].start, plan.shots[n - 1].end + 1)
+                         if names[i] not in store.finished()})
+    if unfinished:  # a task that returned without its frames: never exit 0 with frames missing
+        raise FramestyleError(f"{plan.out}: shot(s) {', '.join(map(str, unfinished))} came back from {where} "
+                              f"unfinished; run the same command again to finish them")
+
+
+def _workers_per_machine(client) -> dict[str, int]:
+    """For each worker offering the shot resource (by address), how many such workers share
+    its machine."""
+    workers = {address: info for address, info in client.scheduler_info()["workers"].items()
+               if info.get("resources", {}).get(RESOURCE)}
+    hosts = [info.get("host", address) for address, info in workers.items()]
+    return {address: hosts.count(host) for address, host in zip(workers, hosts)}
 
 
 def _warn_flashes(store: Store, shot: int, progress: Progress) -> None:
@@ -142,21 +186,16 @@ def _warn_flashes(store: Store, shot: int, progress: Progress) -> None:
         progress("warning", message=warning)
 
 
-def _shot_of(keys) -> int | None:
-    """The shot number of the task a worker is processing (keys are ``shot-N``), or None."""
-    for key in keys:
-        if isinstance(key, str) and key.startswith("shot-"):
-            return int(key[5:])
-    return None
-
-
 def _running(client, key: str) -> bool:
     return any(key in keys for keys in client.processing().values())
 
 
-def _shot_task(plan: Plan, index: int, threads: int | None):
-    """A shot on a worker: render it (resuming its record), with this worker's thread count."""
-    _set_threads(threads or os.cpu_count() or 1)
+def _shot_task(plan: Plan, index: int, threads: int | None, shares: dict[str, int]):
+    """A shot on a worker: render it (resuming its record), with ``threads`` torch threads, or
+    its machine's cores shared among the ``shares[address]`` shot workers there."""
+    from distributed import get_worker
+
+    _set_threads(threads or max(1, (os.cpu_count() or 1) // shares.get(get_worker().address, 1)))
     started = time.time()
     summary = render_shot(plan, index, wait=True, check_flashes=True)
     Store(plan.out).log(f"shot {index} rendered on {os.uname().nodename} pid {os.getpid()} "

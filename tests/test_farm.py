@@ -1,5 +1,6 @@
 """The render farm: shots as Dask tasks on local workers or a shared cluster, with faults."""
 
+import contextlib
 import json
 import os
 import signal
@@ -112,27 +113,58 @@ def test_a_user_error_in_one_shot_stops_the_render_with_one_line(small_clip, tmp
         assert (out / name).stat().st_size > 0
 
 
-def test_a_shared_cluster_started_with_dasks_own_commands(four_shots, one_process, tmp_path):
-    # As the README says: `dask scheduler`, then workers with one thread and one "shot" resource.
+@contextlib.contextmanager
+def _cluster(tmp_path: Path, workers: int = 2):
+    """As the README says: `dask scheduler`, then workers with one thread and one "shot"
+    resource. Yields (address, the scheduler's process)."""
     dask = str(Path(sys.executable).parent / "dask")
     address_file = tmp_path / "scheduler.json"
     scheduler = subprocess.Popen([dask, "scheduler", "--port", "0", "--no-dashboard", "--scheduler-file",
                                   str(address_file)], env=ENV, stderr=subprocess.DEVNULL)
-    workers = []
+    started = []
     try:
         deadline = time.time() + 60
         while not address_file.exists() and time.time() < deadline:
             time.sleep(0.1)
         address = json.loads(address_file.read_text())["address"]
-        workers = [subprocess.Popen([dask, "worker", address, "--nthreads", "1", "--resources", "shot=1",
-                                     "--no-dashboard"], env=ENV, stderr=subprocess.DEVNULL) for _ in range(2)]
+        started = [subprocess.Popen([dask, "worker", address, "--nthreads", "1", "--resources", "shot=1",
+                                     "--no-dashboard"], env=ENV, stderr=subprocess.DEVNULL) for _ in range(workers)]
+        yield address, scheduler
+    finally:
+        for p in [*started, scheduler]:
+            p.terminate()
+            p.wait(timeout=60)
+
+
+def test_a_shared_cluster_started_with_dasks_own_commands(four_shots, one_process, tmp_path):
+    with _cluster(tmp_path) as (address, _):
         proc = _stylise(*four_shots, tmp_path / "farm", "--scheduler", address, "--threads", "1")
         assert proc.wait(timeout=600) == 0, proc.stderr.read()
         assert _pngs(tmp_path / "farm") == _pngs(one_process)
-    finally:
-        for p in [*workers, scheduler]:
-            p.terminate()
-            p.wait(timeout=60)
+
+
+def test_two_renders_sent_to_one_cluster_at_once_each_get_all_their_frames(four_shots, one_process, tmp_path):
+    # Their tasks were both named shot-1 ... shot-4, so the second render was handed the first's
+    # results and exited 0 with none or some of its frames (a wrangler's farm sweep)
+    with _cluster(tmp_path) as (address, _):
+        renders = [_stylise(*four_shots, tmp_path / name, "--scheduler", address, "--threads", "1")
+                   for name in ("a", "b")]
+        for proc in renders:
+            assert proc.wait(timeout=900) == 0, proc.stderr.read()
+    assert _pngs(tmp_path / "a") == _pngs(tmp_path / "b") == _pngs(one_process)
+
+
+def test_a_lost_scheduler_is_one_line(four_shots, tmp_path):
+    with _cluster(tmp_path) as (address, scheduler):
+        proc = _stylise(*four_shots, tmp_path / "farm", "--scheduler", address, "--threads", "1",
+                        "--iterations", "30")
+        deadline = time.time() + 300
+        while not list((tmp_path / "farm").glob("take_*.png")) and time.time() < deadline:
+            time.sleep(0.2)
+        scheduler.kill()  # a traceback ending in FutureCancelledError, exit 1, before
+        assert proc.wait(timeout=300) == 2
+        err = proc.stderr.read().strip().splitlines()
+        assert len(err) == 1 and f"--scheduler {address}: lost the Dask scheduler" in err[0], err
 
 
 def test_resume_with_workers_continues_a_render_started_in_one_process(four_shots, one_process, tmp_path):
