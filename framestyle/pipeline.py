@@ -22,6 +22,7 @@ import importlib.metadata
 import math
 import os
 import re
+import socket
 import time
 from collections import deque
 from dataclasses import dataclass, field
@@ -461,6 +462,9 @@ def render_shot(plan: Plan, index: int, progress: Progress = no_progress, wait: 
             work.store.log(problem)
         finished = work.record["frames"]
         todo = [i for i in range(shot.start, shot.end + 1) if names[i] not in finished]
+        if todo and len(todo) < shot.length:  # a takeover the log should show: who, from where
+            work.store.log(f"shot {index}: continued at {names[todo[0]]} by pid {os.getpid()} on "
+                           f"{socket.gethostname()}, {shot.length - len(todo)} of its frames done before")
         if todo:
             _ShotRender(plan, work, settings, shot).run(todo, progress)
         else:  # a process killed as it finished the shot may have left its state and pass counts

@@ -63,6 +63,8 @@ def kill_and_resume(clip: Path, tmp_path: Path, options: list[str]) -> None:
     assert {name: (killed / name).stat().st_mtime_ns for name in finished} == stamps
     log = (killed / "render.log").read_text()
     assert "resuming" in log
+    continued = [line for line in log.splitlines() if "shot 1: continued at" in line]
+    assert len(continued) == 1 and f"{len(finished)} of its frames done before" in continued[0], log
     for name in finished:  # each finished frame was solved exactly once across both runs
         assert log.count(f"frame {name} ") == 1
 
