@@ -162,8 +162,9 @@ def _run_shots(client, plan: Plan, threads: int | None, progress: Progress, wher
                                          f"(out of memory?); the frames they finished are kept")
     if error is not None:
         raise error
-    unfinished = sorted({n for n in plan.wanted for i in range(plan.shots[n - 1].start, plan.shots[n - 1].end + 1)
-                         if names[i] not in store.finished()})
+    done = store.finished()
+    unfinished = [n for n in plan.wanted
+                  if any(names[i] not in done for i in range(plan.shots[n - 1].start, plan.shots[n - 1].end + 1))]
     if unfinished:  # a task that returned without its frames: never exit 0 with frames missing
         raise FramestyleError(f"{plan.out}: shot(s) {', '.join(map(str, unfinished))} came back from {where} "
                               f"unfinished; run the same command again to finish them")

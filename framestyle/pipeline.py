@@ -368,8 +368,8 @@ def setting_warnings(source: io.FrameSource, settings: Settings, min_side: int, 
         if unmixed:
             messages.append(f"style_mix{label}: {', '.join(unmixed)} weighted 0, so no part of the look")
         for style in variant.styles:
-            style_size = io.image_header(Path(style))[:2]
-            hidden = io.transparent_share(style) if io.image_header(Path(style))[2] else 0.0
+            *style_size, has_alpha, _ = io.image_header(Path(style))
+            hidden = io.transparent_share(style) if has_alpha else 0.0
             if hidden:
                 messages.append(f"{style}{label}: {hidden:.0%} of the style image is transparent, and the colour "
                                 f"hidden there counts in the look as if it showed; flatten it onto the background "
