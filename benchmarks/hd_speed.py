@@ -62,7 +62,7 @@ from common import ROOT, SAMPLE_STYLE, target_line
 
 CLIP = "bigbuckbunny.mp4"
 START = 32  # bigbuckbunny: the rabbit steps out of his burrow (7-8 grey levels of change a frame)
-BEFORE = {"levels": 3, "warm_levels": 1, "precision": "float32", "feature_blur": 3}
+BEFORE = {"levels": 3, "warm_levels": 1, "image_scales": 1, "precision": "float32", "feature_blur": 3}
 """The "before" render: every speed lever off by its setting."""
 BEFORE_PORTABLE = {"levels": 3}
 """What a "before" render with ``--before-tree`` sets (settings every version knows)."""

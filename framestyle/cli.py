@@ -64,6 +64,7 @@ def _settings_options(
     matte_softness: Annotated[Optional[float], typer.Option(help=f"Soft matte edge, Gaussian sigma in pixels (default {Settings.matte_softness}).")] = None,
     levels: Annotated[Optional[int], typer.Option(help="Coarse-to-fine levels for a shot's first frame: solve at 1/2, 1/4 ... of the size first (default: 1 up to 640 pixels wide, above that enough for the first level to be at most 480 wide).")] = None,
     warm_levels: Annotated[Optional[int], typer.Option(help=f"Coarse-to-fine levels for frames that start from the previous stylised frame (default {Settings.warm_levels}).")] = None,
+    image_scales: Annotated[Optional[int], typer.Option(help=f"Scales a frame solved on its own (a shot's first) is optimised over at each level, from its pixels to 1/2, 1/4 ... of the size: broad areas settle in fewer iterations; 1: its pixels alone (default {Settings.image_scales}).")] = None,
     network: Annotated[Optional[str], typer.Option(help=f"Perceptual network: efficientnet-lite0 or vgg19 (default {Settings.network}).")] = None,
     network_weights: Annotated[Optional[Path], typer.Option(help="Weights file for the network (needed for vgg19 offline).")] = None,
     feature_blur: Annotated[Optional[int], typer.Option(help=f"EfficientNet-Lite0's low-pass filter before each subsampling, 3 or 5 taps: 5 is steadier along a shot and paints a little more over the footage, with slightly softer fine texture (default {Settings.feature_blur}).")] = None,

@@ -425,7 +425,7 @@ def solver_params(settings: Settings) -> SolverParams:
         tv_weight=settings.tv_weight, warm_tv_weight=settings.warm_tv_weight,
         temporal_weight=settings.temporal_weight,
         iterations=settings.iterations, warm_iterations=settings.warm_iterations, tolerance=settings.tolerance, levels=settings.levels,
-        warm_levels=settings.warm_levels, content_layer=settings.content_layer, precision=settings.precision,
+        warm_levels=settings.warm_levels, image_scales=settings.image_scales, content_layer=settings.content_layer, precision=settings.precision,
     )
 
 

@@ -65,6 +65,8 @@ class Settings:
     levels: Annotated[int, Field(ge=1, le=6)] | None = None  # coarse-to-fine levels: first solve at
     #                                 1/2**(levels-1); None: by working width (style.solver.coarse_levels)
     warm_levels: Annotated[int, Field(ge=1, le=6)] = 1  # the same for frames that start from the previous one
+    image_scales: Annotated[int, Field(ge=1, le=6)] = 3  # scales a frame solved on its own is optimised
+    #                                 over at each level (Mordvintsev et al. 2018); 1: its pixels
     shot_looks: dict[str, dict[str, Any]] = dataclasses.field(default_factory=dict)  # {"2": {"strength": 0.5}}
     # --- network and solver -----------------------------------------------------------------
     network: Literal[NETWORKS] = "efficientnet-lite0"  # perceptual network

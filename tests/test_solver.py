@@ -165,3 +165,58 @@ def test_warm_iterations_caps_frames_with_temporal_terms_only(setup):
     assert solver.solve_coarse_to_fine(net, _problem(content), one_level, params)[1].iterations == 12
     uncapped = dataclasses.replace(params, warm_iterations=None)
     assert solver.solve_coarse_to_fine(net, warm, one_level, uncapped)[1].iterations == 12
+
+
+def test_a_constant_at_any_scale_shifts_the_whole_image_and_each_scale_gets_the_whole_gradient():
+    # Bilinear interpolation's weights sum to 1 at every output pixel (a partition of unity,
+    # common practice of image resampling): a constant coordinate at a coarse scale adds that
+    # constant everywhere, and the gradient a scale's coordinates receive sums to the pixels'.
+    sizes = solver.scale_sizes((40, 24), 3)
+    assert sizes == [(40, 24), (20, 12), (10, 6)]
+    assert solver.scale_sizes((5, 3), 3) == [(5, 3), (2, 2), (1, 1)]  # halvings rounded, at least a pixel
+    counts = [3 * w * h for w, h in sizes]
+    start = torch.rand(1, 3, 24, 40)
+    z = torch.zeros(sum(counts))
+    z[counts[0] + counts[1]:] = 0.25
+    assert torch.allclose(solver.multiscale_image(start, z, sizes), start + 0.25)
+    z = torch.zeros(sum(counts), requires_grad=True)
+    g = torch.randn(1, 3, 24, 40, dtype=torch.float64).float()
+    (solver.multiscale_image(start, z, sizes) * g).sum().backward()
+    offset = 0
+    for (w, h), count in zip(sizes, counts):
+        per_channel = z.grad[offset:offset + count].view(3, h, w).sum(dim=(1, 2))
+        assert torch.allclose(per_channel, g[0].sum(dim=(1, 2)), rtol=1e-4, atol=1e-4)
+        offset += count
+
+
+def test_a_frame_on_its_own_converges_faster_over_scales_and_a_warm_frame_keeps_its_pixels(setup):
+    # Mordvintsev et al. 2018: optimising an image's multi-scale coordinates moves broad areas in
+    # fewer steps; a warm-started frame (Ruder et al. 2016) is refined over its pixels alone.
+    net, targets, content = setup
+    pixels = SolverParams(iterations=100, tolerance=0.0, image_scales=1)
+    scales = dataclasses.replace(pixels, image_scales=3)
+    total = lambda stats: pixels.style_weight * stats.style + pixels.content_weight * stats.content
+    _, alone = solve(net, _problem(content), targets, pixels)
+    _, over_scales = solve(net, _problem(content), targets, scales)
+    assert total(over_scales) < 0.95 * total(alone)
+    start = to_tensor(content)
+    warm = Problem(start, _problem(content).init, [(start, torch.ones(1, 1, SIZE[1], SIZE[0]))])
+    short = dataclasses.replace(pixels, iterations=8)
+    assert torch.equal(solve(net, warm, targets, short)[0],
+                       solve(net, warm, targets, dataclasses.replace(short, image_scales=3))[0])
+
+
+def test_coarse_to_fine_gives_the_coarsest_level_the_cap_and_each_finer_one_the_finest_share(setup, monkeypatch):
+    # Gatys et al. 2017, Sec. 6: the coarsest level places the structures; over scales it leaves
+    # the finer levels only refinement, each capped at the cap / 4**(levels - 1) (at least 10).
+    net, _, content = setup
+    caps = []
+    monkeypatch.setattr(solver, "solve", lambda net, problem, style, params, iterations=None:
+                        caps.append(iterations) or (problem.init, solver.SolveStats(iterations, 0.0, 0.0, 0.0)))
+    big = resize(content, (1280, 720))
+    fresh = fresh_problem(big, start_noise((1, 3, 720, 1280), 0, 0))
+    _, stats = solver.solve_coarse_to_fine(net, fresh, lambda size: {}, SolverParams(iterations=300))
+    assert caps == [300, 18, 18] and stats.iterations == 336
+    caps.clear()
+    solver.solve_coarse_to_fine(net, fresh, lambda size: {}, SolverParams(iterations=300, levels=4))
+    assert caps == [300, 10, 10, 10]
