@@ -193,3 +193,82 @@ def test_resume_with_workers_continues_a_render_started_in_one_process(four_shot
     one_shot = subprocess.run([sys.executable, "-m", "framestyle", "resume", str(out), "--workers", "2", "--shots", "4"],
                               env=ENV, capture_output=True, text=True, timeout=600)
     assert one_shot.returncode == 0 and "--workers 2 for 1 shot(s)" in one_shot.stderr, one_shot.stderr
+
+
+class _Future:
+    """The part of a distributed Future that farm._run_shots reads; ``outcome`` is what the shot's
+    task ends with (a value, an exception to raise) or None while it is queued or running."""
+
+    def __init__(self, key, outcome):
+        self.key, self._outcome, self.status = key, outcome, "pending"
+
+    def done(self):
+        return self._outcome is not None
+
+    def result(self):
+        if isinstance(self._outcome, BaseException):
+            raise self._outcome
+        return self._outcome
+
+    def cancel(self):
+        self.status = "cancelled"
+
+    def cancelled(self):
+        return self.status == "cancelled"
+
+
+class _Cluster:
+    """A scheduler's answers without a scheduler: its shot workers and each shot's outcome."""
+
+    def __init__(self, workers, outcomes):
+        self.workers, self.outcomes, self.submitted, self.polls = workers, outcomes, {}, 0
+
+    def submit(self, fn, plan, shot, *args, key, **options):
+        self.submitted[shot] = _Future(key, self.outcomes.get(shot))
+        return self.submitted[shot]
+
+    def scheduler_info(self):
+        self.polls += 1
+        assert self.polls < 1000, "the render is still waiting"  # fail, never hang
+        return {"workers": self.workers}
+
+    def processing(self):
+        return {}
+
+
+def _plan(tmp_path, shots):
+    from types import SimpleNamespace
+
+    from framestyle.shots.shot import Shot
+
+    cut = [Shot(n, 5 * (n - 1), 5 * n - 1) for n in range(1, shots + 1)]
+    return SimpleNamespace(wanted=tuple(range(1, shots + 1)), shots=tuple(cut), out=tmp_path,
+                           names=[f"take_{i:03d}.png" for i in range(5 * shots)])
+
+
+def test_a_cluster_left_without_a_shot_worker_is_one_line_after_a_grace_period(tmp_path, monkeypatch):
+    # a killed worker's nanny restarts it within seconds; a cluster with no shot worker for longer
+    # waited forever before (a farm sweep); now it is one line that says how to go on
+    monkeypatch.setattr(farm, "_POLL_SECONDS", 0.01)
+    monkeypatch.setattr(farm, "_NO_WORKER_SECONDS", 0.2)
+    cluster = _Cluster({"tcp://10.0.0.1:1": {"host": "10.0.0.1", "resources": {}}}, {})
+    started = time.monotonic()
+    with pytest.raises(farm.FramestyleError, match="no worker offering the 'shot' resource has been there for 0 s"):
+        farm._run_shots(cluster, _plan(tmp_path, 2), None, lambda *a, **k: None, "--scheduler tcp://x:8786")
+    assert 0.2 <= time.monotonic() - started < 5
+
+
+def test_every_shot_whose_workers_died_is_named_and_queued_shots_are_not_started(tmp_path, monkeypatch):
+    from distributed import KilledWorker
+
+    monkeypatch.setattr(farm, "_POLL_SECONDS", 0.01)
+    worker = {"tcp://10.0.0.1:1": {"host": "10.0.0.1", "resources": {"shot": 1}}}
+    died = KilledWorker("shot-1", "tcp://10.0.0.1:1", 3)
+    cluster = _Cluster(worker, {1: died, 2: died})  # shot 3 still queued
+    seen = []
+    with store.Store(tmp_path).shot(3, wait=False) as held:  # another process renders shot 3 meanwhile
+        assert held is not None
+        with pytest.raises(farm.FramestyleError, match=r"^shot\(s\) 1, 2: the workers rendering or holding them died"):
+            farm._run_shots(cluster, _plan(tmp_path, 3), None, lambda kind, **k: seen.append((kind, k)), "2 workers")
+    assert cluster.submitted[3].cancelled()  # its task, queued, is not started after the deaths
+    assert seen == [("farm", {"done": 0, "shots": [3]})]  # progress names the shots whose locks are held
