@@ -235,15 +235,15 @@ def solve_coarse_to_fine(
     Coarse-to-fine optimisation (Gatys et al. 2017, "Controlling Perceptual Factors in Neural
     Style Transfer", Sec. 6) places large structures cheaply at low resolution, which makes
     large frames practical on a CPU: the coarsest level gets the full iteration cap, each
-    finer level (4× the pixels a level) cap / 4**(levels−1) (at least 10, at most the cap) as it refines an
-    upsampled solution; solved over scales (``params.image_scales``) the coarsest level
-    leaves the levels between little more to do than the finest (at 1280×720 a middle
-    level of 20 iterations instead of 75 saved 6 s of a 30 s first frame for +7 % style
-    and +1 % content loss, both still far below the pixels' with 75). A frame without temporal
-    terms uses ``params.levels``; a warm-started frame ``params.warm_levels``, with its
-    temporal terms (Ruder et al. 2016) at every level, and each finer level starts from the
-    warped start plus the coarser level's upsampled correction of it, so the warped frame's
-    fine detail is kept.
+    finer level (4× the pixels a level) cap / 4**(levels−1), at least 10 and at most the
+    cap, as it refines an upsampled solution; solved over scales (``params.image_scales``)
+    the coarsest level leaves the levels between little more to do than the finest (at
+    1280×720 a middle level of 20 iterations instead of 75 saved 6 s of a 30 s first frame
+    for +7 % style and +1 % content loss, both still far below the pixels' with 75). A frame
+    without temporal terms uses ``params.levels``; a warm-started frame ``params.warm_levels``,
+    with its temporal terms (Ruder et al. 2016) at every level, and each finer level starts
+    from the warped start plus the coarser level's upsampled correction of it, so the warped
+    frame's fine detail is kept.
 
     Parameters
     ----------
