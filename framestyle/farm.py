@@ -122,7 +122,7 @@ def _run_shots(client, plan: Plan, threads: int | None, progress: Progress, wher
     futures = {client.submit(_shot_task, plan, n, threads, shares, key=f"shot-{n}-{token}", resources={RESOURCE: 1},
                              pure=False, priority=plan.shots[n - 1].length): n for n in order}
     store, names = Store(plan.out), plan.names
-    wanted = {names[i] for n in plan.wanted for i in range(plan.shots[n - 1].start, plan.shots[n - 1].end + 1)}
+    wanted = {names[i] for n in plan.wanted for i in plan.shots[n - 1].frames}
     pending, error, died, alone_since = set(futures), None, [], None
     while pending:
         time.sleep(_POLL_SECONDS)
@@ -164,7 +164,7 @@ def _run_shots(client, plan: Plan, threads: int | None, progress: Progress, wher
         raise error
     done = store.finished()
     unfinished = [n for n in plan.wanted
-                  if any(names[i] not in done for i in range(plan.shots[n - 1].start, plan.shots[n - 1].end + 1))]
+                  if any(names[i] not in done for i in plan.shots[n - 1].frames)]
     if unfinished:  # a task that returned without its frames: never exit 0 with frames missing
         raise FramestyleError(f"{plan.out}: shot(s) {', '.join(map(str, unfinished))} came back from {where} "
                               f"unfinished; run the same command again to finish them")

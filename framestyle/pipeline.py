@@ -236,7 +236,7 @@ def plan_render(
     plan = Plan(source, store.out, settings, shot_list_, tuple(wanted), timecode)
     chosen = [s for s in shot_list_ if s.index in wanted]
     names = plan.names
-    done = sum(1 for s in chosen for i in range(s.start, s.end + 1) if names[i] in finished)
+    done = sum(1 for s in chosen for i in s.frames if names[i] in finished)
     if manifest is not None and done < sum(s.length for s in chosen):  # said only where frames remain
         for change in environment_changes(manifest, environment(net)):
             progress("warning", message=f"resumed under {change}: the frames rendered now keep the look but "
@@ -461,7 +461,7 @@ def render_shot(plan: Plan, index: int, progress: Progress = no_progress, wait: 
             progress("warning", message=problem)
             work.store.log(problem)
         finished = work.record["frames"]
-        todo = [i for i in range(shot.start, shot.end + 1) if names[i] not in finished]
+        todo = [i for i in shot.frames if names[i] not in finished]
         if todo and len(todo) < shot.length:  # a takeover the log should show: who, from where
             work.store.log(f"shot {index}: continued at {names[todo[0]]} by pid {os.getpid()} on "
                            f"{socket.gethostname()}, {shot.length - len(todo)} of its frames done before")
@@ -550,7 +550,7 @@ class _ShotRender:
             needed = [(first_todo - j, "pass1") for j in self.offsets if first_todo - j >= max([shot.start] + fresh)]
             pass_, begin = 1, first_todo
         else:
-            done = {i: self._passes_done(i) for i in range(shot.start, shot.end + 1)}
+            done = {i: self._passes_done(i) for i in shot.frames}
             pass_ = min(done.values()) + 1
             order = list(self._order(pass_))
             begin = next(i for i in order if done[i] < pass_)
@@ -566,18 +566,18 @@ class _ShotRender:
             return pass_, begin
         self.work.store.log(f"shot {shot.index}: kept state missing, solving again from its first frame")
         if self.passes > 1:
-            self.work.restart_passes([self.names[i] for i in range(shot.start, shot.end + 1)])
+            self.work.restart_passes([self.names[i] for i in shot.frames])
         return 1, shot.start
 
     def _order(self, pass_: int) -> range:
         """The shot's frames in pass ``pass_``'s direction: odd passes forward, even backward."""
         if pass_ % 2:
-            return range(self.shot.start, self.shot.end + 1)
+            return self.shot.frames
         return range(self.shot.end, self.shot.start - 1, -1)
 
     def _chain_starts(self) -> set[int]:
         """The shot's first frame and any frame the first pass started fresh (a missed cut)."""
-        return {self.shot.start} | {i for i in range(self.shot.start, self.shot.end + 1) if self._entry(i).get("fresh")}
+        return {self.shot.start} | {i for i in self.shot.frames if self._entry(i).get("fresh")}
 
     def _neighbour(self, index: int, pass_: int, starts: set[int]) -> int | None:
         """The frame solved just before ``index`` in pass ``pass_``, if in the same chain."""
@@ -714,7 +714,7 @@ class _ShotRender:
     def _deliver_passes(self, mattes: Mattes, progress: Progress) -> None:
         """After the last pass: deliver the unfinished frames, in order, from their last results."""
         shot, last = self.shot, f"pass{self.passes}"
-        todo = [i for i in range(shot.start, shot.end + 1) if self.names[i] not in self.work.record["frames"]]
+        todo = [i for i in shot.frames if self.names[i] not in self.work.record["frames"]]
         if not todo:
             return
         for index, raw in io.iter_frames(self.source, todo[0], shot.end + 1):

@@ -129,7 +129,7 @@ def _measured(store: Store, files: ReportStore, source: io.FrameSource, settings
     does. What is measured is kept in ``report/<stem>.json`` (frames never change once
     finished), so each pair is measured once.
     """
-    entries = [frames.get(names[i]) for i in range(shot.start, shot.end + 1)]
+    entries = [frames.get(names[i]) for i in shot.frames]
     needs = {key: {k for k in range(1, shot.length)
                    if entries[k] is not None and entries[k].get(recorded) is None and not entries[k].get("fresh")
                    and (key == "source_error" or entries[k - 1] is not None)}

@@ -132,7 +132,7 @@ def shot_series(shot: Shot, names: Sequence[str], numbers: Sequence[int], frames
         ``{"render_error": ..., "source_error": ...}``, each None or one value (or None) per
         frame of the shot
     """
-    positions = range(shot.start, shot.end + 1)
+    positions = shot.frames
     entries = [frames.get(names[i]) for i in positions]
 
     def errors(key: str, recorded: str) -> tuple[float | None, ...]:

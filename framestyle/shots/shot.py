@@ -19,6 +19,11 @@ class Shot:
         """Number of frames in the shot."""
         return self.end - self.start + 1
 
+    @property
+    def frames(self) -> range:
+        """The shot's 0-based frame indices, ``start .. end``."""
+        return range(self.start, self.end + 1)
+
     def to_dict(self) -> dict[str, int]:
         """Return ``{"shot": index, "start": start, "end": end}``, one shot-list JSON entry."""
         return {"shot": self.index, "start": self.start, "end": self.end}
