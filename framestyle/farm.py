@@ -56,7 +56,11 @@ def farm_render(
 
     if workers < 1:
         raise FramestyleError(f"--workers {workers}: must be 1 or more")
-    local_threads = threads or max(1, (os.cpu_count() or 1) // workers)
+    cores = os.cpu_count() or 1
+    if scheduler is None and workers > cores:  # more torch processes than cores slow each other several times over
+        progress("warning", message=f"--workers {workers} on {cores} cores: {cores} worker(s) started, one thread each")
+        workers = cores
+    local_threads = threads or max(1, cores // workers)
     if scheduler is None:
         _set_threads(local_threads)  # recorded with the render: what each worker computes with
     # Dask's own log lines (a lost connection's traceback ...) would bury the one line said here
@@ -70,8 +74,9 @@ def farm_render(
                            keep_shot_list=keep_shot_list, progress=progress)
         if scheduler is None and len(plan.wanted) < workers:
             progress("warning", message=f"--workers {workers} for {len(plan.wanted)} shot(s): a shot is one worker's "
-                                        f"task, so {workers - len(plan.wanted)} will have nothing to do, with "
+                                        f"task, so {max(1, len(plan.wanted))} worker(s) started, with "
                                         f"{local_threads} thread(s) each instead of more")
+            workers = max(1, len(plan.wanted))
         if client is None:
             # No memory limit: Dask's nanny would kill a worker whose torch pool grows past its
             # share, and an HD frame's solve legitimately needs a few GB.

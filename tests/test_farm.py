@@ -272,3 +272,28 @@ def test_every_shot_whose_workers_died_is_named_and_queued_shots_are_not_started
             farm._run_shots(cluster, _plan(tmp_path, 3), None, lambda kind, **k: seen.append((kind, k)), "2 workers")
     assert cluster.submitted[3].cancelled()  # its task, queued, is not started after the deaths
     assert seen == [("farm", {"done": 0, "shots": [3]})]  # progress names the shots whose locks are held
+
+
+@pytest.mark.parametrize("cores, shots, started", [(4, 2, 2), (2, 8, 2), (64, 3, 3)])
+def test_local_workers_are_no_more_than_the_cores_and_the_shots(tmp_path, monkeypatch, cores, shots, started):
+    # a farm sweep asked for --workers 1000 on 2 cores: 1000 torch processes started and the
+    # 4-frame render had not finished after 120 s; a worker without a core or a shot only slows
+    # the others (two torch processes on 2 cores: several times slower, benchmarks/README)
+    import distributed
+
+    class Started(Exception):
+        pass
+
+    def cluster(n_workers, **_):
+        raise Started(n_workers)
+
+    warnings = []
+    monkeypatch.setattr(distributed, "LocalCluster", cluster)
+    monkeypatch.setattr(farm.os, "cpu_count", lambda: cores)
+    monkeypatch.setattr(farm, "_set_threads", lambda threads: None)  # the test process keeps its threads
+    monkeypatch.setattr(farm, "plan_render", lambda *a, **k: _plan(tmp_path, shots))
+    with pytest.raises(Started) as raised:
+        farm.farm_render(tmp_path, tmp_path, None, workers=1000,
+                         progress=lambda event, **info: warnings.append(info.get("message")))
+    assert raised.value.args == (started,)
+    assert f"--workers 1000 on {cores} cores" in warnings[0]
