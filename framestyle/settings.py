@@ -22,6 +22,7 @@ from pydantic.dataclasses import dataclass
 from framestyle.errors import FramestyleError
 from framestyle.finish.compose import COLOURS
 from framestyle.motion import FLOW_PRESETS, WARP_FILTERS
+from framestyle.timecode import MAX_FPS
 
 NETWORKS = ("efficientnet-lite0", "vgg19")
 """Perceptual networks (see :mod:`framestyle.style.network`)."""
@@ -100,16 +101,16 @@ class Settings:
     cut_threshold: _Fraction = 0.015  # least colour+layout step (0..1] of a cut; it must also stand out
     gradual_threshold: _Fraction = 0.2  # least end-to-end distance of a fade or dissolve
     # --- delivery -----------------------------------------------------------------------------
-    fps: Annotated[float, Field(gt=0, allow_inf_nan=False)] | None = None  # frame rate of a frame folder (default 24); labels timecode
+    fps: Annotated[float, Field(gt=0, le=MAX_FPS, allow_inf_nan=False)] | None = None  # frame rate of a frame folder (default 24); labels timecode
     start_timecode: str | None = None  # the first frame's timecode (default: a video's own, else 00:00:00:00)
     prores: bool = False  # also write an edit-ready Apple ProRes 422 HQ .mov with the source's audio
 
     def __post_init__(self) -> None:
         if 1 not in self.long_term:
-            raise ValueError("long_term must include 1 (the previous frame)")
+            raise ValueError("long_term: must include 1 (the previous frame)")
         if self.style_mix and len(self.style_mix) != len(self.styles):
             count = len(self.styles)
-            raise ValueError(f"style_mix needs {count} weight{'s' if count != 1 else ''}, one per style, "
+            raise ValueError(f"style_mix: needs {count} weight{'s' if count != 1 else ''}, one per style, "
                              f"not {len(self.style_mix)}")
         if self.style_mix and sum(self.style_mix) <= 0:
             raise ValueError("style_mix: the weights are all 0")

@@ -18,6 +18,9 @@ from fractions import Fraction
 
 # NTSC rates are n * 1000/1001 for these nominal rates; a file's rate is often stored
 # rounded (29.97, 23.976, 59.94), hence the tolerance when recognising them.
+MAX_FPS = 1000.0
+"""The highest frame rate a user may give: high-speed footage is shot faster but delivered and
+checked at its playback rate; above this a rate is a typo (common practice, no standard)."""
 _NTSC_NOMINAL = (24, 30, 48, 60, 120)
 _NTSC_TOLERANCE = 0.01
 # Frame numbers dropped at the start of each minute, for the drop-frame nominal rates.

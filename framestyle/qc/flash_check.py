@@ -32,7 +32,7 @@ from framestyle.settings import Settings
 from framestyle.shots import Shot
 from framestyle.shots.cutlists import clip_timecode
 from framestyle.store import FLASH_PLOT, MANIFEST, Store, check_footage, output_names
-from framestyle.timecode import ClipTimecode
+from framestyle.timecode import MAX_FPS, ClipTimecode
 
 CAUTION = ("The flash check is an aid, not a certification: broadcasters' rules and local regulators "
            "prevail. It models the display as sRGB relative luminance (no HDR, no cd/m²).")
@@ -86,8 +86,8 @@ def check_path(path: Path, fps: float | None = None, source_path: Path | None = 
         a bad frame rate.
     """
     path = Path(path)
-    if fps is not None and not (math.isfinite(fps) and fps > 0):
-        raise FramestyleError(f"--fps {fps}: must be a frame rate above 0")
+    if fps is not None and not (math.isfinite(fps) and 0 < fps <= MAX_FPS):
+        raise FramestyleError(f"--fps {fps}: must be a frame rate above 0 and at most {MAX_FPS:g}")
     manifest = Store(path).manifest() if path.is_dir() else None
     if manifest is None:
         source = io.open_source(path)
