@@ -118,4 +118,9 @@ def temporary_target(name: str) -> str:
 
 
 def _cannot(what: str, path: Path, exc: OSError) -> FramestyleError:
+    """The one-line error for ``exc``; where a folder on the way is a file (mkdir then says
+    "File exists", opening "Not a directory") it names that file."""
+    blocking = next((p for p in Path(path).parents if p.exists() and not p.is_dir()), None)
+    if blocking is not None and isinstance(exc, (FileExistsError, NotADirectoryError)):
+        return FramestyleError(f"{path}: cannot {what} ({blocking} is a file, not a folder)")
     return FramestyleError(f"{path}: cannot {what} ({exc.strerror or exc})")

@@ -5,6 +5,7 @@ import functools
 import inspect
 import json
 import math
+import os
 import re
 from pathlib import Path
 from typing import Annotated, Optional
@@ -42,16 +43,20 @@ def _run(fn, *args, **kwargs):
 
 
 def _check_path(path: Path, what: str) -> Path:
+    """``path``, or a one-line error where it is missing or this user may not read it (the Path
+    options leave that to here: click's own check is a box of several lines)."""
     if not path.exists():
         _fail(f"{path}: {what} not found")
+    if not os.access(path, os.R_OK):
+        _fail(f"{path}: {what} not readable (permission denied)")
     return path
 
 
 # --- the render settings' options, shared by `stylise` and `preview` --------------------------
 
 def _settings_options(
-    style: Annotated[Optional[list[Path]], typer.Option("--style", "-s", help="Style image; repeat to mix several.")] = None,
-    look: Annotated[Optional[Path], typer.Option(help="TOML look file with settings (and per-shot looks); options given here override it.")] = None,
+    style: Annotated[Optional[list[Path]], typer.Option("--style", "-s", readable=False, help="Style image; repeat to mix several.")] = None,
+    look: Annotated[Optional[Path], typer.Option(readable=False, help="TOML look file with settings (and per-shot looks); options given here override it.")] = None,
     width: Annotated[Optional[int], typer.Option(help="Working width in pixels, never above the source's (default 480; 1280 for sources wider than 1280).")] = None,
     iterations: Annotated[Optional[int], typer.Option(help=f"Most solver iterations per frame (default {Settings.iterations}).")] = None,
     style_weight: Annotated[Optional[float], typer.Option(help=f"Weight of the Gram style loss: higher, more paint (default {Settings.style_weight}).")] = None,
@@ -66,7 +71,7 @@ def _settings_options(
     warm_levels: Annotated[Optional[int], typer.Option(help=f"Coarse-to-fine levels for frames that start from the previous stylised frame (default {Settings.warm_levels}).")] = None,
     image_scales: Annotated[Optional[int], typer.Option(help=f"Scales a frame solved on its own (a shot's first) is optimised over at each level, from its pixels to 1/2, 1/4 ... of the size: broad areas settle in fewer iterations; 1: its pixels alone (default {Settings.image_scales}).")] = None,
     network: Annotated[Optional[str], typer.Option(help=f"Perceptual network: efficientnet-lite0 or vgg19 (default {Settings.network}).")] = None,
-    network_weights: Annotated[Optional[Path], typer.Option(help="Weights file for the network (needed for vgg19 offline).")] = None,
+    network_weights: Annotated[Optional[Path], typer.Option(readable=False, help="Weights file for the network (needed for vgg19 offline).")] = None,
     feature_blur: Annotated[Optional[int], typer.Option(help=f"EfficientNet-Lite0's low-pass filter before each subsampling, 3 or 5 taps: 5 is steadier along a shot and paints a little more over the footage, with slightly softer fine texture (default {Settings.feature_blur}).")] = None,
     seed: Annotated[Optional[int], typer.Option(help="Random seed; the same seed gives the same frames (default 0).")] = None,
     device: Annotated[Optional[str], typer.Option(help="Where the network runs: auto (a GPU torch sees, else the CPU), cpu, cuda or mps (default auto).")] = None,
@@ -131,9 +136,15 @@ def _settings(options: dict) -> Settings:
     values = overlay(base, given)
     if not values.get("styles"):
         _fail("no style image: give --style or a look file with styles")
+    return _checked_settings(values, given)
+
+
+def _checked_settings(values: dict, given: dict) -> Settings:
+    """``Settings`` of ``values``, or a one-line error that names the options ``given`` as
+    they are spelled on the command line (``--cut-threshold``, not ``cut_threshold``)."""
     try:
         return Settings.from_dict(values, "options")
-    except FramestyleError as exc:  # said with the options' own names where one was given
+    except FramestyleError as exc:
         message = str(exc)
         for key in given:
             option = _OPTION_NAMES.get(key, "--" + key.replace("_", "-"))
@@ -231,11 +242,11 @@ class _Bars:
 @app.command()
 @_with_settings_options
 def stylise(
-    input: Annotated[Path, typer.Argument(help="Folder of numbered frames, or a video file.")],
-    out: Annotated[Path, typer.Option("--out", "-o", help="Output folder for the stylised frames.")],
+    input: Annotated[Path, typer.Argument(readable=False, help="Folder of numbered frames, or a video file.")],
+    out: Annotated[Path, typer.Option("--out", "-o", readable=False, help="Output folder for the stylised frames.")],
     options: dict,
     shots: Annotated[Optional[str], typer.Option(help="Render only these shots, e.g. 2,4-5 (7-: shot 7 to the last).")] = None,
-    shot_list: Annotated[Optional[Path], typer.Option(help="Shots from this file instead of detection: shot starts in the source's frame numbers, the JSON of `framestyle shots --json`, an EDL or an .otio file.")] = None,
+    shot_list: Annotated[Optional[Path], typer.Option(readable=False, help="Shots from this file instead of detection: shot starts in the source's frame numbers, the JSON of `framestyle shots --json`, an EDL or an .otio file.")] = None,
     restart: Annotated[bool, typer.Option("--restart", help="Discard a previous render in --out and start over.")] = False,
     workers: Annotated[int, typer.Option(help="Render shots in this many local worker processes (Dask); 1 = this process only.")] = 1,
     scheduler: Annotated[Optional[str], typer.Option(help="Send the shots to a running Dask scheduler, e.g. tcp://farm:8786, whose workers see the same paths.")] = None,
@@ -283,12 +294,12 @@ def _render(input: Path, out: Path, settings: Settings, *, workers: int, schedul
 @app.command()
 @_with_settings_options
 def preview(
-    input: Annotated[Path, typer.Argument(help="Folder of numbered frames, or a video file.")],
-    out: Annotated[Path, typer.Option("--out", "-o", help="Output folder; previews go to its preview/ folder.")],
+    input: Annotated[Path, typer.Argument(readable=False, help="Folder of numbered frames, or a video file.")],
+    out: Annotated[Path, typer.Option("--out", "-o", readable=False, help="Output folder; previews go to its preview/ folder.")],
     options: dict,
     every: Annotated[int, typer.Option(help="Stylise every Nth frame of each shot, from its first.")] = 10,
     shots: Annotated[Optional[str], typer.Option(help="Preview only these shots, e.g. 2,4-5 (7-: shot 7 to the last).")] = None,
-    shot_list: Annotated[Optional[Path], typer.Option(help="Shots from this file instead of detection: shot starts in the source's frame numbers, the JSON of `framestyle shots --json`, an EDL or an .otio file.")] = None,
+    shot_list: Annotated[Optional[Path], typer.Option(readable=False, help="Shots from this file instead of detection: shot starts in the source's frame numbers, the JSON of `framestyle shots --json`, an EDL or an .otio file.")] = None,
     quiet: Annotated[bool, typer.Option("--quiet", "-q", help="No progress display.")] = False,
 ) -> None:
     """Quick look: stylise every Nth frame of each shot on its own and lay out contact sheets.
@@ -315,14 +326,14 @@ def preview(
 
 @app.command()
 def resume(
-    out: Annotated[Path, typer.Argument(help="Output folder of a render started with `stylise`.")],
+    out: Annotated[Path, typer.Argument(readable=False, help="Output folder of a render started with `stylise`.")],
     shots: Annotated[Optional[str], typer.Option(help="Render only these shots, e.g. 2,4-5 (7-: shot 7 to the last).")] = None,
     workers: Annotated[int, typer.Option(help="Render shots in this many local worker processes (Dask); 1 = this process only.")] = 1,
     scheduler: Annotated[Optional[str], typer.Option(help="Send the shots to a running Dask scheduler whose workers see the same paths.")] = None,
     threads: Annotated[Optional[int], typer.Option(help="Torch threads per process (default: all cores, shared among --workers).")] = None,
     quiet: Annotated[bool, typer.Option("--quiet", "-q", help="No progress display.")] = False,
     prores: Annotated[bool, typer.Option("--prores", help="Also write the ProRes 422 HQ hand-off, to a render started without it (its frames are kept).")] = False,
-    source: Annotated[Optional[Path], typer.Option("--source", help="The footage, if it moved since the render started (checked by content; the render then follows it).")] = None,
+    source: Annotated[Optional[Path], typer.Option("--source", readable=False, help="The footage, if it moved since the render started (checked by content; the render then follows it).")] = None,
 ) -> None:
     """Continue a render from its manifest alone (input, settings and shot list are in it).
 
@@ -390,17 +401,17 @@ def _summary_table(shots) -> str:
 
 @app.command("shots")
 def shots_command(
-    input: Annotated[Path, typer.Argument(help="Folder of numbered frames, or a video file.")],
+    input: Annotated[Path, typer.Argument(readable=False, help="Folder of numbered frames, or a video file.")],
     json_out: Annotated[bool, typer.Option("--json", help="Print the shot list as JSON.")] = False,
     fps: Annotated[Optional[float], typer.Option(help="Frame rate for timecode (default: the video's; 24 for folders).")] = None,
     start_timecode: Annotated[Optional[str], typer.Option(help="Timecode of the first frame, HH:MM:SS:FF or HH:MM:SS;FF for drop-frame (default: the video's timecode, else 00:00:00:00).")] = None,
-    shot_list: Annotated[Optional[Path], typer.Option(help="Take the shots from this file instead of detecting them: a list of shot starts, the JSON --json prints, an EDL or an .otio file.")] = None,
+    shot_list: Annotated[Optional[Path], typer.Option(readable=False, help="Take the shots from this file instead of detecting them: a list of shot starts, the JSON --json prints, an EDL or an .otio file.")] = None,
     cut_threshold: Annotated[float, typer.Option(help="Least frame-to-frame distance (0..1) of a cut; a cut must also stand out from the frames around it.")] = Settings.cut_threshold,
     gradual_threshold: Annotated[float, typer.Option(help="Least distance (0..1) between the two ends of a fade or dissolve.")] = Settings.gradual_threshold,
     add_cut: Annotated[Optional[list[int]], typer.Option(help="Frame number (the source's) that starts a shot; repeatable.")] = None,
     remove_cut: Annotated[Optional[list[int]], typer.Option(help="Shot start (the source's frame number) to join to the shot before; repeatable.")] = None,
-    edl: Annotated[Optional[Path], typer.Option(help="Also write the shots as a CMX 3600 EDL for editing software.")] = None,
-    otio_file: Annotated[Optional[Path], typer.Option("--otio", help="Also write the shots as an OpenTimelineIO (.otio) file.")] = None,
+    edl: Annotated[Optional[Path], typer.Option(readable=False, help="Also write the shots as a CMX 3600 EDL for editing software.")] = None,
+    otio_file: Annotated[Optional[Path], typer.Option("--otio", readable=False, help="Also write the shots as an OpenTimelineIO (.otio) file.")] = None,
 ) -> None:
     """List the shots of INPUT by the source's frame numbers and timecode.
 
@@ -420,7 +431,8 @@ def shots_command(
     source = _run(io.open_source, input)
     given = {"cut_threshold": cut_threshold, "gradual_threshold": gradual_threshold, "fps": fps,
              "start_timecode": start_timecode}
-    settings = _run(Settings.from_dict, {k: v for k, v in given.items() if v is not None}, "options")
+    given = {k: v for k, v in given.items() if v is not None}
+    settings = _checked_settings(given, given)
     timecode = _run(clip_timecode, source, settings, shot_list)
     found = _run(find_shots, source, settings, shot_list)
     for message in io.sequence_warnings(source):
@@ -438,8 +450,8 @@ def shots_command(
 
 @app.command("report")
 def report_command(
-    out: Annotated[Path, typer.Argument(help="A render's output folder (finished, running or interrupted), or a preview's.")],
-    source: Annotated[Optional[Path], typer.Option("--source", help="The footage, if it moved since the render started (default: where the render read it).")] = None,
+    out: Annotated[Path, typer.Argument(readable=False, help="A render's output folder (finished, running or interrupted), or a preview's.")],
+    source: Annotated[Optional[Path], typer.Option("--source", readable=False, help="The footage, if it moved since the render started (default: where the render read it).")] = None,
     every: Annotated[Optional[int], typer.Option(help="Thumbnails of every Nth frame of a shot (default: at most 6 a shot).")] = None,
 ) -> None:
     """Write OUT/report.html: status, settings and look, thumbnails and per-frame figures of each shot.
@@ -470,8 +482,8 @@ def report_command(
 
 @app.command("stability")
 def stability_command(
-    out: Annotated[Path, typer.Argument(help="Folder of stylised frames (a render's --out).")],
-    source: Annotated[Path, typer.Option("--source", help="The footage the render was made from.")],
+    out: Annotated[Path, typer.Argument(readable=False, help="Folder of stylised frames (a render's --out).")],
+    source: Annotated[Path, typer.Option("--source", readable=False, help="The footage the render was made from.")],
     json_out: Annotated[bool, typer.Option("--json", help="Print the figures as JSON.")] = False,
     flow_preset: Annotated[str, typer.Option(help="Optical flow preset for the measurement.")] = "medium",
     detail_frames: Annotated[int, typer.Option(help="Frames per shot rendered again on their own to measure the stroke detail the render keeps; 0 = none.")] = 3,
@@ -513,11 +525,11 @@ def stability_command(
 
 @app.command("flashes")
 def flashes_command(
-    path: Annotated[Path, typer.Argument(help="Folder of numbered frames, a video file, or a render's output folder (its frames and their source).")],
+    path: Annotated[Path, typer.Argument(readable=False, help="Folder of numbered frames, a video file, or a render's output folder (its frames and their source).")],
     fps: Annotated[Optional[float], typer.Option(help="Frame rate of the 1-second windows and timecode (default: the video's or the render's; 24 for a folder).")] = None,
     json_out: Annotated[bool, typer.Option("--json", help="Print the check as JSON.")] = False,
-    plot: Annotated[Optional[Path], typer.Option(help="Write the timeline plot PNG here (default for an output folder: OUT/flashes.png).")] = None,
-    source: Annotated[Optional[Path], typer.Option("--source", help="For an output folder: the footage, if it moved since the render (default: where the render read it).")] = None,
+    plot: Annotated[Optional[Path], typer.Option(readable=False, help="Write the timeline plot PNG here (default for an output folder: OUT/flashes.png).")] = None,
+    source: Annotated[Optional[Path], typer.Option("--source", readable=False, help="For an output folder: the footage, if it moved since the render (default: where the render read it).")] = None,
 ) -> None:
     """Check PATH for photosensitive flashes: general and red flashes per WCAG 2.1 SC 2.3.1 and ITU-R BT.1702.
 

@@ -371,9 +371,9 @@ def setting_warnings(source: io.FrameSource, settings: Settings, min_side: int, 
             *style_size, has_alpha, _ = io.image_header(Path(style))
             hidden = io.transparent_share(style) if has_alpha else 0.0
             if hidden:
-                messages.append(f"{style}{label}: {hidden:.0%} of the style image is transparent, and the colour "
-                                f"hidden there counts in the look as if it showed; flatten it onto the background "
-                                f"you mean first")
+                messages.append(f"{style}{label}: {hidden:.0%} of the style image is not fully opaque, and its "
+                                f"colour there counts in the look as if it were; flatten it onto the background you "
+                                f"mean first")
             enlarged = variant.stroke_size * max(size) / max(style_size)
             if enlarged > STYLE_ENLARGEMENT:
                 messages.append(f"{style}{label}: a {style_size[0]}×{style_size[1]} style image is enlarged "
@@ -863,7 +863,7 @@ def preview(input_path: Path, out: Path, settings: Settings, every: int, *, widt
     Parameters
     ----------
     width : preview working width for every shot (default: the render's width, at most
-        :data:`PREVIEW_WIDTH`)
+        :data:`PREVIEW_WIDTH` and the source's)
 
     Returns
     -------
@@ -876,7 +876,8 @@ def preview(input_path: Path, out: Path, settings: Settings, every: int, *, widt
     for option, value in (("--every", every), ("--width", width)):
         if value is not None and value < 1:
             raise FramestyleError(f"{option} {value}: must be 1 or more")
-    width = width or min(settings.width or PREVIEW_WIDTH, PREVIEW_WIDTH)
+    if width is None:  # not asked for: nothing to warn about where the source is narrower
+        width = min(settings.width or PREVIEW_WIDTH, PREVIEW_WIDTH, io.open_source(input_path).width)
     settings = dataclasses.replace(settings, width=width, shot_looks={
         n: {**look, "width": width} for n, look in settings.shot_looks.items()})
     source, net = open_render(input_path, out, settings, progress, preview=True)

@@ -105,6 +105,15 @@ def test_preview_writes_every_nth_frame_and_a_contact_sheet_per_shot(small_clip,
     assert previews == ["take_001.png", "take_005.png", "take_009.png", "take_011.png", "take_016.png"]
 
 
+def test_a_preview_of_footage_narrower_than_its_default_width_says_nothing_of_a_width(small_clip, tmp_path):
+    # a sweep: no --width given, and the preview warned "width 240: the source is 128 pixels wide"
+    code, out, err = _run("preview", small_clip, "--style", STYLE, "--out", tmp_path, "--every", "9",
+                          "--iterations", "2")
+    assert code == 0, err
+    assert "framestyle: warning" not in out + err
+    assert cv2.imread(str(tmp_path / "preview" / "take_001.png")).shape[:2] == (72, 128)
+
+
 def test_a_new_preview_leaves_no_contact_sheet_of_an_earlier_one_behind(small_clip, tmp_path):
     def sheets():
         return sorted(p.name for p in (tmp_path / "o" / "preview").glob("contact_*.png"))
@@ -175,12 +184,13 @@ def test_settings_that_cannot_act_as_asked_are_said(small_clip, tmp_path):
     tiny = tmp_path / "tiny.png"
     bgra = cv2.cvtColor(cv2.resize(cv2.imread(str(STYLE)), (8, 8), interpolation=cv2.INTER_AREA), cv2.COLOR_BGR2BGRA)
     bgra[:4, :4, 3] = 0  # a quarter transparent, its colour hidden
+    bgra[4:, :4, 3] = 200  # another quarter translucent (a sweep's 78 % opaque image was called all transparent)
     cv2.imwrite(str(tiny), bgra)
     code, out, err = _run("preview", small_clip, "--style", tiny, "--out", tmp_path / "t", *FAST, "--every", "9")
     assert code == 0, err
     assert (f"{tiny}: a 8×8 style image is enlarged 16× beside the 128×72 working frame, so its strokes come out "
             f"blurred; one of 32 pixels or more on its longer side keeps them") in out + err
-    assert f"{tiny}: 25% of the style image is transparent, and the colour hidden there counts" in out + err
+    assert f"{tiny}: 50% of the style image is not fully opaque, and its colour there counts" in out + err
     code, out, err = _run("stylise", small_clip, "--style", STYLE, "--out", tmp_path / "q", *FAST, "--shots", "2")
     assert code == 0 and "framestyle: warning" not in out + err  # the defaults: nothing to say
 
@@ -290,6 +300,14 @@ def test_shots_command_hands_the_cut_to_editing_software_and_reads_it_back(plate
         assert json.loads(again) == shots
 
 
+def test_a_cut_list_asked_for_under_a_file_names_the_file(plate, tmp_path):
+    # a sweep: mkdir's "File exists" said nothing of which folder was a file
+    blocking = tmp_path / "deliveries"
+    blocking.write_text("a file where a folder was meant")
+    code, _, err = _run("shots", plate, "--edl", blocking / "harbour.edl")
+    _one_line_error(code, err, f"cannot write ({blocking} is a file, not a folder)")
+
+
 def test_shots_command_reads_an_editors_edl(plate, tmp_path):
     edl = tmp_path / "from_editorial.edl"
     edl.write_text("TITLE: harbour v3\nFCM: NON-DROP FRAME\n\n"
@@ -375,6 +393,20 @@ def test_unreadable_style_image(small_clip, tmp_path):
     bad = tmp_path / "style.png"
     bad.write_bytes(b"\x89PNG not really")
     _one_line_error(*_run("stylise", small_clip, "--style", bad, "--out", tmp_path / "o", *FAST)[::2], "style.png")
+
+
+def test_a_style_image_this_user_may_not_read_is_one_line(small_clip, tmp_path, monkeypatch):
+    # a sweep as an unprivileged user (chmod 000): click's own readability check answered with a
+    # box of several lines; as root, which may read anything, os.access is made to say no
+    import os
+
+    denied = tmp_path / "locked.png"
+    denied.write_bytes(STYLE.read_bytes())
+    real = os.access
+    monkeypatch.setattr(os, "access", lambda path, mode, **kw: Path(path) != denied and real(path, mode, **kw))
+    code, _, err = _run("stylise", small_clip, "--style", denied, "--out", tmp_path / "o", *FAST)
+    _one_line_error(code, err, "locked.png: file not readable (permission denied)")
+    assert not (tmp_path / "o").exists()
 
 
 def test_folder_without_frames(tmp_path):
@@ -656,7 +688,7 @@ def test_the_readme_look_example_loads_and_a_shot_or_option_giving_styles_mixes_
 
 @pytest.mark.parametrize(("options", "words"), [
     (["--style-mix", "0.5"], "no style image: give --style or a look file with styles"),  # not "needs 0 weights"
-    (["-s", STYLE, "--style-mix", "0.5,0.5"], "style_mix needs 1 weight, one per style, not 2"),
+    (["-s", STYLE, "--style-mix", "0.5,0.5"], "--style-mix: needs 1 weight, one per style, not 2"),
     (["-s", STYLE, "-s", STYLE, "--style-mix", "0,0"], "--style-mix: the weights are all 0"),
     (["-s", STYLE, "--stroke-size", "0"], "framestyle: error: --stroke-size: expected greater than 0"),  # its own name
     (["-s", STYLE, "--strength", "nan"], "--strength: expected a finite number (got nan)"),
