@@ -84,8 +84,9 @@ def test_unknown_layer_and_network_are_user_errors():
 
 def test_vgg19_without_cached_weights_fails_with_a_clear_message(tmp_path, monkeypatch):
     monkeypatch.setattr(torch.hub, "get_dir", lambda: str(tmp_path))
-    with pytest.raises(FramestyleError, match="VGG19 ImageNet weights not found"):
+    with pytest.raises(FramestyleError, match="VGG19 ImageNet weights not found") as raised:
         load_network("vgg19")
+    assert "--network-weights" in str(raised.value)  # the option's name on the command line
 
 
 def test_vgg19_loads_a_weights_file_and_gives_gatys_layers(tmp_path):
@@ -100,11 +101,18 @@ def test_vgg19_loads_a_weights_file_and_gives_gatys_layers(tmp_path):
     assert tuple(feats["conv1_1"].shape) == (1, 64, 64, 64)
 
 
-def test_a_file_that_is_not_weights_is_a_user_error(tmp_path):
+def test_a_file_that_is_not_weights_is_a_user_error_naming_it(tmp_path):
+    # a farm sweep: torch's own message for such a file advised loading it with weights_only=False,
+    # which would run whatever code the file holds; another network's keys went without the file
     bad = tmp_path / "weights.pth"
     bad.write_bytes(b"not a checkpoint")
-    with pytest.raises(FramestyleError, match="weights.pth"):
+    with pytest.raises(FramestyleError, match=r"weights.pth: not a PyTorch weights file") as raised:
         load_network("efficientnet-lite0", bad)
+    assert "weights_only" not in str(raised.value)
+    other = tmp_path / "other.pth"
+    torch.save({"a": torch.zeros(2)}, other)
+    with pytest.raises(FramestyleError, match=r"other.pth: not EfficientNet-Lite0 weights \(unexpected key a\)"):
+        load_network("efficientnet-lite0", other)
 
 
 def test_folded_batch_norm_gives_the_convolution_then_batch_norm_of_the_checkpoint():

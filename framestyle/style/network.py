@@ -352,8 +352,10 @@ class EfficientNetLite0(FeatureNet):
         path = weights or lite0_weights_file()
         try:
             self.load_state_dict(remap_lite0_keys(_load_state_dict(path, self.name)))
-        except RuntimeError as exc:
+        except RuntimeError as exc:  # torch's first line says only that loading failed
             raise FramestyleError(f"{path}: not EfficientNet-Lite0 weights ({str(exc).splitlines()[1].strip()})")
+        except KeyError as exc:
+            raise FramestyleError(f"{path}: not EfficientNet-Lite0 weights ({exc.args[0]})") from None
         for module in self.modules():
             if isinstance(module, _ConvBN):
                 module.fold()
@@ -399,7 +401,8 @@ def lite0_weights_file() -> Path:
 
 
 def remap_lite0_keys(sd: dict[str, torch.Tensor]) -> dict[str, torch.Tensor]:
-    """Rename the package's keys (``_blocks.N._expand_conv`` …) to this module's layout.
+    """Rename the package's keys (``_blocks.N._expand_conv`` …) to this module's layout; a
+    KeyError names a key that is not EfficientNet-Lite0's.
 
     The classifier head (``_conv_head``, ``_bn1``, ``_fc``) is kept so :meth:`classify` can
     verify the weights against ImageNet labels.
@@ -419,12 +422,12 @@ def remap_lite0_keys(sd: dict[str, torch.Tensor]) -> dict[str, torch.Tensor]:
             _, idx, rest = key.split(".", 2)
             old = next((p for p in parts if rest.startswith(p)), None)
             if old is None:
-                raise FramestyleError(f"EfficientNet-Lite0 weights: unexpected key {key}")
+                raise KeyError(f"unexpected key {key}")
             out[f"blocks.{idx}.{parts[old]}{rest[len(old):]}"] = value
         else:
             old = next((p for p in names if key.startswith(p)), None)
             if old is None:
-                raise FramestyleError(f"EfficientNet-Lite0 weights: unexpected key {key}")
+                raise KeyError(f"unexpected key {key}")
             out[names[old] + key[len(old):]] = value
     return out
 
@@ -451,7 +454,7 @@ class VGG19(FeatureNet):
         if not path.is_file():
             raise FramestyleError(
                 f"{path}: VGG19 ImageNet weights not found and framestyle never downloads at run "
-                f"time; give the file with --weights or use --network efficientnet-lite0"
+                f"time; give the file with --network-weights or use --network efficientnet-lite0"
             )
         sd = _load_state_dict(path, self.name)
         layers = list(vgg19().features[: max(_VGG19_LAYERS.values()) + 1])
@@ -484,8 +487,12 @@ def _load_state_dict(path: str | Path, network: str) -> dict[str, torch.Tensor]:
     """Load a state_dict from ``path``; a missing or unreadable file is a user error."""
     try:
         sd = torch.load(path, map_location="cpu", weights_only=True)
-    except Exception as exc:  # torch raises pickle, zip, OS and runtime errors for bad files
-        raise FramestyleError(f"{path}: cannot read {network} weights ({str(exc).splitlines()[0]})")
+    except OSError as exc:
+        raise FramestyleError(f"{path}: cannot read {network} weights ({exc.strerror or exc})") from None
+    except Exception:  # torch raises pickle, zip and runtime errors for a file of another kind, and its
+        # advice (load it with weights_only=False) would run whatever code the file holds
+        raise FramestyleError(f"{path}: not a PyTorch weights file (a state_dict saved with torch.save) "
+                              f"for {network}") from None
     if not isinstance(sd, dict):
         raise FramestyleError(f"{path}: not a {network} state_dict")
     return sd
