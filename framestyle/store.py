@@ -223,12 +223,15 @@ class Store:
         try:
             manifest = json.loads(path.read_text())
         except (OSError, ValueError) as exc:
-            raise FramestyleError(f"{path}: unreadable manifest ({exc}); use --restart to start over") from None
+            raise FramestyleError(f"{path}: unreadable manifest ({exc}); framestyle stylise with --restart starts "
+                                  f"over") from None
         if not isinstance(manifest, dict) or manifest.get("format") != FORMAT:
-            raise FramestyleError(f"{path}: not a manifest of this framestyle version; use --restart to start over")
+            raise FramestyleError(f"{path}: not a manifest of this framestyle version; framestyle stylise with "
+                                  f"--restart starts over")
         missing = [key for key, kind in _MANIFEST_KEYS.items() if not isinstance(manifest.get(key), kind)]
         if missing:
-            raise FramestyleError(f"{path}: damaged manifest (no valid {', '.join(missing)}); use --restart to start over")
+            raise FramestyleError(f"{path}: damaged manifest (no valid {', '.join(missing)}); framestyle stylise "
+                                  f"with --restart starts over")
         return manifest
 
     def create(self, manifest: dict) -> None:
@@ -649,8 +652,8 @@ def check_resume(manifest: dict, settings: Settings, inputs: dict, shot_list: di
                              ("styles", "styles", "style image(s)"), ("mattes", "mattes", "mattes")):
         if manifest["inputs"][key] != inputs[key]:
             which = _changed_files(manifest["inputs"].get(files), inputs[files])
-            raise FramestyleError(f"{out}: the {what} changed since this render started{which}; use --restart to "
-                                  f"start over")
+            raise FramestyleError(f"{out}: the {what} changed since this render started{which}; framestyle "
+                                  f"stylise with --restart starts over")
     if shot_list is not None and shot_list != manifest["shot_list"]:
         was = manifest["shot_list"]["file"] or "detected shots"
         raise FramestyleError(f"{out}: was rendered with another shot list ({was}); give the same --shot-list, "
