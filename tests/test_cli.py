@@ -395,6 +395,12 @@ def test_unreadable_style_image(small_clip, tmp_path):
     _one_line_error(*_run("stylise", small_clip, "--style", bad, "--out", tmp_path / "o", *FAST)[::2], "style.png")
 
 
+def test_a_flash_check_at_an_impossible_frame_rate_is_one_line(small_clip):
+    # a sweep: its windows are sized by the rate, and 1e308 fps crashed with a traceback
+    _one_line_error(*_run("flashes", small_clip, "--fps", "1e308")[::2],
+                    "--fps 1e+308: must be a frame rate above 0 and at most 1000")
+
+
 def test_a_style_image_this_user_may_not_read_is_one_line(small_clip, tmp_path, monkeypatch):
     # a sweep as an unprivileged user (chmod 000): click's own readability check answered with a
     # box of several lines; as root, which may read anything, os.access is made to say no
@@ -695,6 +701,8 @@ def test_the_readme_look_example_loads_and_a_shot_or_option_giving_styles_mixes_
     (["-s", STYLE, "--matte", ""], "matte: give a folder of matte frames or 'alpha'"),  # was a traceback mid-render
     (["-s", STYLE, "--style-mix", ""], "--style-mix '': expected numbers like 0.7,0.3"),  # was silently equal
     (["-s", STYLE, "--matte", "alpha"], "the matte is to be the input's alpha, but the input has no alpha channel"),
+    # a sweep: --fps 1e308 crashed the flash check after the frames were written
+    (["-s", STYLE, "--fps", "1e308"], "--fps: expected less than or equal to 1000"),
 ])
 def test_style_and_matte_options_that_cannot_work_are_one_line_before_anything_is_written(small_clip, tmp_path,
                                                                                            options, words):
