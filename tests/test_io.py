@@ -816,6 +816,20 @@ def test_frame_of_random_bytes_is_named(tmp_path):
         open_source(tmp_path)
 
 
+def test_a_frame_this_user_may_not_read_is_said_so(tmp_path, monkeypatch):
+    # a sweep as an unprivileged user (chmod 000): OpenImageIO said only "Could not open file";
+    # as root, who may read anything, the refusal is stood in for
+    from framestyle.io import stills
+
+    write_uint(tmp_path / "f_1.png", levels(12, (64, 64, 3), 255, np.uint8))
+    locked = tmp_path / "f_1.png"
+    real = os.access
+    monkeypatch.setattr(os, "access", lambda path, mode, **kw: Path(path) != locked and real(path, mode, **kw))
+    monkeypatch.setattr(stills.oiio.ImageInput, "open", lambda *args: None)
+    with pytest.raises(FramestyleError, match=r"f_1.png: not readable \(permission denied\)"):
+        read_image(locked)
+
+
 def test_truncated_frame_is_named_when_read_in_one_line(tmp_path, capfd):
     write_uint(tmp_path / "f_1.png", levels(12, (64, 64, 3), 255, np.uint8))
     data = (tmp_path / "f_1.png").read_bytes()

@@ -227,6 +227,8 @@ def _open(file: Path, use):
     config.attribute("oiio:UnassociatedAlpha", 1)  # colour of files with straight alpha
     image = oiio.ImageInput.open(str(file), config)
     if image is None:
+        if not os.access(file, os.R_OK):  # OpenImageIO says only "Could not open file"
+            raise FramestyleError(f"{file}: not readable (permission denied)")
         raise FramestyleError(f"{file}: cannot decode the image ({_last_error()})")
     try:
         return use(image)
