@@ -51,8 +51,15 @@ def farm_render(
         on a shared cluster the worker machine's cores shared among its shot workers)
     progress : as :func:`pipeline.render`, plus ``"farm"`` events (done, shots: the shots being
         rendered in the folder now) about once a second
+
+    Paths are made absolute here: a worker of a shared cluster runs in a folder of its own,
+    where a relative path names another file or folder (a sweep's worker wrote a whole render
+    into its own working folder, and the client then found none).
     """
     from distributed import Client, LocalCluster
+
+    input_path, out = Path(input_path).absolute(), Path(out).absolute()
+    shot_file = Path(shot_file).absolute() if shot_file is not None else None
 
     if workers < 1:
         raise FramestyleError(f"--workers {workers}: must be 1 or more")

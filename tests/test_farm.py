@@ -116,7 +116,8 @@ def test_a_user_error_in_one_shot_stops_the_render_with_one_line(small_clip, tmp
 @contextlib.contextmanager
 def _cluster(tmp_path: Path, workers: int = 2):
     """As the README says: `dask scheduler`, then workers with one thread and one "shot"
-    resource. Yields (address, the scheduler's process)."""
+    resource, each in a working folder of its own (tmp_path / "worker"), as on another
+    machine. Yields (address, the scheduler's process)."""
     dask = str(Path(sys.executable).parent / "dask")
     address_file = tmp_path / "scheduler.json"
     scheduler = subprocess.Popen([dask, "scheduler", "--port", "0", "--no-dashboard", "--scheduler-file",
@@ -127,8 +128,11 @@ def _cluster(tmp_path: Path, workers: int = 2):
         while not address_file.exists() and time.time() < deadline:
             time.sleep(0.1)
         address = json.loads(address_file.read_text())["address"]
+        elsewhere = tmp_path / "worker"
+        elsewhere.mkdir(exist_ok=True)
         started = [subprocess.Popen([dask, "worker", address, "--nthreads", "1", "--resources", "shot=1",
-                                     "--no-dashboard"], env=ENV, stderr=subprocess.DEVNULL) for _ in range(workers)]
+                                     "--no-dashboard"], env=ENV, stderr=subprocess.DEVNULL, cwd=elsewhere)
+                   for _ in range(workers)]
         yield address, scheduler
     finally:
         for p in [*started, scheduler]:
@@ -137,10 +141,13 @@ def _cluster(tmp_path: Path, workers: int = 2):
 
 
 def test_a_shared_cluster_started_with_dasks_own_commands(four_shots, one_process, tmp_path):
+    # --out as typed in the client's folder: a worker in a folder of its own once wrote the whole
+    # render there, and the client found none (a wrangler's sweep)
     with _cluster(tmp_path) as (address, _):
-        proc = _stylise(*four_shots, tmp_path / "farm", "--scheduler", address, "--threads", "1")
+        proc = _stylise(*four_shots, Path("farm"), "--scheduler", address, "--threads", "1", cwd=tmp_path)
         assert proc.wait(timeout=600) == 0, proc.stderr.read()
         assert _pngs(tmp_path / "farm") == _pngs(one_process)
+        assert not (tmp_path / "worker" / "farm").exists()
 
 
 def test_shot_workers_share_their_machines_cores():
