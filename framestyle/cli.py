@@ -483,17 +483,23 @@ def report_command(
 @app.command("stability")
 def stability_command(
     out: Annotated[Path, typer.Argument(readable=False, help="Folder of stylised frames (a render's --out).")],
-    source: Annotated[Path, typer.Option("--source", readable=False, help="The footage the render was made from.")],
+    source: Annotated[Optional[Path], typer.Option("--source", readable=False, help="The footage the render was made from (default: where the render read it).")] = None,
     json_out: Annotated[bool, typer.Option("--json", help="Print the figures as JSON.")] = False,
     flow_preset: Annotated[str, typer.Option(help="Optical flow preset for the measurement.")] = "medium",
     detail_frames: Annotated[int, typer.Option(help="Frames per shot rendered again on their own to measure the stroke detail the render keeps; 0 = none.")] = 3,
 ) -> None:
     """Print the warping error (Lai et al. 2018) of a render per shot and overall, lower is
     steadier, and the stroke detail it keeps, 1 is as crisp as frames rendered on their own."""
+    from framestyle import store
     from framestyle.qc.stability import overall, stability
 
     _check_path(out, "render folder")
-    _check_path(source, "source")
+    if source is None:  # a render's own footage, as report and flashes find it
+        manifest = _run(store.read_manifest, out) if out.is_dir() else None
+        if manifest is None:
+            _fail(f"{out}: no {store.MANIFEST}; give --source with the footage these frames were made from")
+        source = Path(manifest["inputs"]["input"])
+    _check_path(source, "source footage (give --source if it moved)")
     if detail_frames < 0:
         _fail(f"--detail-frames {detail_frames}: must be 0 or more")
     if flow_preset not in FLOW_PRESETS:

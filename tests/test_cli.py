@@ -355,6 +355,12 @@ def test_stability_command_reports_render_and_source(small_clip, tmp_path):
     # frames 5 and 10 of shot 1, 15 and 20 of shot 2 (the folder's numbers), each with its ratio
     assert [line.split()[4::2] for line in out.splitlines()[1:3]] == [["5:", "10:"], ["15:", "20:"]]
     assert "stroke detail" in out
+    # without --source: the render's own footage, as report and flashes find it (a sweep found
+    # stability alone asking for it again)
+    code, again, err = _run("stability", tmp_path, "--json", "--detail-frames", "0")
+    assert code == 0, err
+    assert json.loads(again)["overall"] == report["overall"]
+    _one_line_error(*_run("stability", small_clip)[::2], "no framestyle.json; give --source with the footage")
 
 
 def test_a_one_frame_shot_has_no_warping_error_and_says_so_in_valid_json(small_clip, tmp_path):
