@@ -51,7 +51,7 @@ from framestyle.shots.continuity import starts_new_shot
 from framestyle.shots.cutlists import clip_timecode
 from framestyle.shots.lists import frame_range, parse_shot_file, parse_shot_selection
 from framestyle.store import (FLASH_KINDS, HAND_OFF, MANIFEST, Store, check_footage, check_resume, environment_changes,
-                              input_fingerprints, output_names, shot_list_fingerprint)
+                              input_fingerprints, output_names, recorded_shots, shot_list_fingerprint)
 from framestyle.style.look import Look, build_look
 from framestyle.style.network import FeatureNet, load_network
 from framestyle.style.solver import SolverParams, SolveStats, level_sizes, solve, solve_coarse_to_fine
@@ -199,9 +199,11 @@ def plan_render(
     store = Store(out)
     with store.folder_lock():
         manifest = None if restart else store.manifest()
+        if manifest is not None and not keep_shot_list:
+            keep_shot_list = _same_cut(manifest, source, settings, shot_list, shot_file, store.out)
         if manifest is not None:
             check_resume(manifest, settings, inputs, None if keep_shot_list else shot_list, store.out)
-            shot_list_ = tuple(Shot(s["shot"], s["start"], s["end"]) for s in manifest["shots"])
+            shot_list_ = recorded_shots(manifest)
         else:
             shot_list_ = tuple(find_shots(source, settings, shot_file))
         # --shots is checked before a restart discards anything or a new manifest is written
@@ -213,8 +215,16 @@ def plan_render(
             store.log(f"resuming render of {source.path}")
             handed_off = [key for key in HAND_OFF if manifest["settings"].get(key) != getattr(settings, key)]
             moved = manifest["inputs"]["input"] != inputs["input"]  # the same content (check_resume), elsewhere
-            if handed_off or moved:
-                store.create({**manifest, "settings": settings.to_dict(), "inputs": inputs})
+            listed = not keep_shot_list and shot_list != manifest["shot_list"]  # the same list, elsewhere
+            restyled = manifest["inputs"]["styles"] != inputs["styles"]  # the same images, elsewhere
+            if handed_off or moved or listed or restyled:
+                store.create({**manifest, "settings": settings.to_dict(), "inputs": inputs,
+                              "shot_list": shot_list if listed else manifest["shot_list"]})
+            if listed:
+                store.log(f"the shot list moved from {manifest['shot_list']['file']} to {shot_list['file']}")
+            if restyled:
+                store.log(f"the style image(s) moved from {', '.join(manifest['inputs']['styles'])} to "
+                          f"{', '.join(inputs['styles'])}")
             if handed_off:  # the frames stay; the videos are made from them as now asked
                 store.log(f"hand-off changed ({', '.join(f'{k} {getattr(settings, k)}' for k in handed_off)}); "
                           f"the frames are kept")
@@ -245,6 +255,28 @@ def plan_render(
     progress("start", frames=sum(s.length for s in chosen), shots=len(chosen), done=done, size=size)
     refresh_report(plan.out, plan.source, plan.settings, plan.timecode)
     return plan
+
+
+def _same_cut(manifest: dict, source: io.FrameSource, settings: Settings, shot_list: dict, shot_file: Path | None,
+              out: Path) -> bool:
+    """Whether the shot list given now, another file than the render's, cuts the clip as the
+    render does (the same shots, the first frame at the same timecode): an editor's list
+    exported again, or detection's cut handed back; the render then goes on under its own.
+    A list that cuts otherwise is a one-line error naming the first shot that differs."""
+    recorded = manifest["shot_list"]
+    if shot_list["sha256"] == recorded["sha256"]:
+        return False  # the same list (check_resume compares by content)
+    found, cut = tuple(find_shots(source, settings, shot_file)), recorded_shots(manifest)
+    if found != cut:  # both cover the clip: they differ in a shot both have
+        a, b = next((a, b) for a, b in zip(found, cut) if a != b)
+        raise FramestyleError(f"{out}: {shot_file or 'detection'} cuts the clip otherwise than this render (shot "
+                              f"{a.index} frames {frame_range(a, source.numbers)}, the render's "
+                              f"{frame_range(b, source.numbers)}); give the render's cut, a new --out, or --restart "
+                              f"to start over")
+    old_file = Path(recorded["file"]) if recorded["file"] else None
+    if old_file is not None and not old_file.is_file():
+        return False  # the render's list is gone: its timecode cannot be compared (check_resume refuses)
+    return clip_timecode(source, settings, shot_file).label(0) == clip_timecode(source, settings, old_file).label(0)
 
 
 def finish_render(plan: Plan, progress: Progress = no_progress) -> RenderResult:
@@ -828,7 +860,7 @@ def frames_alone(out: Path, source_path: Path, indices: Sequence[int]) -> Iterat
         raise FramestyleError(f"{out}: no {MANIFEST}; the detail measure needs the render's settings")
     settings = Settings.from_dict(manifest["settings"], str(Path(out) / MANIFEST))
     source = io.open_source(Path(source_path))
-    shots = [Shot(s["shot"], s["start"], s["end"]) for s in manifest["shots"]]
+    shots = list(recorded_shots(manifest))
     chosen = {i: next(s for s in shots if s.start <= i <= s.end) for i in indices}
     levels = 2 ** _output_depth(source) - 1
     net = network(settings)

@@ -52,6 +52,7 @@ import numpy as np
 from framestyle import atomic, io
 from framestyle.errors import FramestyleError
 from framestyle.settings import Settings
+from framestyle.shots import Shot
 from framestyle.timecode import ClipTimecode
 
 if TYPE_CHECKING:
@@ -629,6 +630,11 @@ def check_footage(manifest: dict, source: io.FrameSource, out: Path) -> None:
                               f"differ from those of {manifest['inputs']['input']} when the render started)")
 
 
+def recorded_shots(manifest: dict) -> tuple[Shot, ...]:
+    """The shots a render's manifest records."""
+    return tuple(Shot(s["shot"], s["start"], s["end"]) for s in manifest["shots"])
+
+
 def shot_list_fingerprint(shot_file: Path | None) -> dict:
     """Which shot list a render follows: a file (absolute path and content hash) or detection."""
     if shot_file is None:
@@ -639,10 +645,15 @@ def shot_list_fingerprint(shot_file: Path | None) -> dict:
 def check_resume(manifest: dict, settings: Settings, inputs: dict, shot_list: dict | None, out: Path) -> None:
     """Refuse to continue a render whose settings, inputs or shot list changed, naming what.
 
-    ``shot_list`` None means "whatever the render was started with" (``framestyle resume``).
+    ``shot_list`` None means "whatever the render was started with" (``framestyle resume``);
+    a list, like the style images (:func:`styles_moved`), is the same by its content, wherever
+    the file is now.
     """
     old = Settings.from_dict(manifest["settings"], str(out / MANIFEST))
     changed = [key for key in old.differences(settings) if key not in HAND_OFF]
+    restyled = styles_moved(manifest, settings, inputs)
+    if restyled:  # the same images in the same places of the look, elsewhere
+        changed = [key for key in changed if not key.endswith("styles")]
     if changed:
         raise FramestyleError(
             f"{out}: was rendered with different settings ({', '.join(changed)}); "
@@ -650,14 +661,29 @@ def check_resume(manifest: dict, settings: Settings, inputs: dict, shot_list: di
         )
     for key, files, what in (("input_fingerprint", "input_files", "input frames"),
                              ("styles", "styles", "style image(s)"), ("mattes", "mattes", "mattes")):
-        if manifest["inputs"][key] != inputs[key]:
+        if manifest["inputs"][key] != inputs[key] and not (key == "styles" and restyled):
             which = _changed_files(manifest["inputs"].get(files), inputs[files])
             raise FramestyleError(f"{out}: the {what} changed since this render started{which}; framestyle "
                                   f"stylise with --restart starts over")
-    if shot_list is not None and shot_list != manifest["shot_list"]:
+    if shot_list is not None and shot_list["sha256"] != manifest["shot_list"]["sha256"]:
         was = manifest["shot_list"]["file"] or "detected shots"
         raise FramestyleError(f"{out}: was rendered with another shot list ({was}); give the same --shot-list, "
                               f"a new --out, or --restart to start over")
+
+
+def styles_moved(manifest: dict, settings: Settings, inputs: dict) -> bool:
+    """Whether ``settings`` name the render's style images by other paths only: every look
+    (the clip's and each shot's) lists images of the same content, in the same order, as the
+    render's look did (a job moved to another disk or machine)."""
+    old = Settings.from_dict(manifest["settings"], MANIFEST)
+    if manifest["inputs"]["styles"] == inputs["styles"] or len(old.looks()) != len(settings.looks()):
+        return False
+    was, now = manifest["inputs"]["styles"], inputs["styles"]
+    for (shot, before), (same_shot, after) in zip(old.looks(), settings.looks()):
+        hashes = [was.get(p) for p in before.styles]
+        if shot != same_shot or None in hashes or hashes != [now.get(p) for p in after.styles]:
+            return False
+    return True
 
 
 def _changed_files(old: dict | None, new: dict) -> str:

@@ -14,6 +14,7 @@ import sys
 import threading
 from pathlib import Path
 
+import cv2
 import imageio_ffmpeg
 import pytest
 
@@ -231,16 +232,46 @@ def test_resume_from_another_folder_uses_the_absolute_input_path(small_clip, tmp
     assert len(store.Store(out).finished()) == 20
 
 
-def test_a_changed_shot_list_on_resume_is_refused_by_name(small_clip, tmp_path):
+def test_a_shot_list_is_the_same_by_its_cut_and_a_changed_one_is_refused_by_shot(small_clip, tmp_path):
     out = tmp_path / "out"
     listing = tmp_path / "shots.txt"
     listing.write_text("1\n11\n")  # shot starts in the clip's own frame numbers (1-20)
     pipeline.render(small_clip, out, fast_settings(iterations=2), shot_file=listing, shots="1")
-    listing.write_text("1\n6\n")
-    with pytest.raises(store.FramestyleError, match="another shot list"):
+    # a wrangler's sweep: a byte-identical copy elsewhere, or detection finding the same cut, was
+    # refused as "another shot list", and an edited list was named but not what changed
+    copy = tmp_path / "elsewhere" / "shots.txt"
+    copy.parent.mkdir()
+    copy.write_bytes(listing.read_bytes())
+    listing.write_text("1\n6\n")  # the cut moved from frame 11 to 6
+    with pytest.raises(store.FramestyleError, match=r"shots.txt cuts the clip otherwise than this render "
+                                                    r"\(shot 1 frames 1-5, the render's 1-10\)"):
         pipeline.render(small_clip, out, fast_settings(iterations=2), shot_file=listing)
-    with pytest.raises(store.FramestyleError, match="another shot list"):
-        pipeline.render(small_clip, out, fast_settings(iterations=2))  # detection instead of the list
+    pipeline.render(small_clip, out, fast_settings(iterations=2), shot_file=copy, shots="1")  # the list, moved
+    assert store.Store(out).manifest()["shot_list"]["file"] == str(copy.resolve())
+    pipeline.render(small_clip, out, fast_settings(iterations=2))  # detection: the same cut at frame 11
+    assert len(store.Store(out).finished()) == 20
+    listing.write_text("1\n11\n16\n")  # a cut added
+    with pytest.raises(store.FramestyleError, match=r"cuts the clip otherwise than this render \(shot 2 frames "
+                                                    r"11-15, the render's 11-20\)"):
+        pipeline.render(small_clip, out, fast_settings(iterations=2), shot_file=listing)
+
+
+def test_a_render_goes_on_with_its_style_image_moved_and_stops_at_another_image(small_clip, tmp_path):
+    # a wrangler's sweep moved a job to another disk, style image too: the render was refused as
+    # "different settings (styles)" and only --restart went on
+    out, first, moved = tmp_path / "out", tmp_path / "a" / "look.png", tmp_path / "b" / "look.png"
+    first.parent.mkdir()
+    moved.parent.mkdir()
+    shutil.copy(STYLE, first)
+    pipeline.render(small_clip, out, fast_settings(iterations=2, styles=(str(first),)), shots="1")
+    shutil.move(first, moved)
+    pipeline.render(small_clip, out, fast_settings(iterations=2, styles=(str(moved),)))
+    assert len(store.Store(out).finished()) == 20
+    assert store.Store(out).manifest()["settings"]["styles"] == [str(moved)]  # resume reads it from there
+    other = tmp_path / "b" / "other.png"
+    cv2.imwrite(str(other), 255 - cv2.imread(str(STYLE)))
+    with pytest.raises(store.FramestyleError, match="different settings \\(styles\\)"):
+        pipeline.render(small_clip, out, fast_settings(iterations=2, styles=(str(other),)))
 
 
 def test_a_gap_in_the_numbering_is_reported_and_starts_a_new_shot(small_clip, tmp_path):

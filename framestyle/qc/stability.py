@@ -168,7 +168,7 @@ Alone = Callable[[Sequence[int]], Iterator[tuple[int, np.ndarray]]]
 def _shots(out: Path, source: io.FrameSource) -> list[Shot]:
     manifest = store.read_manifest(out)
     if manifest is not None:
-        return [Shot(s["shot"], s["start"], s["end"]) for s in manifest["shots"]]
+        return list(store.recorded_shots(manifest))
     return detect_shots([frame_signature(f) for _, f in io.iter_frames(source)])
 
 

@@ -35,7 +35,7 @@ from framestyle.report.status import render_status, shot_series
 from framestyle.settings import Settings
 from framestyle.shots import Shot
 from framestyle.shots.lists import frame_range
-from framestyle.store import FLASH_KINDS, REPORT_FILES, ReportStore, Store, output_names
+from framestyle.store import FLASH_KINDS, REPORT_FILES, ReportStore, Store, output_names, recorded_shots
 from framestyle.timecode import ClipTimecode
 from framestyle.working import prepare_frame, working_size
 
@@ -77,7 +77,7 @@ def refresh_report(out: Path, source: io.FrameSource | None = None, settings: Se
         if source is None or settings is None or timecode is None:
             raise ValueError("a render's report needs its source, settings and timecode")
         records = store.records()
-        shots = [Shot(s["shot"], s["start"], s["end"]) for s in manifest["shots"]]
+        shots = list(recorded_shots(manifest))
         views = tuple(_shot_view(store, files, source, settings, timecode, shot,
                                  records.get(shot.index, {"frames": {}})["frames"], redraw, every) for shot in shots)
         data = dataclasses.replace(

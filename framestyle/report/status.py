@@ -18,6 +18,7 @@ from dataclasses import dataclass
 from typing import Sequence
 
 from framestyle.shots import Shot
+from framestyle.store import recorded_shots
 
 PACE_FRAMES = 20  # the ETA follows the pace of the last this-many finished frames
 
@@ -102,7 +103,7 @@ def render_status(manifest: dict, records: dict[int, dict]) -> RenderStatus:
     render farm) count together; records without finishing times fall back to the mean of
     the frames' own seconds, one process's pace.
     """
-    shots = [Shot(s["shot"], s["start"], s["end"]) for s in manifest["shots"]]
+    shots = list(recorded_shots(manifest))
     entries = {n: list(records.get(n, {"frames": {}})["frames"].values()) for n in (s.index for s in shots)}
     total = sum(s.length for s in shots)
     done = sum(len(e) for e in entries.values())
