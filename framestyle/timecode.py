@@ -190,8 +190,11 @@ def timecode_to_frame(label: str, fps: float) -> int:
         nominal, drop = _timebase(_check_rate(fps), drop_frame)
     except ValueError as exc:
         raise ValueError(f"{label!r} is drop-frame: {exc}") from None
-    if not (hh < _HOURS_PER_DAY and mm < 60 and ss < 60 and ff < nominal):
-        raise ValueError(f"{label!r} is not a timecode at {fps:g} frames/s (frames run 00-{nominal - 1:02d})")
+    wrong = [f"{name} run 00-{limit - 1:02d}" for name, value, limit in
+             (("hours", hh, _HOURS_PER_DAY), ("minutes", mm, 60), ("seconds", ss, 60), ("frames", ff, nominal))
+             if value >= limit]
+    if wrong:  # SMPTE ST 12-1's ranges (from memory): a day of hours, and frames under the nominal rate
+        raise ValueError(f"{label!r} is not a timecode at {fps:g} frames/s ({', '.join(wrong)})")
     if drop and ss == 0 and mm % 10 != 0 and ff < drop:
         raise ValueError(f"{label!r} does not exist in drop-frame timecode: frames 00-{drop - 1:02d} are skipped"
                          " at the start of each minute not divisible by ten")

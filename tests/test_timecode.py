@@ -139,8 +139,9 @@ def test_labels_match_opentimelineio_at_every_minute_boundary(fps):
         ("00:01:00;03", 59.94, "skipped"),
         ("00:00:00;00", 25, "drop-frame timecode exists only at 29.97 and 59.94"),
         ("00:00:00:25", 25, "frames run 00-24"),
-        ("24:00:00:00", 25, "not a timecode at 25"),
-        ("00:60:00:00", 25, "not a timecode at 25"),
+        ("24:00:00:00", 25, r"not a timecode at 25 frames/s \(hours run 00-23\)"),  # a sweep: it blamed the frames
+        ("00:60:00:00", 25, r"\(minutes run 00-59\)"),
+        ("00:00:60:30", 25, r"\(seconds run 00-59, frames run 00-24\)"),
         ("1:00:00:00", 25, "not a timecode like"),
         ("01:00:00", 25, "not a timecode like"),
     ],
