@@ -380,7 +380,8 @@ def test_a_frame_by_frame_render_keeps_exactly_the_detail_of_frames_rendered_on_
     # detail measure renders again must be the very same frame, ratio 1.
     _run("stylise", small_clip, "--style", STYLE, "--out", tmp_path, "-q", *FAST, "--no-temporal", "--shots", "1")
     code, out, err = _run("stability", tmp_path, "--source", small_clip, "--json", "--detail-frames", "2")
-    assert code == 2 and "holds 10 frames but the source has 20" in err  # half a render is refused
+    assert code == 2 and "holds 10 frames but the source has 20" in err  # half a render is refused,
+    assert f"the render is not finished: `framestyle resume {tmp_path}` finishes it" in err  # saying what to do
     _run("stylise", small_clip, "--style", STYLE, "--out", tmp_path, "-q", *FAST, "--no-temporal")
     code, out, _ = _run("stability", tmp_path, "--source", small_clip, "--json", "--detail-frames", "2")
     assert code == 0

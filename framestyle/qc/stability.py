@@ -188,7 +188,8 @@ def stability(out: Path, source_path: Path, preset: str = "medium", alone: Alone
         store.check_footage(manifest, source, out)
     rendered = io.open_source(out)
     if rendered.count != source.count:
-        raise FramestyleError(f"{out}: holds {rendered.count} frames but the source has {source.count}")
+        unfinished = f"; the render is not finished: `framestyle resume {out}` finishes it" if manifest else ""
+        raise FramestyleError(f"{out}: holds {rendered.count} frames but the source has {source.count}{unfinished}")
     if alone is not None and manifest is None:
         raise FramestyleError(f"{out}: no {store.MANIFEST}; the detail measure needs the render's settings")
     result = []
