@@ -662,6 +662,9 @@ def check_resume(manifest: dict, settings: Settings, inputs: dict, shot_list: di
     for key, files, what in (("input_fingerprint", "input_files", "input frames"),
                              ("styles", "styles", "style image(s)"), ("mattes", "mattes", "mattes")):
         if manifest["inputs"][key] != inputs[key] and not (key == "styles" and restyled):
+            if key == "input_fingerprint" and manifest["inputs"]["input"] != inputs["input"]:  # other footage
+                raise FramestyleError(f"{inputs['input']}: not the footage the render in {out} was made from (its "
+                                      f"frames differ from those of {manifest['inputs']['input']})")
             which = _changed_files(manifest["inputs"].get(files), inputs[files])
             raise FramestyleError(f"{out}: the {what} changed since this render started{which}; framestyle "
                                   f"stylise with --restart starts over")

@@ -146,6 +146,8 @@ def test_a_preview_goes_beside_a_render_of_its_footage_never_of_other_footage(sm
     _one_line_error(code, err, f"{other}: not the footage the render in {out} was made from")
     _one_line_error(*_run("report", out, "--source", other)[::2], "not the footage")
     _one_line_error(*_run("flashes", out, "--source", other)[::2], "not the footage")
+    # and to resume (a sweep: it said the input frames had changed since the render started)
+    _one_line_error(*_run("resume", out, "--source", other)[::2], f"{other}: not the footage the render in {out}")
     assert _run("preview", small_clip, "--style", STYLE, "--out", out, "--every", "4", "-q", *FAST)[0] == 0
     assert len(list((out / "preview").glob("take_*.png"))) == 6
     assert {p.name: p.read_bytes() for p in out.glob("take_*.png")} == frames  # the render untouched
