@@ -646,12 +646,12 @@ def check_resume(manifest: dict, settings: Settings, inputs: dict, shot_list: di
     """Refuse to continue a render whose settings, inputs or shot list changed, naming what.
 
     ``shot_list`` None means "whatever the render was started with" (``framestyle resume``);
-    a list, like the style images (:func:`styles_moved`), is the same by its content, wherever
+    a list, like the style images (:func:`_styles_moved`), is the same by its content, wherever
     the file is now.
     """
     old = Settings.from_dict(manifest["settings"], str(out / MANIFEST))
     changed = [key for key in old.differences(settings) if key not in HAND_OFF]
-    restyled = styles_moved(manifest, settings, inputs)
+    restyled = _styles_moved(old, manifest["inputs"]["styles"], settings, inputs["styles"])
     if restyled:  # the same images in the same places of the look, elsewhere
         changed = [key for key in changed if not key.endswith("styles")]
     if changed:
@@ -674,17 +674,17 @@ def check_resume(manifest: dict, settings: Settings, inputs: dict, shot_list: di
                               f"a new --out, or --restart to start over")
 
 
-def styles_moved(manifest: dict, settings: Settings, inputs: dict) -> bool:
-    """Whether ``settings`` name the render's style images by other paths only: every look
-    (the clip's and each shot's) lists images of the same content, in the same order, as the
-    render's look did (a job moved to another disk or machine)."""
-    old = Settings.from_dict(manifest["settings"], MANIFEST)
-    if manifest["inputs"]["styles"] == inputs["styles"] or len(old.looks()) != len(settings.looks()):
+def _styles_moved(old: Settings, was: dict[str, str], settings: Settings, now: dict[str, str]) -> bool:
+    """Whether ``settings`` name the style images of a render made with ``old`` by other paths
+    only: every look (the clip's and each shot's) lists images of the same content, in the same
+    order, as the render's did (a job moved to another disk or machine). ``was`` and ``now``
+    are the images' content hashes by path, then and now."""
+    before, after = old.looks(), settings.looks()
+    if was == now or len(before) != len(after):
         return False
-    was, now = manifest["inputs"]["styles"], inputs["styles"]
-    for (shot, before), (same_shot, after) in zip(old.looks(), settings.looks()):
-        hashes = [was.get(p) for p in before.styles]
-        if shot != same_shot or None in hashes or hashes != [now.get(p) for p in after.styles]:
+    for (shot, then), (same_shot, later) in zip(before, after):
+        hashes = [was.get(p) for p in then.styles]
+        if shot != same_shot or None in hashes or hashes != [now.get(p) for p in later.styles]:
             return False
     return True
 
