@@ -7,6 +7,8 @@ import json
 import math
 import os
 import re
+import select
+import sys
 from pathlib import Path
 from typing import Annotated, Optional
 
@@ -176,6 +178,12 @@ class _Bars:
         self.in_passes = False
 
     def __call__(self, event: str, **info) -> None:
+        try:
+            self._show(event, **info)
+        except BrokenPipeError:  # e.g. `framestyle resume OUT | head -1`: the render goes on unseen
+            _drop_closed_outputs()
+
+    def _show(self, event: str, **info) -> None:
         if event == "warning":  # shown even with --quiet: it says something is off
             typer.echo(f"framestyle: warning: {info['message']}", err=True)
             return
@@ -191,6 +199,7 @@ class _Bars:
             self.progress = Progress(
                 TextColumn("{task.description}"), BarColumn(), MofNCompleteColumn(),
                 TimeElapsedColumn(), TextColumn("ETA"), TimeRemainingColumn(), transient=False,
+                console=_display_console(),
             )
             self.progress.start()
             self.total = self.progress.add_task("all frames", total=info["frames"], completed=info["done"])
@@ -233,8 +242,39 @@ class _Bars:
 
     def stop(self) -> None:
         if self.progress is not None:
-            self.progress.stop()
-            self.progress = None
+            progress, self.progress = self.progress, None
+            try:
+                progress.stop()
+            except BrokenPipeError:
+                _drop_closed_outputs()
+
+
+def _display_console():
+    """A rich console for the progress display that falls silent when its reader goes and lets
+    the render go on (rich's own ends the process with exit code 1 at its next line)."""
+    from rich.console import Console
+
+    class GoesOn(Console):
+        def on_broken_pipe(self) -> None:  # rich's documented hook for this
+            self.quiet = True
+            _drop_closed_outputs()
+
+    return GoesOn()
+
+
+def _drop_closed_outputs() -> None:
+    """Point stdout and stderr, whichever has lost its reader (a pipe into ``head`` that has
+    ended), at os.devnull, so that a render goes on without its display instead of ending at
+    its next line, and the process exits without a word about the pipe (the pattern of
+    Python's documentation, signal module, "Note on SIGPIPE"). A pipe's write end whose
+    reader has closed polls as POLLERR on Linux (POLLHUP on some other systems; from memory)."""
+    devnull = os.open(os.devnull, os.O_WRONLY)
+    for stream in (sys.stdout, sys.stderr):
+        poller = select.poll()
+        poller.register(stream.fileno(), select.POLLOUT)
+        if any(events & (select.POLLERR | select.POLLHUP) for _, events in poller.poll(0)):
+            os.dup2(devnull, stream.fileno())
+    os.close(devnull)
 
 
 # --- commands ---------------------------------------------------------------------------------
@@ -288,7 +328,10 @@ def _render(input: Path, out: Path, settings: Settings, *, workers: int, schedul
         raise typer.Exit(130) from None
     finally:
         bars.stop()
-    _report(result, quiet)
+    try:
+        _report(result, quiet)
+    except BrokenPipeError:  # the render is finished; only its summary has nowhere to go
+        _drop_closed_outputs()
 
 
 @app.command()

@@ -88,6 +88,21 @@ def test_ctrl_c_says_the_render_is_kept_and_how_to_continue(small_clip, tmp_path
     assert err.strip().splitlines()[-1] == f"framestyle: interrupted; finished frames are kept: `framestyle resume {out}` continues"
 
 
+def test_a_render_goes_on_when_the_reader_of_its_display_goes(small_clip, tmp_path):
+    # a sweep: `framestyle resume OUT | head -1` ended the render at its next line, exit code 1
+    # and no word (rich's console exits on a broken pipe); the display now falls silent instead
+    out = tmp_path / "o"
+    child = subprocess.Popen([sys.executable, "-m", "framestyle", "stylise", str(small_clip), "--style", str(STYLE),
+                              "--out", str(out), *FAST], stdout=subprocess.PIPE, stderr=subprocess.PIPE,
+                             text=True, cwd=Path(__file__).parents[1])
+    assert child.stdout.readline().startswith("20 frames in 2 shot(s)")  # what `head -1` reads
+    child.stdout.close()  # ... before the first shot's line
+    err = child.stderr.read()
+    assert child.wait(timeout=240) == 0, err
+    assert "Traceback" not in err and "Broken pipe" not in err
+    assert len(store.Store(out).finished()) == 20
+
+
 def test_preview_writes_every_nth_frame_and_a_contact_sheet_per_shot(small_clip, tmp_path):
     code, out, _ = _run("preview", small_clip, "--style", STYLE, "--out", tmp_path, "--every", "4", "-q", *FAST)
     assert code == 0
