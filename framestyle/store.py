@@ -357,6 +357,10 @@ class Store:
         with its audio, and with ``prores`` an edit-ready ProRes 422 HQ .mov (folders too), both
         at the clip's rate and start timecode.
 
+        A video named after the footage's old name (the footage was renamed, and the render
+        followed it) is renamed, not made again: every video here was made from these frames
+        (a restart discards them).
+
         Call under :meth:`folder_lock`, so that two processes finishing at once encode them once.
         """
         stem = source.path.stem if source.kind == "video" else source.path.name
@@ -365,6 +369,10 @@ class Store:
         for wanted, suffix, encode in ((source.kind == "video", ".mp4", io.write_video),
                                        (prores, ".mov", io.write_prores)):
             video = self.out / f"{stem}{VIDEO_SUFFIX}{suffix}"
+            named_before = [self.out / name for name in self.videos() if name.endswith(f"{VIDEO_SUFFIX}{suffix}")]
+            if wanted and not video.exists() and named_before:
+                atomic.move(named_before[0], video)
+                self.log(f"renamed {named_before[0].name} to {video.name}, after the footage")
             if wanted and not video.exists():
                 encode(self.frame_paths(names), timecode.fps, video, audio_from=audio,
                        start_timecode=timecode.label(0), pixel_aspect=source.pixel_aspect)

@@ -257,6 +257,23 @@ def test_video_input_gives_png_frames_and_an_mp4_with_the_source_audio(tmp_path)
     assert imageio_ffmpeg.count_frames_and_secs(str(result))[0] == 6
 
 
+def test_the_video_of_a_render_follows_its_renamed_footage(tmp_path):
+    # a sweep: a clip renamed between runs left the old clip_framestyle.mp4 beside a new one
+    video = tmp_path / "clip.mp4"
+    subprocess.run([imageio_ffmpeg.get_ffmpeg_exe(), "-v", "error", "-f", "lavfi", "-i", "testsrc2=size=128x72:rate=12",
+                    "-t", "0.5", "-pix_fmt", "yuv420p", "-c:v", "libx264", str(video)], check=True)
+    out = tmp_path / "o"
+    assert _run("stylise", video, "--style", STYLE, "--out", out, "-q", *FAST, "--prores")[0] == 0
+    made = {name: (out / name).read_bytes() for name in ("clip_framestyle.mp4", "clip_framestyle.mov")}
+    video.rename(tmp_path / "take2.mp4")
+    code, _, err = _run("stylise", tmp_path / "take2.mp4", "--style", STYLE, "--out", out, "-q", *FAST, "--prores")
+    assert code == 0, err
+    assert store.Store(out).videos() == ["take2_framestyle.mov", "take2_framestyle.mp4"]
+    for name, data in made.items():  # renamed, not encoded again
+        assert (out / name.replace("clip", "take2")).read_bytes() == data
+    assert "renamed clip_framestyle.mp4 to take2_framestyle.mp4" in (out / "render.log").read_text()
+
+
 def test_shots_command_finds_the_sample_clip_cut():
     code, out, _ = _run("shots", SAMPLE / "frames", "--json")
     assert code == 0
