@@ -377,6 +377,7 @@ def resume(
     quiet: Annotated[bool, typer.Option("--quiet", "-q", help="No progress display.")] = False,
     prores: Annotated[bool, typer.Option("--prores", help="Also write the ProRes 422 HQ hand-off, to a render started without it (its frames are kept).")] = False,
     source: Annotated[Optional[Path], typer.Option("--source", readable=False, help="The footage, if it moved since the render started (checked by content; the render then follows it).")] = None,
+    style: Annotated[Optional[list[Path]], typer.Option("--style", "-s", readable=False, help="The style image(s), if they moved since the render started, in the render's order (checked by content; the render then follows them).")] = None,
 ) -> None:
     """Continue a render from its manifest alone (input, settings and shot list are in it).
 
@@ -393,6 +394,13 @@ def resume(
     settings = _run(Settings.from_dict, manifest["settings"], str(out / store.MANIFEST))
     if prores:
         settings = dataclasses.replace(settings, prores=True)
+    if style:
+        for path in style:
+            _check_path(path, "style image")
+        settings = _run(Settings.from_dict, {**settings.to_dict(), "styles": [str(p) for p in style]}, "--style")
+    gone = next((p for _, look in settings.looks() for p in look.styles if not Path(p).exists()), None)
+    if gone:
+        _fail(f"{gone}: style image not found (give --style with its new place if it moved)")
     footage = _check_path(source or Path(manifest["inputs"]["input"]), "source footage (give --source if it moved)")
     _render(footage, out, settings, workers=workers, scheduler=scheduler, threads=threads, quiet=quiet, shots=shots,
             keep_shot_list=True)

@@ -662,11 +662,10 @@ def check_resume(manifest: dict, settings: Settings, inputs: dict, shot_list: di
     restyled = _styles_moved(old, manifest["inputs"]["styles"], settings, inputs["styles"])
     if restyled:  # the same images in the same places of the look, elsewhere
         changed = [key for key in changed if not key.endswith("styles")]
-    if changed:
-        raise FramestyleError(
-            f"{out}: was rendered with different settings ({', '.join(changed)}); "
-            f"use the same options, a new --out, or --restart to start over"
-        )
+    if changed:  # resume (no shot list given) has neither the options nor --restart
+        advice = ("use the same options, a new --out, or --restart to start over" if shot_list is not None
+                  else "`framestyle stylise` with a new --out or --restart starts over")
+        raise FramestyleError(f"{out}: was rendered with different settings ({', '.join(changed)}); {advice}")
     for key, files, what in (("input_fingerprint", "input_files", "input frames"),
                              ("styles", "styles", "style image(s)"), ("mattes", "mattes", "mattes")):
         if manifest["inputs"][key] != inputs[key] and not (key == "styles" and restyled):

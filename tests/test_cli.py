@@ -71,6 +71,26 @@ def test_a_render_follows_its_footage_when_it_moves(small_clip, tmp_path):
     assert store.read_manifest(out)["inputs"]["input"] == str(clip)
 
 
+def test_resume_follows_style_images_that_moved(small_clip, tmp_path):
+    # a sweep: resume had no way to a moved style image ("no such image file"); stylise had
+    style = tmp_path / "paint.png"
+    shutil.copy(STYLE, style)
+    out = tmp_path / "o"
+    assert _run("stylise", small_clip, "--style", style, "--out", out, "-q", *FAST, "--shots", "1")[0] == 0
+    style.rename(tmp_path / "kept.png")
+    code, _, err = _run("resume", out, "-q")
+    _one_line_error(code, err, f"{style}: style image not found (give --style with its new place if it moved)")
+    code, _, err = _run("resume", out, "-q", "--style", SAMPLE / "style_ink.png")  # another painting
+    _one_line_error(code, err, f"{out}: was rendered with different settings (styles); `framestyle stylise` with "
+                               f"a new --out or --restart starts over")
+    assert len(store.Store(out).finished()) == 10
+    code, _, err = _run("resume", out, "-q", "--style", tmp_path / "kept.png")
+    assert code == 0, err
+    assert len(store.Store(out).finished()) == 20
+    assert list(store.read_manifest(out)["inputs"]["styles"]) == [str(tmp_path / "kept.png")]
+    assert _run("resume", out, "-q")[0] == 0  # the manifest names the new place
+
+
 def test_ctrl_c_says_the_render_is_kept_and_how_to_continue(small_clip, tmp_path):
     out = tmp_path / "o"
     child = subprocess.Popen([sys.executable, "-m", "framestyle", "stylise", str(small_clip), "--style", str(STYLE),
