@@ -563,17 +563,21 @@ def stability_command(
     rows = _run(stability, out, source, flow_preset, alone, max(1, detail_frames))
     if json_out:
         typer.echo(json.dumps({
-            "shots": [{"shot": r.shot.index, "frames": r.frames, "render": _number(r.render), "source": _number(r.source),
-                       "detail": [{"frame": n, "ratio": v} for n, v in r.detail]} for r in rows],
+            "shots": [{"shot": r.shot.index, "frames": r.frames, "rendered": r.rendered, "render": _number(r.render),
+                       "source": _number(r.source), "detail": [{"frame": n, "ratio": v} for n, v in r.detail]}
+                      for r in rows],
             "overall": {"render": _number(overall(rows, "render")), "source": _number(overall(rows, "source"))},
         }, allow_nan=False))
         return
     typer.echo(f"{'shot':>4}  {'frames':>11}  {'render':>10}  {'source':>10}" + ("  stroke detail (frame: ratio)" if alone else ""))
     for r in rows:
-        typer.echo(f"{r.shot.index:>4}  {r.frames:>11}  {_measured(r.render, '.5f'):>10}  {_measured(r.source, '.5f'):>10}"
-                   + "".join(f"  {n}: {v:.2f}" for n, v in r.detail))
+        typer.echo(f"{r.shot.index:>4}  {r.frames:>11}  " + (
+            f"{_measured(r.render, '.5f'):>10}  {_measured(r.source, '.5f'):>10}" + "".join(f"  {n}: {v:.2f}" for n, v in r.detail)
+            if r.rendered else "not rendered yet"))
     typer.echo(f"{'all':>4}  {'':>11}  {_measured(overall(rows, 'render'), '.5f'):>10}  "
                f"{_measured(overall(rows, 'source'), '.5f'):>10}")
+    if not all(r.rendered for r in rows):
+        typer.echo(f"(the render is still going: `framestyle resume {out}` goes on with it; \"all\" is of the shots rendered)")
     typer.echo("warping error: mean squared RGB change along the optical flow (Lai et al. 2018), of the delivered "
                "frames at the source's size (the render report's are at the working size)")
     if alone:

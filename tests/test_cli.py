@@ -432,10 +432,23 @@ def test_a_one_frame_shot_has_no_warping_error_and_says_so_in_valid_json(small_c
 def test_a_frame_by_frame_render_keeps_exactly_the_detail_of_frames_rendered_on_their_own(small_clip, tmp_path):
     # With the temporal terms off every frame is rendered on its own: the reference the
     # detail measure renders again must be the very same frame, ratio 1.
-    _run("stylise", small_clip, "--style", STYLE, "--out", tmp_path, "-q", *FAST, "--no-temporal", "--shots", "1")
+    _run("stylise", small_clip, "--style", STYLE, "--out", tmp_path, "-q", *FAST, "--no-temporal", "--shots", "2")
+    # half a render: its whole shots are measured, the others said to be still to come (a sweep:
+    # stability refused a render still going, so a wrangler could not check the shots done)
     code, out, err = _run("stability", tmp_path, "--source", small_clip, "--json", "--detail-frames", "2")
-    assert code == 2 and "holds 10 frames but the source has 20" in err  # half a render is refused,
-    assert f"the render is not finished: `framestyle resume {tmp_path}` finishes it" in err  # saying what to do
+    assert code == 0, err
+    shots = json.loads(out)["shots"]
+    assert [s["rendered"] for s in shots] == [False, True] and shots[0]["render"] is None and shots[0]["detail"] == []
+    assert shots[1]["render"] > 0 and [d["ratio"] for d in shots[1]["detail"]] == [1.0, 1.0]
+    assert json.loads(out)["overall"]["render"] == shots[1]["render"]
+    code, out, _ = _run("stability", tmp_path, "--detail-frames", "0")
+    assert code == 0 and "   1         1-10  not rendered yet" in out
+    assert f"(the render is still going: `framestyle resume {tmp_path}` goes on with it" in out
+    begun = tmp_path.parent / f"{tmp_path.name}_begun"  # no shot whole yet: nothing to measure, said so
+    shutil.copytree(tmp_path, begun)
+    (begun / "take_020.png").unlink()
+    _one_line_error(*_run("stability", begun, "--detail-frames", "0")[::2],
+                    f"{begun}: no shot is rendered whole yet; `framestyle resume {begun}` goes on with it")
     _run("stylise", small_clip, "--style", STYLE, "--out", tmp_path, "-q", *FAST, "--no-temporal")
     code, out, _ = _run("stability", tmp_path, "--source", small_clip, "--json", "--detail-frames", "2")
     assert code == 0

@@ -156,9 +156,10 @@ def sequence_warping_error(
 class ShotStability:
     shot: Shot
     frames: str  # first and last frame in the source's numbers
-    render: float  # mean warping error of the stylised frames
+    render: float  # mean warping error of the stylised frames (NaN: no pair, or not rendered yet)
     source: float  # the same for the source footage
     detail: list[tuple[int, float]] = field(default_factory=list)  # (frame number, stroke-detail ratio)
+    rendered: bool = True  # False: a shot of a render still going, not all its frames written yet
 
 
 Alone = Callable[[Sequence[int]], Iterator[tuple[int, np.ndarray]]]
@@ -179,7 +180,9 @@ def stability(out: Path, source_path: Path, preset: str = "medium", alone: Alone
 
     The shot list comes from the render's manifest, or is detected on the source. The detail
     ratios compare the render's frames with the same frames rendered on their own by
-    ``alone``, both brought to the render's working size; they need the manifest.
+    ``alone``, both brought to the render's working size; they need the manifest. Of a render
+    still going (the manifest's, fewer frames written than the source has) the shots whose
+    frames are all written are measured, the others come back with ``rendered`` False.
     """
     out = Path(out)
     source = io.open_source(Path(source_path))
@@ -187,27 +190,37 @@ def stability(out: Path, source_path: Path, preset: str = "medium", alone: Alone
     if manifest is not None:
         store.check_footage(manifest, source, out)
     rendered = io.open_source(out)
-    if rendered.count != source.count:
-        unfinished = f"; the render is not finished: `framestyle resume {out}` finishes it" if manifest else ""
-        raise FramestyleError(f"{out}: holds {rendered.count} frames but the source has {source.count}{unfinished}")
+    if rendered.count != source.count and manifest is None:
+        raise FramestyleError(f"{out}: holds {rendered.count} frames but the source has {source.count}")
     if alone is not None and manifest is None:
         raise FramestyleError(f"{out}: no {store.MANIFEST}; the detail measure needs the render's settings")
+    # a frame of the render by the source's index: by position in a whole render, else by name
+    written = dict(zip(rendered.names, range(rendered.count)))
+    position = (list(range(source.count)) if rendered.count == source.count
+                else [written.get(name) for name in source.names])
     result = []
     for shot in _shots(out, source):
-        def stream(clip):  # frames of this shot, read as needed: memory does not grow
-            return (f for _, f in io.iter_frames(clip, shot.start, shot.end + 1))
+        if any(position[i] is None for i in shot.frames):
+            result.append(ShotStability(shot, frame_range(shot, source.numbers), math.nan, math.nan, rendered=False))
+            continue
 
+        def footage():  # frames of this shot, read as needed: memory does not grow
+            return (f for _, f in io.iter_frames(source, shot.start, shot.end + 1))
+
+        render = (io.read_frame(rendered, position[i]) for i in shot.frames)  # a folder: read by position
         row = ShotStability(
             shot, frame_range(shot, source.numbers),
-            sequence_warping_error(stream(rendered), stream(source), preset),
-            sequence_warping_error(stream(source), stream(source), preset),
+            sequence_warping_error(render, footage(), preset),
+            sequence_warping_error(footage(), footage(), preset),
         )
         if alone is not None:
             width = Settings.from_dict(manifest["settings"]).for_shot(shot.index).width
             size = working_size(source.width, source.height, width, 1, source.pixel_aspect)
-            row.detail = [(source.numbers[i], detail_ratio(io.read_frame(rendered, i), image, size))
+            row.detail = [(source.numbers[i], detail_ratio(io.read_frame(rendered, position[i]), image, size))
                           for i, image in alone(detail_frames(shot, detail_count))]
         result.append(row)
+    if not any(row.rendered for row in result):
+        raise FramestyleError(f"{out}: no shot is rendered whole yet; `framestyle resume {out}` goes on with it")
     return result
 
 
