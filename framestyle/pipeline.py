@@ -47,7 +47,7 @@ from framestyle.report import refresh_report
 from framestyle.settings import Settings
 from framestyle.shots import Shot, shots_from_boundaries
 from framestyle.shots.detect import detect_shots, frame_signature
-from framestyle.shots.continuity import starts_new_shot
+from framestyle.shots.continuity import continuity
 from framestyle.shots.cutlists import clip_timecode
 from framestyle.shots.lists import frame_range, parse_shot_file, parse_shot_selection
 from framestyle.store import (FLASH_KINDS, HAND_OFF, MANIFEST, Store, check_footage, check_resume, environment_changes,
@@ -534,6 +534,9 @@ class _ShotRender:
         self.size = working_size(source.width, source.height, settings.width, self.net.min_side, source.pixel_aspect)
         self.params = solver_params(settings)
         self.offsets = sorted(settings.long_term) if settings.temporal else []
+        # how far back a frame looks: its temporal terms, and frame t−2 (the continuity check,
+        # and the frame after an odd one goes on from it)
+        self.reach = max([*self.offsets, 2]) if self.offsets else 0
         self.passes = settings.passes if settings.temporal else 1
         self.probe = settings.detail_probe if settings.temporal else 0
         self.base_tv = settings.tv_weight if settings.warm_tv_weight is None else settings.warm_tv_weight
@@ -579,7 +582,8 @@ class _ShotRender:
         shot = self.shot
         if self.passes == 1:
             fresh = [i for i in range(shot.start, first_todo) if self._entry(i).get("fresh")]
-            needed = [(first_todo - j, "pass1") for j in self.offsets if first_todo - j >= max([shot.start] + fresh)]
+            needed = [(first_todo - j, "pass1") for j in {*self.offsets, 2} if self.offsets  # t−2: after an odd frame
+                      and first_todo - j >= max([shot.start] + fresh)]
             pass_, begin = 1, first_todo
         else:
             done = {i: self._passes_done(i) for i in shot.frames}
@@ -624,7 +628,7 @@ class _ShotRender:
         self.chain_start = max([shot.start] + [i for i in range(shot.start, begin) if self._entry(i).get("fresh")])
         if self.passes > 1:
             progress("pass", shot=shot.index, pass_=1, passes=self.passes, done=begin - shot.start)
-        reach = max(self.offsets, default=0)
+        reach = self.reach
         # (index, working frame in 8 bits): the flows to frames up to ``reach`` back need them, and
         # 41 float frames at 1280×720 were 450 MB (DIS works on 8-bit grey frames anyway)
         history: deque[tuple[int, np.ndarray]] = deque(maxlen=reach + 1)
@@ -645,13 +649,19 @@ class _ShotRender:
         settings, name = self.settings, self.names[index]
         earlier = [(FlowPair.between(frame.content, sources[index - j], settings.flow_preset),
                     self.work.load_state(index - j)) for j in self.offsets if index - j in sources]
-        fresh = bool(earlier) and starts_new_shot(earlier[0][0], frame.content, sources.get(index - 2),
-                                                  following and following.content, sources[index - 1],
-                                                  settings.flow_preset)
+        verdict, across = continuity(earlier[0][0], frame.content, sources.get(index - 2), following and following.content,
+                                     sources[index - 1], settings.flow_preset) if earlier else ("same", None)
+        fresh, linked = verdict == "cut", index - 1  # linked: the frame this one continues
         if fresh:  # a cut the detector missed: the chain starts again here
             earlier, self.chain_start = [], index
             self.work.store.log(f"frame {name}: no optical-flow correspondence with the frames before it "
                                 f"(a missed cut?); started fresh as a new shot")
+        elif verdict == "odd":  # a flash or a one-frame cutaway: nothing of it goes on into the shot
+            earlier = []
+            self.work.store.log(f"frame {name}: no optical-flow correspondence with the frames either side of it "
+                                f"(a flash, a one-frame cutaway?); solved on its own, the chain goes on past it")
+        elif verdict == "after odd":  # the frame before was odd: this one goes on from the one before that
+            earlier[0], linked = (across, self.work.load_state(index - 2)), index - 2
         steering = bool(earlier) and self.probe > 0
         tv, reference = self._steer(index, frame.content, look) if steering else (self.base_tv, None)
         params = dataclasses.replace(self.params, warm_tv_weight=tv) if steering else self.params
@@ -663,17 +673,19 @@ class _ShotRender:
         # the warping error of this frame and its predecessor, and the source's own along the same
         # flows (the reference the report shows beside it), reuse the flows of the temporal loss
         error = flow_warping_error(earlier[0][1], result, earlier[0][0]) if earlier else None
-        source_error = flow_warping_error(sources[index - 1], frame.content, earlier[0][0]) if earlier else None
+        source_error = flow_warping_error(sources[linked], frame.content, earlier[0][0]) if earlier else None
         entry = {"iterations": stats.iterations, "style": stats.style, "content": stats.content,
                  "warp_error": error, "source_warp_error": source_error, "fresh": fresh}
-        if self.probe:  # a chain's start is solved on its own: its detail is the first reference
+        if self.probe and verdict == "odd":  # the steering passes over an odd frame
+            entry["steer"] = self._entry(index - 1)["steer"]
+        elif self.probe:  # a chain's start is solved on its own: its detail is the first reference
             energy = laplacian_energy(result)
             entry["steer"] = [tv, energy, reference if steering else energy]
         if self.passes > 1:
             self._note(index, 1, entry, time.perf_counter() - t0, progress)
             return
         self._deliver(index, frame, result, entry, mattes, time.perf_counter() - t0, progress, stats.temporal)
-        self.work.prune_state(index + 1 - max(self.offsets, default=0))  # what the next frame needs stays
+        self.work.prune_state(index + 1 - self.reach)  # what the next frames need stays
 
     def _later_pass(self, pass_: int, begin: int | None, look: Look, progress: Progress) -> None:
         """Pass ``pass_`` ≥ 2 over the shot (from ``begin`` when resuming inside it)."""

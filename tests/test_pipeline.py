@@ -1,6 +1,7 @@
 """The render loop: one frame per input frame, shots restart the chain, resume is exact."""
 
 import json
+import shutil
 import os
 import subprocess
 import sys
@@ -166,6 +167,32 @@ def test_each_frame_pair_flows_are_computed_once_and_shared_with_the_warping_err
     pairs = sum(1 for k in range(10) for j in (1, 4) if k - j >= 0)  # shot 1 is frames 0..9
     assert len(calls) == 2 * pairs
     assert result.shots[0].warp_error_pairs == 9
+
+
+def test_a_one_frame_cutaway_is_solved_on_its_own_and_the_chain_goes_on_past_it(small_clip, tmp_path):
+    # A music video's flash cut: one frame of another picture inside a shot, the shot going
+    # on after it. Warm-started from the frame before, it came out as a ghost of that frame,
+    # and the frame after it, warm-started from it, carried its paint on through the shot.
+    clip = tmp_path / "clip"
+    clip.mkdir()
+    for k in range(1, 11):
+        shutil.copy(small_clip / f"take_{k if k != 5 else 15:03d}.png", clip / f"take_{k:03d}.png")
+    listing = tmp_path / "one_shot.txt"
+    listing.write_text("1\n")  # no detection: the render's own check meets the cutaway
+    out = tmp_path / "out"
+    settings = fast_settings(iterations=20)
+    render(clip, out, settings, shot_file=listing)
+    assert "take_005.png: no optical-flow correspondence with the frames either side of it" in (out / store.LOG).read_text()
+    entries = store.Store(out).finished()
+    assert not any(e["fresh"] for e in entries.values())  # one chain through the shot
+    look = build_look(load_network(settings.network), settings)
+    content = resize(io.read_frame(io.open_source(clip), 4), (128, 72))
+    alone, _ = stylise(look, content, 4, [], solver_params(settings), settings.seed)
+    frame = lambda k: cv2.imread(str(out / f"take_{k:03d}.png"))[..., ::-1].astype(np.float32)
+    assert np.array_equal(np.round(alone * 255), frame(5))  # the cutaway: as a frame on its own
+    # the frame after it goes on from the frame before it: near that frame, far from the cutaway
+    assert np.abs(frame(6) - frame(4)).mean() < 0.3 * np.abs(frame(6) - frame(5)).mean()  # 0.22 (0.43 before)
+    assert entries["take_006.png"]["source_warp_error"] < 0.01  # measured against take_004, not the cutaway
 
 
 def test_a_cut_missing_from_the_shot_list_starts_fresh_where_the_flow_finds_no_correspondence(small_clip, tmp_path):
