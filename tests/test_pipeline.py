@@ -194,6 +194,21 @@ def test_a_one_frame_cutaway_is_solved_on_its_own_and_the_chain_goes_on_past_it(
     assert np.abs(frame(6) - frame(4)).mean() < 0.3 * np.abs(frame(6) - frame(5)).mean()  # 0.22 (0.43 before)
     assert entries["take_006.png"]["source_warp_error"] < 0.01  # measured against take_004, not the cutaway
 
+    def stop_after(name):  # a kill right after ``name`` was delivered
+        def progress(event, **info):
+            if event == "frame" and info["index"] == int(name[5:8]) - 1:
+                raise KeyboardInterrupt
+        return progress
+
+    for name in ("take_005.png", "take_006.png"):  # resumed after the cutaway, and after the frame after it
+        again = tmp_path / f"again_{name}"
+        with pytest.raises(KeyboardInterrupt):
+            render(clip, again, settings, shot_file=listing, progress=stop_after(name))
+        assert len(store.Store(again).finished()) == int(name[5:8])
+        render(clip, again, settings, shot_file=listing)
+        for k in range(1, 11):
+            assert (again / f"take_{k:03d}.png").read_bytes() == (out / f"take_{k:03d}.png").read_bytes(), (name, k)
+
 
 def test_a_cut_missing_from_the_shot_list_starts_fresh_where_the_flow_finds_no_correspondence(small_clip, tmp_path):
     # One shot over the whole clip hides the cut at take_011: the forward-backward check
