@@ -44,6 +44,12 @@ def _run(fn, *args, **kwargs):
         _fail(f"{exc.filename or ''}: {exc.strerror or exc}".lstrip(": "))
 
 
+def _footage(source: Path | None, manifest: dict | None) -> Path:
+    """The footage of the render ``manifest`` describes: ``--source`` where given, else where
+    the render read it; a one-line error where it is not there."""
+    return _check_path(source or Path(manifest["inputs"]["input"]), "source footage (give --source if it moved)")
+
+
 def _check_path(path: Path, what: str) -> Path:
     """``path``, or a one-line error where it is missing or this user may not read it (the Path
     options leave that to here: click's own check is a box of several lines)."""
@@ -401,9 +407,8 @@ def resume(
     gone = next((p for _, look in settings.looks() for p in look.styles if not Path(p).exists()), None)
     if gone:
         _fail(f"{gone}: style image not found (give --style with its new place if it moved)")
-    footage = _check_path(source or Path(manifest["inputs"]["input"]), "source footage (give --source if it moved)")
-    _render(footage, out, settings, workers=workers, scheduler=scheduler, threads=threads, quiet=quiet, shots=shots,
-            keep_shot_list=True)
+    _render(_footage(source, manifest), out, settings, workers=workers, scheduler=scheduler, threads=threads,
+            quiet=quiet, shots=shots, keep_shot_list=True)
 
 
 def _report(result, quiet: bool) -> None:
@@ -522,8 +527,7 @@ def report_command(
         typer.echo(_run(refresh_report, out, redraw=True))
         return
     settings = _run(Settings.from_dict, manifest["settings"], str(out / store.MANIFEST))
-    footage = _check_path(source or Path(manifest["inputs"]["input"]), "source footage (give --source if it moved)")
-    clip = _run(io.open_source, footage)
+    clip = _run(io.open_source, _footage(source, manifest))
     _run(store.check_footage, manifest, clip, out)
     shot_file = manifest["shot_list"]["file"]
     shot_file = Path(shot_file) if shot_file and Path(shot_file).exists() else None
@@ -545,12 +549,10 @@ def stability_command(
     from framestyle.qc.stability import overall, stability
 
     _check_path(out, "render folder")
-    if source is None:  # a render's own footage, as report and flashes find it
-        manifest = _run(store.read_manifest, out) if out.is_dir() else None
-        if manifest is None:
-            _fail(f"{out}: no {store.MANIFEST}; give --source with the footage these frames were made from")
-        source = Path(manifest["inputs"]["input"])
-    _check_path(source, "source footage (give --source if it moved)")
+    manifest = _run(store.read_manifest, out) if out.is_dir() else None
+    if manifest is None and source is None:
+        _fail(f"{out}: no {store.MANIFEST}; give --source with the footage these frames were made from")
+    source = _footage(source, manifest)
     if detail_frames < 0:
         _fail(f"--detail-frames {detail_frames}: must be 0 or more")
     if flow_preset not in FLOW_PRESETS:

@@ -534,9 +534,10 @@ class _ShotRender:
         self.size = working_size(source.width, source.height, settings.width, self.net.min_side, source.pixel_aspect)
         self.params = solver_params(settings)
         self.offsets = sorted(settings.long_term) if settings.temporal else []
-        # how far back a frame looks: its temporal terms, and frame t−2 (the continuity check,
-        # and the frame after an odd one goes on from it)
-        self.reach = max([*self.offsets, 2]) if self.offsets else 0
+        # the earlier frames a frame looks back to: its temporal terms', and t−2 (the continuity
+        # check, and the frame after an odd one goes on from it)
+        self.looks_back = {*self.offsets, 2} if self.offsets else set()
+        self.reach = max(self.looks_back, default=0)
         self.passes = settings.passes if settings.temporal else 1
         self.probe = settings.detail_probe if settings.temporal else 0
         self.base_tv = settings.tv_weight if settings.warm_tv_weight is None else settings.warm_tv_weight
@@ -582,8 +583,7 @@ class _ShotRender:
         shot = self.shot
         if self.passes == 1:
             fresh = [i for i in range(shot.start, first_todo) if self._entry(i).get("fresh")]
-            needed = [(first_todo - j, "pass1") for j in {*self.offsets, 2} if self.offsets  # t−2: after an odd frame
-                      and first_todo - j >= max([shot.start] + fresh)]
+            needed = [(first_todo - j, "pass1") for j in self.looks_back if first_todo - j >= max([shot.start] + fresh)]
             pass_, begin = 1, first_todo
         else:
             done = {i: self._passes_done(i) for i in shot.frames}
@@ -628,16 +628,15 @@ class _ShotRender:
         self.chain_start = max([shot.start] + [i for i in range(shot.start, begin) if self._entry(i).get("fresh")])
         if self.passes > 1:
             progress("pass", shot=shot.index, pass_=1, passes=self.passes, done=begin - shot.start)
-        reach = self.reach
         # (index, working frame in 8 bits): the flows to frames up to ``reach`` back need them, and
         # 41 float frames at 1280×720 were 450 MB (DIS works on 8-bit grey frames anyway)
-        history: deque[tuple[int, np.ndarray]] = deque(maxlen=reach + 1)
-        wanted = {*self.offsets, 2}  # frame t−2 for the missed-cut check
+        history: deque[tuple[int, np.ndarray]] = deque(maxlen=self.reach + 1)
         frames = ((index, prepare_frame(raw, self.size, settings, self.source.linear))
-                  for index, raw in io.iter_frames(self.source, max(shot.start, begin - reach), shot.end + 1))
+                  for index, raw in io.iter_frames(self.source, max(shot.start, begin - self.reach), shot.end + 1))
         for (index, frame), following in _with_next(frames):
             if index >= begin:
-                sources = {k: from_8bit(kept) for k, kept in history if k >= self.chain_start and index - k in wanted}
+                sources = {k: from_8bit(kept) for k, kept in history
+                           if k >= self.chain_start and index - k in self.looks_back}
                 self._frame(index, frame, following and following[1], look, mattes, sources, progress)
             history.append((index, to_8bit(frame.content)))
         if self.passes > 1:

@@ -368,17 +368,18 @@ class Store:
         made = []
         for wanted, suffix, encode in ((source.kind == "video", ".mp4", io.write_video),
                                        (prores, ".mov", io.write_prores)):
+            if not wanted:
+                continue
             video = self.out / f"{stem}{VIDEO_SUFFIX}{suffix}"
-            named_before = [self.out / name for name in self.videos() if name.endswith(f"{VIDEO_SUFFIX}{suffix}")]
-            if wanted and not video.exists() and named_before:
-                atomic.move(named_before[0], video)
-                self.log(f"renamed {named_before[0].name} to {video.name}, after the footage")
-            if wanted and not video.exists():
+            named_before = [name for name in self.videos() if name.endswith(f"{VIDEO_SUFFIX}{suffix}")]
+            if not video.exists() and named_before:
+                atomic.move(self.out / named_before[0], video)
+                self.log(f"renamed {named_before[0]} to {video.name}, after the footage")
+            elif not video.exists():
                 encode(self.frame_paths(names), timecode.fps, video, audio_from=audio,
                        start_timecode=timecode.label(0), pixel_aspect=source.pixel_aspect)
                 self.log(f"wrote {video.name}")
-            if wanted:
-                made.append(video)
+            made.append(video)
         return made
 
     @contextlib.contextmanager

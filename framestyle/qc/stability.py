@@ -166,8 +166,8 @@ Alone = Callable[[Sequence[int]], Iterator[tuple[int, np.ndarray]]]
 """Renders frames of a render each on its own, as :func:`framestyle.pipeline.frames_alone`."""
 
 
-def _shots(out: Path, source: io.FrameSource) -> list[Shot]:
-    manifest = store.read_manifest(out)
+def _shots(manifest: dict | None, source: io.FrameSource) -> list[Shot]:
+    """The render's shots (its manifest's), or detected on the source where it has none."""
     if manifest is not None:
         return list(store.recorded_shots(manifest))
     return detect_shots([frame_signature(f) for _, f in io.iter_frames(source)])
@@ -199,7 +199,7 @@ def stability(out: Path, source_path: Path, preset: str = "medium", alone: Alone
     position = (list(range(source.count)) if rendered.count == source.count
                 else [written.get(name) for name in source.names])
     result = []
-    for shot in _shots(out, source):
+    for shot in _shots(manifest, source):
         if any(position[i] is None for i in shot.frames):
             result.append(ShotStability(shot, frame_range(shot, source.numbers), math.nan, math.nan, rendered=False))
             continue
