@@ -143,7 +143,10 @@ def _run_shots(client, plan: Plan, threads: int | None, progress: Progress, wher
             pending -= done
             for future in done:
                 try:
-                    progress("shot", summary=future.result())
+                    summary = future.result()
+                    for warning in summary.warnings:  # the worker's, said here where someone watches
+                        progress("warning", message=warning)
+                    progress("shot", summary=summary)
                     _warn_flashes(store, futures[future], progress)
                 except KilledWorker:
                     died.append(futures[future])

@@ -78,12 +78,14 @@ class ShotSummary:
     iterations: int = 0
     warp_error_sum: float = 0.0
     warp_error_pairs: int = 0
+    warnings: tuple[str, ...] = ()  # said while rendering it (a farm's client passes them on)
 
     @classmethod
-    def from_record(cls, shot: Shot, frames: dict[str, dict], numbers: Sequence[int]) -> "ShotSummary":
+    def from_record(cls, shot: Shot, frames: dict[str, dict], numbers: Sequence[int],
+                    warnings: tuple[str, ...] = ()) -> "ShotSummary":
         errors = [e["warp_error"] for e in frames.values() if e.get("warp_error") is not None]
         return cls(shot, frame_range(shot, numbers), len(frames), sum(e["seconds"] for e in frames.values()),
-                   sum(e["iterations"] for e in frames.values()), sum(errors), len(errors))
+                   sum(e["iterations"] for e in frames.values()), sum(errors), len(errors), warnings)
 
     @property
     def warp_error(self) -> float:
@@ -234,7 +236,7 @@ def plan_render(
             store.log(f"frames numbered {source.numbers[0]}-{source.numbers[-1]}, first frame at timecode "
                       f"{clip_timecode(source, settings, shot_file).label(0)}")
             store.create({"settings": settings.to_dict(), "inputs": inputs, "shot_list": shot_list,
-                          "shots": [s.to_dict() for s in shot_list_], "environment": environment(net),
+                          "shots": [s.to_dict() for s in shot_list_], "environment": library_versions(),
                           "created": time.strftime("%Y-%m-%dT%H:%M:%S%z")})
             store.log(f"new render of {source.path}, settings {settings.digest()}, "
                       f"shots {', '.join(f'{s.index}:{frame_range(s, source.numbers)}' for s in shot_list_)}")
@@ -247,10 +249,6 @@ def plan_render(
     chosen = [s for s in shot_list_ if s.index in wanted]
     names = plan.names
     done = sum(1 for s in chosen for i in s.frames if names[i] in finished)
-    if manifest is not None and done < sum(s.length for s in chosen):  # said only where frames remain
-        for change in environment_changes(manifest, environment(net)):
-            progress("warning", message=f"resumed under {change}: the frames rendered now keep the look but "
-                                        f"may place their strokes differently from an uninterrupted render")
     size = working_size(source.width, source.height, settings.width, net.min_side, source.pixel_aspect)
     progress("start", frames=sum(s.length for s in chosen), shots=len(chosen), done=done, size=size)
     refresh_report(plan.out, plan.source, plan.settings, plan.timecode)
@@ -304,12 +302,16 @@ def finish_render(plan: Plan, progress: Progress = no_progress) -> RenderResult:
     return result
 
 
+def library_versions() -> dict:
+    """The versions of the libraries a render's figures come from (the manifest's record)."""
+    return {name: _version(name) for name in ("framestyle", "torch", "numpy", "opencv-python-headless", "openimageio")}
+
+
 def environment(net: FeatureNet) -> dict:
-    """Library versions, thread count and the network's device a render runs under (recorded;
-    a resume compares)."""
-    versions = {name: _version(name) for name in ("framestyle", "torch", "numpy", "opencv-python-headless",
-                                                   "openimageio")}
-    return {**versions, "torch threads": torch.get_num_threads(), "device": str(net.device)}
+    """Library versions, thread count and the network's device a process renders under: a
+    shot's record keeps the setup its chain started under, and a process continuing the
+    chain compares (on a render farm each worker has its own)."""
+    return {**library_versions(), "torch threads": torch.get_num_threads(), "device": str(net.device)}
 
 
 def _version(package: str) -> str | None:
@@ -488,15 +490,27 @@ def render_shot(plan: Plan, index: int, progress: Progress = no_progress, wait: 
     with Store(plan.out).shot(index, wait) as work:
         if work is None:
             return None
-        names = plan.names
+        names, warnings = plan.names, []
+
+        def warn(message: str) -> None:
+            progress("warning", message=message)
+            work.store.log(message)
+            warnings.append(message)
+
         for problem in work.reconcile(names[shot.start:shot.end + 1]):
-            progress("warning", message=problem)
-            work.store.log(problem)
+            warn(problem)
         finished = work.record["frames"]
         todo = [i for i in shot.frames if names[i] not in finished]
         if todo and len(todo) < shot.length:  # a takeover the log should show: who, from where
             work.store.log(f"shot {index}: continued at {names[todo[0]]} by pid {os.getpid()} on "
                            f"{socket.gethostname()}, {shot.length - len(todo)} of its frames done before")
+        here = environment(network(settings))
+        if not (finished or work.pending()):
+            work.record["environment"] = here  # written with the shot's first frame
+        elif todo:
+            for change in environment_changes(work.record.get("environment"), here):
+                warn(f"shot {index} continues at {names[todo[0]]} under {change}: its frames from there keep the "
+                     f"look but may place their strokes differently from the frames before")
         if todo:
             _ShotRender(plan, work, settings, shot).run(todo, progress)
         else:  # a process killed as it finished the shot may have left its state and pass counts
@@ -506,7 +520,7 @@ def render_shot(plan: Plan, index: int, progress: Progress = no_progress, wait: 
         flashes = None
         if check_flashes and (todo or not all(work.store.flash_check(kind, index) for kind in FLASH_KINDS)):
             flashes = record_shot_check(work.store, plan.source, names, plan.timecode, shot)
-        summary = ShotSummary.from_record(shot, work.record["frames"], plan.source.numbers)
+        summary = ShotSummary.from_record(shot, work.record["frames"], plan.source.numbers, tuple(warnings))
     warning = flashes and flash_warning(flashes, f"shot {index}")
     if warning:
         progress("warning", message=warning)

@@ -5,7 +5,7 @@ Layout of an output folder::
     OUT/
       <frame>.png ...             finished frames (written atomically, never rewritten)
       <clip>_framestyle.mp4       for video input: the frames with the source's audio
-      framestyle.json             manifest: settings, inputs, shot list, environment
+      framestyle.json             manifest: settings, inputs, shot list, library versions
       render.log                  a line per frame, per shot and per event, from every process
       flashes.png                 timeline of the photosensitive flash check (render and source)
       preview/                    preview frames and contact sheets
@@ -16,8 +16,9 @@ Layout of an output folder::
         locks/shot_NNN.lock       held while a process renders shot NNN
         locks/preview.lock        held while a preview writes preview/
         locks/report.lock         held while a process refreshes the report
-        shots/shot_NNN.json       shot NNN's record: its finished frames and their figures (and,
-                                  in a multi-pass render, how many passes each other frame has had)
+        shots/shot_NNN.json       shot NNN's record: its finished frames and their figures, the
+                                  setup its chain started under (versions, threads, device) and,
+                                  in a multi-pass render, how many passes each other frame has had
         flashes/{render,source}.json   flash check of the whole render's frames and its source
         flashes/shot_NNN/{render,source}.json   the same for shot NNN alone (a farm's progress)
         state/shot_NNN/*.npy      full-precision stylised frames the temporal losses or a later pass
@@ -707,12 +708,12 @@ def _changed_files(old: dict | None, new: dict) -> str:
     return f" ({changed[0]}{f' and {len(changed) - 1} more' if len(changed) > 1 else ''})" if changed else ""
 
 
-def environment_changes(manifest: dict, environment: dict) -> list[str]:
-    """What differs between the environment a render started in and this one (library
-    versions, thread count): the solver's sums then round differently and the frames it
-    settles on may differ visibly, in the same look."""
-    old = manifest.get("environment", {})
-    return [f"{key} {environment[key]} (was {old.get(key)})" for key in environment if old.get(key) != environment[key]]
+def environment_changes(old: dict | None, new: dict) -> list[str]:
+    """What differs between the environment a shot's chain started under and this one
+    (library versions, thread count, device): the solver's sums then round differently and
+    the frames it settles on may differ visibly, in the same look. Nothing where ``old`` is
+    unknown (a record written before shots kept theirs)."""
+    return [f"{key} {new[key]} (was {old.get(key)})" for key in new if old.get(key) != new[key]] if old else []
 
 
 def output_names(source: io.FrameSource) -> list[str]:

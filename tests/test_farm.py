@@ -54,6 +54,8 @@ def test_two_workers_give_the_frames_of_a_one_process_render(four_shots, one_pro
     assert _pngs(tmp_path / "farm") == _pngs(one_process)  # bit-identical: same threads per shot
     log = (tmp_path / "farm" / store.LOG).read_text()
     assert {line.split(" pid ")[1].split()[0] for line in log.splitlines() if "rendered on" in line}.__len__() == 2
+    records = store.Store(tmp_path / "farm").records()  # each shot keeps the setup its worker computed with
+    assert [r["environment"]["torch threads"] for r in records.values()] == [1, 1, 1, 1]
 
 
 def test_a_worker_killed_mid_shot_is_replaced_and_the_shot_resumes(four_shots, one_process, tmp_path):
@@ -304,3 +306,19 @@ def test_local_workers_are_no_more_than_the_cores_and_the_shots(tmp_path, monkey
                          progress=lambda event, **info: warnings.append(info.get("message")))
     assert raised.value.args == (started,)
     assert f"--workers 1000 on {cores} cores" in warnings[0]
+
+
+def test_a_workers_warnings_are_said_where_the_render_is_watched(tmp_path, monkeypatch):
+    # a worker's progress goes nowhere: what it had to say (a shot continued under another setup,
+    # a recorded frame gone) was only in the log; the shot's summary brings it to the client
+    from framestyle.pipeline import ShotSummary
+    from framestyle.shots.shot import Shot
+
+    monkeypatch.setattr(farm, "_POLL_SECONDS", 0.01)
+    worker = {"tcp://10.0.0.1:1": {"host": "10.0.0.1", "resources": {"shot": 1}}}
+    said = "shot 1 continues at take_003.png under torch threads 4 (was 1): ..."
+    cluster = _Cluster(worker, {1: ShotSummary(Shot(1, 0, 4), "1-5", warnings=(said,))})
+    seen = []
+    with pytest.raises(farm.FramestyleError, match="came back from 1 worker unfinished"):  # no frames in the fake
+        farm._run_shots(cluster, _plan(tmp_path, 1), None, lambda kind, **k: seen.append((kind, k)), "1 worker")
+    assert ("warning", {"message": said}) in seen

@@ -17,6 +17,7 @@ from pathlib import Path
 import cv2
 import imageio_ffmpeg
 import pytest
+import torch
 
 from framestyle import pipeline, store
 
@@ -297,22 +298,35 @@ def test_progress_on_resume_starts_from_the_frames_already_done(small_clip, tmp_
     assert sum(1 for e, _ in events if e == "frame") == 10
 
 
-def test_a_resume_under_another_setup_says_so_only_where_frames_remain(small_clip, tmp_path, monkeypatch):
+def test_a_shot_continued_under_another_setup_says_so_and_where(small_clip, tmp_path, monkeypatch):
+    # The setup (thread count, device, versions) is the shot's: each shot's record keeps the one
+    # its chain started under. The render's manifest kept the planning process's, which on a
+    # render farm is not what any worker computes with, and a resume compared against that.
     out = tmp_path / "out"
-    pipeline.render(small_clip, out, fast_settings(iterations=2), shots="1")
+
+    def stop_after_fourth(event, **info):  # a kill after take_004.png, in shot 1
+        if event == "frame" and info["index"] == 3:
+            raise KeyboardInterrupt
+
+    with pytest.raises(KeyboardInterrupt):
+        pipeline.render(small_clip, out, fast_settings(iterations=2), progress=stop_after_fourth)
+    threads = torch.get_num_threads()
+    records = store.Store(out).records()
+    assert records[1]["environment"]["torch threads"] == threads and records[1]["environment"]["device"] == "cpu"
+    assert "torch threads" not in store.read_manifest(out)["environment"]  # versions only
     real = pipeline.environment
     monkeypatch.setattr(pipeline, "environment", lambda net: {**real(net), "torch threads": 99})
-
-    def warnings(**options):
-        events = []
-        pipeline.render(small_clip, out, fast_settings(iterations=2), progress=lambda e, **i: events.append((e, i)),
-                        **options)
-        return [i["message"] for e, i in events if e == "warning" and "resumed under" in i["message"]]
-
-    assert warnings(shots="1") == []  # shot 1 is finished: nothing renders under the new setup
-    said = warnings()
-    assert len(said) == 1 and said[0].startswith("resumed under torch threads 99 (was ")
-    assert "may place their strokes differently" in said[0]
+    events = []
+    pipeline.render(small_clip, out, fast_settings(iterations=2), progress=lambda e, **i: events.append((e, i)))
+    said = [i["message"] for e, i in events if e == "warning" and "under torch threads" in i["message"]]
+    # shot 2 starts its chain under the new setup and keeps it: nothing to say
+    assert said == [f"shot 1 continues at take_005.png under torch threads 99 (was {threads}): its frames from "
+                    f"there keep the look but may place their strokes differently from the frames before"]
+    assert said[0] in (out / store.LOG).read_text()
+    assert store.Store(out).records()[2]["environment"]["torch threads"] == 99
+    events.clear()
+    summary = pipeline.render_shot(pipeline.plan_render(small_clip, out, fast_settings(iterations=2)), 1)
+    assert summary.warnings == () and events == []  # a finished shot renders nothing under it
 
 
 def test_a_lock_that_cannot_be_written_names_its_file_and_is_let_go(tmp_path, monkeypatch):
