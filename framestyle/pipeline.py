@@ -47,7 +47,7 @@ from framestyle.report import refresh_report
 from framestyle.settings import Settings
 from framestyle.shots import Shot, shots_from_boundaries
 from framestyle.shots.detect import detect_shots, frame_signature
-from framestyle.shots.continuity import continuity
+from framestyle.shots.continuity import ODD_RUN, continuity, matches
 from framestyle.shots.cutlists import clip_timecode
 from framestyle.shots.lists import frame_range, parse_shot_file, parse_shot_selection
 from framestyle.store import (FLASH_KINDS, HAND_OFF, MANIFEST, Store, check_footage, check_resume, environment_changes,
@@ -548,9 +548,9 @@ class _ShotRender:
         self.size = working_size(source.width, source.height, settings.width, self.net.min_side, source.pixel_aspect)
         self.params = solver_params(settings)
         self.offsets = sorted(settings.long_term) if settings.temporal else []
-        # the earlier frames a frame looks back to: its temporal terms', and t−2 (the continuity
-        # check, and the frame after an odd one goes on from it)
-        self.looks_back = {*self.offsets, 2} if self.offsets else set()
+        # the earlier frames a frame looks back to: its temporal terms', and the chain's last
+        # frame before a run of odd frames, which the frame after the run goes on from
+        self.looks_back = {*self.offsets, *range(1, ODD_RUN + 2)} if self.offsets else set()
         self.reach = max(self.looks_back, default=0)
         self.passes = settings.passes if settings.temporal else 1
         self.probe = settings.detail_probe if settings.temporal else 0
@@ -629,6 +629,15 @@ class _ShotRender:
         """The shot's first frame and any frame the first pass started fresh (a missed cut)."""
         return {self.shot.start} | {i for i in self.shot.frames if self._entry(i).get("fresh")}
 
+    def _last(self, index: int) -> int | None:
+        """The chain's last frame before ``index`` that is not odd (see
+        :mod:`framestyle.shots.continuity`); None where the chain starts at ``index`` or the
+        frames are solved apart (no temporal terms)."""
+        last = index - 1
+        while last >= self.chain_start and self._entry(last).get("odd"):
+            last -= 1
+        return last if self.offsets and last >= self.chain_start else None
+
     def _neighbour(self, index: int, pass_: int, starts: set[int]) -> int | None:
         """The frame solved just before ``index`` in pass ``pass_``, if in the same chain."""
         if pass_ % 2:
@@ -645,37 +654,48 @@ class _ShotRender:
         # (index, working frame in 8 bits): the flows to frames up to ``reach`` back need them, and
         # 41 float frames at 1280×720 were 450 MB (DIS works on 8-bit grey frames anyway)
         history: deque[tuple[int, np.ndarray]] = deque(maxlen=self.reach + 1)
-        frames = ((index, prepare_frame(raw, self.size, settings, self.source.linear))
-                  for index, raw in io.iter_frames(self.source, max(shot.start, begin - self.reach), shot.end + 1))
-        for (index, frame), following in _with_next(frames):
+        frames = _Lookahead((index, prepare_frame(raw, self.size, settings, self.source.linear))
+                            for index, raw in io.iter_frames(self.source, max(shot.start, begin - self.reach), shot.end + 1))
+        ahead = lambda count: (frame.content for _, frame in frames.following(count))
+        for index, frame in frames:
             if index >= begin:
                 sources = {k: from_8bit(kept) for k, kept in history
                            if k >= self.chain_start and index - k in self.looks_back}
-                self._frame(index, frame, following and following[1], look, mattes, sources, progress)
+                self._frame(index, frame, ahead, look, mattes, sources, progress)
             history.append((index, to_8bit(frame.content)))
         if self.passes > 1:
             self.work.store.log(f"shot {shot.index}: pass 1 of {self.passes} done")
 
-    def _frame(self, index: int, frame: Frame, following: Frame | None, look: Look, mattes: Mattes, sources: dict,
-               progress: Progress) -> None:
+    def _frame(self, index: int, frame: Frame, ahead: Callable[[int], Iterator[np.ndarray]], look: Look,
+               mattes: Mattes, sources: dict, progress: Progress) -> None:
+        """Solve frame ``index`` of the first pass; ``ahead(n)`` yields the working frames of up
+        to ``n`` frames after it, each read only when the continuity check asks for it."""
         t0 = time.perf_counter()
-        settings, name = self.settings, self.names[index]
-        earlier = [(FlowPair.between(frame.content, sources[index - j], settings.flow_preset),
-                    self.work.load_state(index - j)) for j in self.offsets if index - j in sources]
-        verdict, across = continuity(earlier[0][0], frame.content, sources.get(index - 2), following and following.content,
-                                     sources[index - 1], settings.flow_preset) if earlier else ("same", None)
-        fresh, linked = verdict == "cut", index - 1  # linked: the frame this one continues
-        if fresh:  # a cut the detector missed: the chain starts again here
-            earlier, self.chain_start = [], index
+        settings, name, preset = self.settings, self.names[index], self.settings.flow_preset
+        last = self._last(index)
+        verdict, earlier, linked = "same", [], None  # linked: the frame this one continues
+        if last is not None:
+            to_last = FlowPair.between(frame.content, sources[last], preset)
+            verdict = continuity(to_last, sources[last], ahead(ODD_RUN - (index - 1 - last)), preset)
+        if verdict == "same" and last is not None:  # its temporal terms: the chain's frames, none odd
+            earlier = [(to_last, self.work.load_state(last))] + [
+                (FlowPair.between(frame.content, sources[index - j], preset), self.work.load_state(index - j))
+                for j in self.offsets if index - j in sources and index - j < last and not self._entry(index - j).get("odd")]
+            linked = last
+        elif verdict == "cut":  # a cut the detector missed: the chain starts again here
+            self.chain_start = index
             self.work.store.log(f"frame {name}: no optical-flow correspondence with the frames before it "
                                 f"(a missed cut?); started fresh as a new shot")
-        elif verdict == "odd":  # a flash or a one-frame cutaway: nothing of it goes on into the shot
-            earlier = []
-            self.work.store.log(f"frame {name}: no optical-flow correspondence with the frames either side of it "
-                                f"(a flash, a one-frame cutaway?); solved on its own, the chain goes on past it")
-        elif verdict == "after odd":  # the frame before was odd: this one goes on from the one before that
-            earlier[0], linked = (across, self.work.load_state(index - 2)), index - 2
-        steering = bool(earlier) and self.probe > 0
+        elif verdict == "odd":  # a flash, a cutaway: nothing of it goes on into the shot
+            self.work.store.log(f"frame {name}: no optical-flow correspondence with the frame before it, but the "
+                                f"picture comes back within {ODD_RUN} frames (a flash, a cutaway?); solved apart, "
+                                f"the chain goes on past it")
+            if index - 1 != last:  # inside a run of odd frames: it may go on from the run's frame before
+                to_odd = FlowPair.between(frame.content, sources[index - 1], preset)
+                if matches(to_odd):
+                    earlier, linked = [(to_odd, self.work.load_state(index - 1))], index - 1
+        fresh = verdict == "cut"
+        steering = verdict == "same" and bool(earlier) and self.probe > 0
         tv, reference = self._steer(index, frame.content, look) if steering else (self.base_tv, None)
         params = dataclasses.replace(self.params, warm_tv_weight=tv) if steering else self.params
         result, stats = stylise(look, frame.content, index, earlier, params, settings.seed, settings.temporal,
@@ -688,8 +708,8 @@ class _ShotRender:
         error = flow_warping_error(earlier[0][1], result, earlier[0][0]) if earlier else None
         source_error = flow_warping_error(sources[linked], frame.content, earlier[0][0]) if earlier else None
         entry = {"iterations": stats.iterations, "style": stats.style, "content": stats.content,
-                 "warp_error": error, "source_warp_error": source_error, "fresh": fresh}
-        if self.probe and verdict == "odd":  # the steering passes over an odd frame
+                 "warp_error": error, "source_warp_error": source_error, "fresh": fresh, "odd": verdict == "odd"}
+        if self.probe and verdict == "odd":  # the steering passes over odd frames
             entry["steer"] = self._entry(index - 1)["steer"]
         elif self.probe:  # a chain's start is solved on its own: its detail is the first reference
             energy = laplacian_energy(result)
@@ -805,14 +825,28 @@ class _ShotRender:
         progress("frame", index=index, shot=self.shot.index, iterations=entry["iterations"], seconds=seconds)
 
 
-def _with_next(items):
-    """Yield (item, the item after it or None)."""
-    items = iter(items)
-    current = next(items, None)
-    while current is not None:
-        following = next(items, None)
-        yield current, following
-        current = following
+class _Lookahead:
+    """An iterator that can show the items after the one it gave last, reading each only when
+    asked for (a frame's look ahead is wanted only where it does not continue its chain)."""
+
+    def __init__(self, items):
+        self._items, self._read = iter(items), deque()
+
+    def __iter__(self):
+        return self
+
+    def __next__(self):
+        return self._read.popleft() if self._read else next(self._items)
+
+    def following(self, count: int) -> Iterator:
+        """Yield up to ``count`` items after the one given last."""
+        for k in range(count):
+            if k == len(self._read):
+                item = next(self._items, None)
+                if item is None:
+                    return
+                self._read.append(item)
+            yield self._read[k]
 
 
 def stylise(

@@ -21,7 +21,9 @@ out from the changes around it:
   two equal steps (into it and out of it), so neither does. A shot of a few frames between
   two others (an insert) gives the same pair of steps, but the picture does not come back
   after it: two steps that stand out together, around frames unlike each other, are its
-  cuts (:func:`_inserts`).
+  cuts (:func:`_inserts`). Where the picture does come back (a flash, a cutaway of a few
+  frames to another angle and back), the frames stay in the shot: the render solves them
+  apart and goes on past them (:mod:`framestyle.shots.continuity`).
 * **Gradual transitions** (fades through black, cross-dissolves) follow the twin-comparison
   idea of Zhang, Kankanhalli & Smoliar (1993): a transition is a stretch of frames whose
   *two ends* differ by more than ``gradual_threshold``, though no single step does; here
