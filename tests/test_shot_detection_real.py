@@ -19,6 +19,8 @@ from footage_edits import (
     load_clip,
     score,
 )
+from framestyle import io
+from framestyle.shots.clip import detect_clip
 from framestyle.shots.detect import detect_shots, frame_signature
 
 SIZE = (160, 90)
@@ -93,6 +95,39 @@ def test_a_shot_of_a_few_frames_in_moving_footage_gets_both_its_cuts(parts):
     edit = Edit("insert", "cut", parts)
     found = boundaries(edit)
     assert len(found) == 2 and all(abs(f - cut) <= CUT_TOLERANCE for f, cut in zip(found, edit.cuts)), (found, edit.cuts)
+
+
+def clip_boundaries(edit: Edit, tmp_path) -> tuple[list[int], list[int]]:
+    """First frames of the shots after the first in ``edit`` written as a 480×270 image
+    sequence: as ``detect_shots`` finds them, and as ``detect_clip`` does."""
+    folder = tmp_path / "edit"
+    folder.mkdir()
+    frames = edit.frames((480, 270))
+    for k, frame in enumerate(frames):
+        cv2.imwrite(str(folder / f"edit_{k + 1:04d}.png"), frame[..., ::-1])
+    signatures = [frame_signature(frame.astype(np.float32) / 255) for frame in frames]
+    return ([shot.start for shot in detect_shots(signatures)[1:]],
+            [shot.start for shot in detect_clip(io.open_source(folder))[1:]])
+
+
+@pytest.mark.parametrize("take", [Take(BIKES, 85, 13), Take(BIKES, 86, 13), Take(BIKES, 77, 22)])
+def test_motion_speeding_up_next_to_a_clips_end_is_no_cut(take, tmp_path):
+    # There the cut test has steps on one side only: a stretch of a street shot ending as a car
+    # sweeps past was split a frame or two from its end, and the render started its last
+    # frames afresh.
+    signatures_alone, found = clip_boundaries(Edit("one shot", "none", (take,)), tmp_path)
+    assert signatures_alone != [] and found == []
+
+
+@pytest.mark.parametrize("parts", [
+    (Take(BIKES, 125, 12), Take(BIKES, 137, 1)),  # the street clip's own cut, its last frame
+    (Take(BIKES, 184, 3), Take(BIKES, 187, 12)),  # and 3 frames from its start
+    (Take(BBB, 10, 20), Take(PHONE, 40, 2)),
+    (Take(PHONE, 10, 1), Take(BIKES, 40, 20)),
+])
+def test_a_cut_next_to_a_clips_end_is_kept(parts, tmp_path):
+    edit = Edit("a cut next to an end", "cut", parts)
+    assert clip_boundaries(edit, tmp_path)[1] == edit.cuts
 
 
 # --- the whole evaluation ---------------------------------------------------------------------

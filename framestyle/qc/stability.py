@@ -25,7 +25,7 @@ import numpy as np
 from framestyle import io, store
 from framestyle.errors import FramestyleError
 from framestyle.shots import Shot
-from framestyle.shots.detect import detect_shots, frame_signature
+from framestyle.shots.clip import detect_clip
 from framestyle.shots.lists import frame_range
 
 from framestyle.imaging import resize
@@ -170,7 +170,7 @@ def _shots(manifest: dict | None, source: io.FrameSource) -> list[Shot]:
     """The render's shots (its manifest's), or detected on the source where it has none."""
     if manifest is not None:
         return list(store.recorded_shots(manifest))
-    return detect_shots([frame_signature(f) for _, f in io.iter_frames(source)])
+    return detect_clip(source)
 
 
 def stability(out: Path, source_path: Path, preset: str = "medium", alone: Alone | None = None,

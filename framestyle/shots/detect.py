@@ -67,6 +67,9 @@ change it, fine enough that a reframing moves its large shapes by whole cells.""
 LAYOUT_WEIGHT = 2.0
 """Weight of the layout difference against the histogram distance in
 :func:`signature_distance`."""
+PEAK_WINDOW = 4
+"""Steps on each side of a candidate cut it must stand out from (``detect_shots``'s default
+``peak_window``)."""
 _COLOURS = HISTOGRAM_BINS**3  # a signature is the histogram, then the layout
 _BLANK_SHARE = 0.95  # a frame with this much of it in one colour bin is blank (black, a flash)
 _END_FRAMES = 3  # a transition's ends are medians of this many frames
@@ -142,7 +145,7 @@ def detect_shots(
     min_shot_length: int = 4,
     max_transition_length: int = 48,
     peak_ratio: float = 1.75,
-    peak_window: int = 4,
+    peak_window: int = PEAK_WINDOW,
     blend_tolerance: float = 0.3,
 ) -> list[Shot]:
     """Split a clip into shots from its per-frame signatures.

