@@ -675,7 +675,7 @@ class _ShotRender:
         verdict, earlier, linked = "same", [], None  # linked: the frame this one continues
         if last is not None:
             to_last = FlowPair.between(frame.content, sources[last], preset)
-            verdict = continuity(to_last, sources[last], ahead(ODD_RUN - (index - 1 - last)), preset)
+            verdict = continuity(frame.content, sources[last], to_last, ahead(ODD_RUN - (index - 1 - last)), preset)
         if verdict == "same" and last is not None:  # its temporal terms: the chain's frames, none odd
             earlier = [(to_last, self.work.load_state(last))] + [
                 (FlowPair.between(frame.content, sources[index - j], preset), self.work.load_state(index - j))
@@ -691,7 +691,7 @@ class _ShotRender:
                                 f"the chain goes on past it")
             if index - 1 != last:  # inside a run of odd frames: it may go on from the run's frame before
                 to_odd = FlowPair.between(frame.content, sources[index - 1], preset)
-                if matches(to_odd):
+                if matches(frame.content, sources[index - 1], to_odd):
                     earlier, linked = [(to_odd, self.work.load_state(index - 1))], index - 1
         fresh = verdict == "cut"
         steering = verdict == "same" and bool(earlier) and self.probe > 0

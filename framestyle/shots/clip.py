@@ -22,7 +22,6 @@ import numpy as np
 from framestyle import io
 from framestyle.finish.compose import to_display
 from framestyle.imaging import resize
-from framestyle.motion import FlowPair
 from framestyle.shots.continuity import matches
 from framestyle.shots.detect import PEAK_WINDOW, detect_shots, frame_signature
 from framestyle.shots.shot import Shot, shots_from_boundaries
@@ -62,5 +61,5 @@ def confirmed(shots: list[Shot], frames: dict[int, np.ndarray]) -> list[Shot]:
     with both frames in ``frames`` ((H, W, 3) display-referred frames by 0-based index)."""
     kept = [shot.start for shot in shots[1:]
             if not (shot.start - 1 in frames and shot.start in frames
-                    and matches(FlowPair.between(frames[shot.start], frames[shot.start - 1])))]
+                    and matches(frames[shot.start], frames[shot.start - 1]))]
     return shots_from_boundaries(kept, shots[-1].end + 1)
