@@ -581,7 +581,8 @@ def stability_command(
     if not all(r.rendered for r in rows):
         typer.echo(f"(the render is still going: `framestyle resume {out}` goes on with it; \"all\" is of the shots rendered)")
     typer.echo("warping error: mean squared RGB change along the optical flow (Lai et al. 2018), of the delivered "
-               "frames at the source's size (the render report's are at the working size)")
+               "frames at the source's size (the render report's are at the working size); frames solved apart "
+               "(flashes, short cutaways) are left out, the pair across them measured")
     if alone:
         typer.echo("stroke detail: Laplacian energy of the render's frame over that of the frame rendered on its own")
 

@@ -78,6 +78,30 @@ def test_a_render_writes_its_report_when_it_starts_and_after_every_shot(rendered
     assert "<script" not in final  # readable without JavaScript
 
 
+def test_frames_solved_apart_are_left_out_of_the_stability_measure(small_clip, tmp_path):
+    # A white frame inside a shot (a music video's flash frame): the flow to and from it is
+    # still, so its pairs counted its whole change, in render and source alike, and the shot's
+    # figure said nothing of the paint's stability. The render solves it apart; the measure
+    # leaves it out and measures the pair across it.
+    clip = tmp_path / "clip"
+    clip.mkdir()
+    for k in range(1, 11):
+        shutil.copy(small_clip / f"take_{k:03d}.png", clip / f"take_{k:03d}.png")
+    cv2.imwrite(str(clip / "take_005.png"), np.full((72, 128, 3), 255, np.uint8))
+    listing = tmp_path / "one_shot.txt"
+    listing.write_text("1\n")
+    out = tmp_path / "out"
+    pipeline.render(clip, out, fast_settings(iterations=2), shot_file=listing)
+    assert [name for name, e in store.Store(out).finished().items() if e["odd"]] == ["take_005.png"]
+    row = stability(out, clip)[0]
+    frame = lambda folder, k: cv2.imread(str(folder / f"take_{k:03d}.png"))[..., ::-1].astype(np.float32) / 255
+    kept = [k for k in range(1, 11) if k != 5]
+    assert row.render == pytest.approx(sequence_warping_error([frame(out, k) for k in kept], [frame(clip, k) for k in kept]))
+    assert row.source == pytest.approx(sequence_warping_error([frame(clip, k) for k in kept], [frame(clip, k) for k in kept]))
+    with_it = sequence_warping_error([frame(out, k) for k in range(1, 11)], [frame(clip, k) for k in range(1, 11)])
+    assert row.render < with_it / 10
+
+
 def test_the_figures_match_the_shot_records_and_the_stability_measure(rendered, small_clip):
     out, _ = rendered
     source = io.open_source(small_clip)

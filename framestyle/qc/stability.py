@@ -183,6 +183,9 @@ def stability(out: Path, source_path: Path, preset: str = "medium", alone: Alone
     ``alone``, both brought to the render's working size; they need the manifest. Of a render
     still going (the manifest's, fewer frames written than the source has) the shots whose
     frames are all written are measured, the others come back with ``rendered`` False.
+    Frames the render solved apart (a flash, a short cutaway: the record's ``odd``) are left
+    out of both measures, and the pair across them is measured: a white frame's pairs, whose
+    flow is still, were a hundred times a shot's own error in render and source alike.
     """
     out = Path(out)
     source = io.open_source(Path(source_path))
@@ -198,6 +201,8 @@ def stability(out: Path, source_path: Path, preset: str = "medium", alone: Alone
     written = dict(zip(rendered.names, range(rendered.count)))
     position = (list(range(source.count)) if rendered.count == source.count
                 else [written.get(name) for name in source.names])
+    entries = store.Store(out).finished()
+    odd = {i for i, name in enumerate(store.output_names(source)) if entries.get(name, {}).get("odd")}
     result = []
     for shot in _shots(manifest, source):
         if any(position[i] is None for i in shot.frames):
@@ -205,9 +210,9 @@ def stability(out: Path, source_path: Path, preset: str = "medium", alone: Alone
             continue
 
         def footage():  # frames of this shot, read as needed: memory does not grow
-            return (f for _, f in io.iter_frames(source, shot.start, shot.end + 1))
+            return (f for i, f in io.iter_frames(source, shot.start, shot.end + 1) if i not in odd)
 
-        render = (io.read_frame(rendered, position[i]) for i in shot.frames)  # a folder: read by position
+        render = (io.read_frame(rendered, position[i]) for i in shot.frames if i not in odd)  # read by position
         row = ShotStability(
             shot, frame_range(shot, source.numbers),
             sequence_warping_error(render, footage(), preset),
