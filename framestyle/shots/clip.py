@@ -25,6 +25,7 @@ from framestyle.imaging import resize
 from framestyle.shots.continuity import matches
 from framestyle.shots.detect import PEAK_WINDOW, detect_shots, frame_signature
 from framestyle.shots.shot import Shot, shots_from_boundaries
+from framestyle.working import working_size
 
 FLOW_WIDTH = 480
 """Width of the frames the flow compares (the width :mod:`framestyle.shots.continuity`'s
@@ -49,8 +50,7 @@ def detect_frames(frames: Iterable[np.ndarray], count: int, linear: bool = False
         signatures.append(frame_signature(frame))
         if index <= PEAK_WINDOW or index >= last - PEAK_WINDOW:  # the frames either side of such a boundary
             display = to_display(frame, linear)
-            height = max(1, round(display.shape[0] * FLOW_WIDTH / display.shape[1]))
-            edges[index] = resize(display, (FLOW_WIDTH, height)) if display.shape[1] > FLOW_WIDTH else display
+            edges[index] = resize(display, working_size(display.shape[1], display.shape[0], FLOW_WIDTH, 1))
     if len(signatures) != count:
         raise ValueError(f"detect_frames: {len(signatures)} frames, not {count}")
     return confirmed(detect_shots(signatures, cut_threshold=cut_threshold, gradual_threshold=gradual_threshold), edges)

@@ -78,6 +78,6 @@ def matches(current: np.ndarray, earlier: np.ndarray, flows: FlowPair | None = N
     flow (``flows`` between them, computed here if not given). The check alone passes a
     plain white or black frame, where the flow is still both ways: at 128×72, 74 % of a white
     frame after a street frame."""
-    flows = flows or FlowPair.between(current, earlier, preset)
+    flows = FlowPair.between(current, earlier, preset) if flows is None else flows
     alike = np.abs(current - warp(earlier, flows.backward)).mean(axis=2) <= COLOUR_TOLERANCE
     return float((flows.current_mask() * alike).mean()) > RELIABLE_FRACTION
