@@ -75,6 +75,7 @@ def _settings_options(
     strength: Annotated[Optional[float], typer.Option(help="0 = the footage, 1 = full style (default 1).")] = None,
     matte: Annotated[Optional[str], typer.Option(help="Folder of matte frames (white = stylise), or 'alpha' for the input's alpha.")] = None,
     matte_softness: Annotated[Optional[float], typer.Option(help=f"Soft matte edge, Gaussian sigma in pixels (default {Settings.matte_softness}).")] = None,
+    picture_area: Annotated[Optional[str], typer.Option(help="auto: black letterbox or pillarbox bars found in a shot stay as the footage has them and the picture inside is stylised; full: the whole frame (default auto).")] = None,
     levels: Annotated[Optional[int], typer.Option(help="Coarse-to-fine levels for a shot's first frame: solve at 1/2, 1/4 ... of the size first (default: 1 up to 640 pixels wide, above that enough for the first level to be at most 480 wide).")] = None,
     warm_levels: Annotated[Optional[int], typer.Option(help=f"Coarse-to-fine levels for frames that start from the previous stylised frame (default {Settings.warm_levels}).")] = None,
     image_scales: Annotated[Optional[int], typer.Option(help=f"Scales a frame solved on its own (a shot's first) is optimised over at each level, from its pixels to 1/2, 1/4 ... of the size: broad areas settle in fewer iterations; 1: its pixels alone (default {Settings.image_scales}).")] = None,

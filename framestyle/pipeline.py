@@ -34,6 +34,7 @@ import torch
 
 from framestyle import io
 from framestyle.errors import FramestyleError
+from framestyle.area import PictureArea, shot_areas
 from framestyle.finish.matte import Mattes
 from framestyle.finish.compose import to_display
 from framestyle.imaging import from_8bit, to_8bit, to_array
@@ -462,11 +463,27 @@ def solver_params(settings: Settings) -> SolverParams:
     )
 
 
-def shot_look(net: FeatureNet, source: io.FrameSource, settings: Settings, shot: Shot) -> Look:
-    """A shot's look; with ``colour="match"`` the style is recoloured to the shot's first frame."""
+def framing(source: io.FrameSource, area: PictureArea | None, settings: Settings,
+            min_side: int) -> tuple[PictureArea | None, tuple[int, int]]:
+    """What of a shot's frames is stylised and at what working size: the picture inside its
+    bars (``area``), or the whole frame where there are none or where the picture would be
+    worked under the network's ``min_side`` at this width (the frame was checked to have room)."""
+    if area is not None:
+        try:
+            return area, working_size(area.width, area.height, settings.width, min_side, source.pixel_aspect)
+        except FramestyleError:
+            pass
+    return None, working_size(source.width, source.height, settings.width, min_side, source.pixel_aspect)
+
+
+def shot_look(net: FeatureNet, source: io.FrameSource, settings: Settings, shot: Shot,
+              area: PictureArea | None) -> Look:
+    """A shot's look; with ``colour="match"`` the style is recoloured to the shot's first frame
+    (the picture inside ``area``, the bars left out)."""
     reference = None
     if settings.colour == "match":
         reference = to_display(io.read_frame(source, shot.start), source.linear)
+        reference = reference if area is None else area.crop(reference)
     return build_look(net, settings, reference)
 
 
@@ -544,7 +561,8 @@ class _ShotRender:
         self.source, self.names = plan.source, plan.names
         self.net = network(settings)
         source = self.source
-        self.size = working_size(source.width, source.height, settings.width, self.net.min_side, source.pixel_aspect)
+        self.area, self.size = framing(source, shot_areas(source, [shot], plan.settings)[shot.index], settings,
+                                       self.net.min_side)
         self.params = solver_params(settings)
         self.offsets = sorted(settings.long_term) if settings.temporal else []
         # the earlier frames a frame looks back to: its temporal terms', and the chain's last
@@ -559,8 +577,11 @@ class _ShotRender:
     def run(self, todo: list[int], progress: Progress) -> None:
         shot, settings, finished = self.shot, self.settings, self.work.record["frames"]
         first_pass, begin = self._resume_point(todo[0])
-        look = shot_look(self.net, self.source, settings, shot)
+        look = shot_look(self.net, self.source, settings, shot, self.area)
         mattes = Mattes(self.source, settings.matte)
+        if self.area is not None:
+            self.work.store.log(f"shot {shot.index}: black bars around the picture; the picture "
+                                f"{self.area.label()} is stylised, the bars delivered as they are")
         progress("shot_start", shot=shot.index, frames=shot.length, done=shot.length - len(todo))
         if first_pass == 1:
             self._first_pass(begin, look, mattes, progress)
@@ -653,7 +674,7 @@ class _ShotRender:
         # (index, working frame in 8 bits): the flows to frames up to ``reach`` back need them, and
         # 41 float frames at 1280×720 were 450 MB (DIS works on 8-bit grey frames anyway)
         history: deque[tuple[int, np.ndarray]] = deque(maxlen=self.reach + 1)
-        frames = _Lookahead((index, prepare_frame(raw, self.size, settings, self.source.linear))
+        frames = _Lookahead((index, prepare_frame(raw, self.size, settings, self.source.linear, self.area))
                             for index, raw in io.iter_frames(self.source, max(shot.start, begin - self.reach), shot.end + 1))
         ahead = lambda count: (frame.content for _, frame in frames.following(count))
         for index, frame in frames:
@@ -798,7 +819,7 @@ class _ShotRender:
             if name in self.work.record["frames"]:
                 continue
             t0 = time.perf_counter()
-            frame = prepare_frame(raw, self.size, self.settings, self.source.linear)
+            frame = prepare_frame(raw, self.size, self.settings, self.source.linear, self.area)
             entry = {k: v for k, v in self.work.pending()[name].items() if k != "passes"}
             seconds = entry.pop("seconds") + time.perf_counter() - t0
             self._deliver(index, frame, self.work.load_state(index, last), entry, mattes, seconds, progress)
@@ -886,7 +907,8 @@ def _stylised_alone(source: io.FrameSource, net: FeatureNet, settings: Settings,
     first-frame treatment, no temporal chain — and delivered (in the source's encoding if
     ``linear``, else display-referred). Yields (index, shot, frame, delivered, stats, seconds)
     in frame order."""
-    looks: dict[int, tuple[Settings, Look, Mattes]] = {}
+    looks: dict[int, tuple[Settings, PictureArea | None, tuple[int, int], Look, Mattes]] = {}
+    areas = shot_areas(source, list({shot.index: shot for shot in chosen.values()}.values()), settings)
     for index, raw in io.iter_frames(source, min(chosen, default=0), max(chosen, default=-1) + 1):
         if index not in chosen:
             continue
@@ -894,11 +916,11 @@ def _stylised_alone(source: io.FrameSource, net: FeatureNet, settings: Settings,
         shot = chosen[index]
         if shot.index not in looks:
             shot_settings = settings.for_shot(shot.index)
-            looks[shot.index] = (shot_settings, shot_look(net, source, shot_settings, shot),
+            area, size = framing(source, areas[shot.index], shot_settings, net.min_side)
+            looks[shot.index] = (shot_settings, area, size, shot_look(net, source, shot_settings, shot, area),
                                  Mattes(source, shot_settings.matte))
-        shot_settings, look, mattes = looks[shot.index]
-        size = working_size(source.width, source.height, shot_settings.width, net.min_side, source.pixel_aspect)
-        frame = prepare_frame(raw, size, shot_settings, source.linear)
+        shot_settings, area, size, look, mattes = looks[shot.index]
+        frame = prepare_frame(raw, size, shot_settings, source.linear, area)
         result, stats = stylise(look, frame.content, index, [], solver_params(shot_settings), shot_settings.seed,
                                 temporal=False)
         delivered = deliver(result, frame, shot_settings, mattes(index, shot_settings.matte_softness), linear)

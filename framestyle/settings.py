@@ -63,6 +63,8 @@ class Settings:
     matte: str | None = None  # folder of matte frames (white = stylise), or "alpha" for the input's
     matte_softness: Annotated[float, Field(ge=0, le=1000, allow_inf_nan=False)] = 2.0  # soft matte edge:
     #                                 Gaussian sigma in source pixels (1000: wider than any frame needs)
+    picture_area: Literal["auto", "full"] = "auto"  # auto: black letterbox or pillarbox bars found in
+    #                                 a shot are delivered as they are, the picture inside them stylised
     levels: Annotated[int, Field(ge=1, le=6)] | None = None  # coarse-to-fine levels: first solve at
     #                                 1/2**(levels-1); None: by working width (style.solver.coarse_levels)
     warm_levels: Annotated[int, Field(ge=1, le=6)] = 1  # the same for frames that start from the previous one

@@ -7,6 +7,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
+from framestyle.area import PictureArea
 from framestyle.errors import FramestyleError
 from framestyle.finish.compose import associated, from_display, luma_image, mix, paint, to_display, with_alpha
 from framestyle.imaging import resize
@@ -49,21 +50,26 @@ class Frame:
     source : (H, W, 3) the frame as read, in its own encoding (float samples as stored)
     display : (H, W, 3) display-referred source frame at source size (sRGB-encoded if the
         source is linear light, clipped to [0, 1])
-    content : (h, w, 3) what the solver sees at working size (luma only in "luma" mode)
+    content : (h, w, 3) what the solver sees at working size (luma only in "luma" mode): the
+        picture inside ``area``
+    area : the picture inside letterbox or pillarbox bars, or None for the whole frame
     """
 
     source: np.ndarray
     display: np.ndarray
     content: np.ndarray
+    area: PictureArea | None = None
 
 
-def prepare_frame(frame: np.ndarray, size: tuple[int, int], settings: Settings, linear: bool) -> Frame:
-    """Source frame → display-referred frame and the solver's working-size content."""
+def prepare_frame(frame: np.ndarray, size: tuple[int, int], settings: Settings, linear: bool,
+                  area: PictureArea | None = None) -> Frame:
+    """Source frame → display-referred frame and the solver's working-size content (of the
+    picture inside ``area`` where there is one)."""
     display = to_display(frame, linear)
-    content = resize(display, size)
+    content = resize(display if area is None else area.crop(display), size)
     if settings.colour == "luma":
         content = luma_image(content, settings.luma_standard)
-    return Frame(frame, display, content)
+    return Frame(frame, display, content, area)
 
 
 def deliver(result: np.ndarray, frame: Frame, settings: Settings, matte: np.ndarray | None,
@@ -74,13 +80,14 @@ def deliver(result: np.ndarray, frame: Frame, settings: Settings, matte: np.ndar
     (:func:`~framestyle.finish.compose.mix`): display-referred sources in their own encoding,
     with straight alpha; linear-light (float) ones in linear light with the frame as read, and
     with alpha in associated colour, as OpenEXR stores it. Where the style does not apply
-    (strength 0, a black matte) the delivered samples are the source's own: a float frame's
-    values outside [0, 1] (highlights, negatives) and colour where its alpha is 0 (glows)
-    included, which the network's [0, 1] view cannot carry.
+    (strength 0, a black matte, the bars outside the frame's picture area) the delivered
+    samples are the source's own: a float frame's values outside [0, 1] (highlights,
+    negatives) and colour where its alpha is 0 (glows) included, which the network's [0, 1]
+    view cannot carry.
 
     Parameters
     ----------
-    result : (h, w, 3) the solver's result at working size
+    result : (h, w, 3) the solver's result at working size: the picture inside ``frame.area``
     frame : the source frame it was made from
     matte : (H, W) softened matte at source size, or None
     alpha : (H, W) the source frame's alpha in [0, 1], passed through; None without one
@@ -90,7 +97,15 @@ def deliver(result: np.ndarray, frame: Frame, settings: Settings, matte: np.ndar
     (H, W, 3) or, with alpha, (H, W, 4) float32
     """
     h, w = frame.display.shape[:2]
-    picture = paint(resize(result, (w, h)), frame.display, colour=settings.colour, standard=settings.luma_standard)
+    area = frame.area
+    inside = frame.display if area is None else area.crop(frame.display)
+    picture = paint(resize(result, (inside.shape[1], inside.shape[0])), inside, colour=settings.colour,
+                    standard=settings.luma_standard)
+    if area is not None:  # the bars are the footage's own samples, as where a matte is black
+        whole = frame.display.copy()
+        area.crop(whole)[...] = picture
+        picture, bars = whole, area.mask(h, w)
+        matte = bars if matte is None else matte * bars
     if not linear:
         out = mix(frame.display, picture, settings.strength, matte)
         return out if alpha is None else with_alpha(out, alpha)

@@ -1,0 +1,156 @@
+"""The active picture area: the part of a frame inside letterbox or pillarbox bars.
+
+Footage framed for another shape carries black bars (a 2.39:1 film in a 16:9 frame, a 4:3
+clip in a 16:9 timeline). Those bars are not picture: an editor expects them to stay black
+after the look is applied, and the style's Gram statistics (Gatys et al. 2016) should be
+those of the picture, not of the picture and two black bands. A shot's bars are found from
+frames spread over it and the solver works on the picture inside them; the bars are
+delivered as the footage has them.
+"""
+
+from __future__ import annotations
+
+from collections.abc import Iterable, Sequence
+from dataclasses import dataclass
+
+import numpy as np
+
+from framestyle import io
+from framestyle.finish.compose import to_display
+from framestyle.settings import Settings
+from framestyle.shots import Shot
+
+BAR_LEVEL = 0.08
+"""Brightest a bar's outermost row may be, in display-referred [0, 1] (its 99.5th percentile
+in every frame looked at): black, or the 16/255 of limited-range video read without range
+expansion (the 8-bit black level of ITU-R BT.709, from memory)."""
+
+RINGING = 0.05
+"""How much brighter than the outermost row a bar's rows may be: a video coder's ringing
+beside the picture's edge (measured: up to 0.035 in an MPEG-4 Part 2 file written by OpenCV)."""
+
+EDGE_ROWS = 4
+"""Rows (or columns) beside a bar in which the picture must show its hard edge (the ringing
+softens it over a coding block's few pixels)."""
+
+BAR_MIN = 0.01
+"""Least height (or width) of a bar, as a share of the frame's side: thinner dark edges are
+an image's own (a lens's vignette, a sensor's dark rows) or too small to matter."""
+
+PICTURE_MIN = 0.4
+"""Least share of the frame's side left as picture: past it the dark edges are a dark scene."""
+
+EDGE_STEP = 0.1
+"""Least mean brightness, in some frame looked at, of the picture's first rows or columns
+beside a bar, above the bar's: a bar ends in a hard edge, a dark scene fades into its dark
+edges."""
+
+SAMPLES = 12
+"""Frames looked at across a shot to find its bars."""
+
+
+@dataclass(frozen=True)
+class PictureArea:
+    """A rectangle of a frame in source pixels: ``x, y`` its top left, ``width × height``."""
+
+    x: int
+    y: int
+    width: int
+    height: int
+
+    def crop(self, image: np.ndarray) -> np.ndarray:
+        """The area of an ``(H, W, ...)`` image (a view, not a copy)."""
+        return image[self.y:self.y + self.height, self.x:self.x + self.width]
+
+    def mask(self, height: int, width: int) -> np.ndarray:
+        """``(height, width)`` float32: 1 inside the area, 0 in the bars."""
+        inside = np.zeros((height, width), np.float32)
+        self.crop(inside)[...] = 1.0
+        return inside
+
+    def label(self) -> str:
+        """``WxH+X+Y``, as a log line gives a rectangle."""
+        return f"{self.width}x{self.height}+{self.x}+{self.y}"
+
+
+def _dark_run(bright: np.ndarray) -> int:
+    """How many of the leading entries of ``bright`` (one per row or column, from the frame's
+    edge inward) are as dark as a bar: the first at most :data:`BAR_LEVEL`, the others at
+    most :data:`RINGING` above it."""
+    if bright[0] > BAR_LEVEL:
+        return 0
+    light = np.flatnonzero(bright > max(BAR_LEVEL, bright[0] + RINGING))
+    return int(light[0]) if light.size else len(bright)
+
+
+def _bars(bright: np.ndarray, mean: np.ndarray) -> int:
+    """The bar on each end of one axis of the frame, in pixels (0: none).
+
+    ``bright`` : (N,) the brightest of the frames' robust row (or column) maxima, edge to edge
+    ``mean`` : (N,) the brightest of the frames' row (or column) means
+
+    Letterbox and pillarbox bars come in pairs of one size (a picture centred in the frame):
+    the smaller of the two dark runs is taken for both, so a picture dark at one edge is not
+    cut into.
+    """
+    n = len(bright)
+    bar = min(_dark_run(bright), _dark_run(bright[::-1]))
+    if bar < max(2, BAR_MIN * n) or n - 2 * bar < PICTURE_MIN * n:
+        return 0
+    # the picture begins with a hard edge on at least one side in some frame
+    inside = max(mean[bar:bar + EDGE_ROWS].max(), mean[n - bar - EDGE_ROWS:n - bar].max())
+    return bar if inside - max(mean[0], mean[-1]) >= EDGE_STEP else 0
+
+
+def find_area(frames: Iterable[np.ndarray]) -> PictureArea | None:
+    """The picture area inside black bars common to all ``frames``, or None where there are none.
+
+    Parameters
+    ----------
+    frames : display-referred RGB ``(H, W, 3)`` float in [0, 1], all one size (a shot's, spread
+        over it: a bar must be dark in every one)
+
+    Returns
+    -------
+    PictureArea, or None if no side has a bar (see :data:`BAR_LEVEL`, :data:`BAR_MIN`,
+    :data:`PICTURE_MIN`, :data:`EDGE_STEP`)
+
+    A row's brightness is its 99.5th percentile of the channels' maximum, so one noisy pixel
+    of coding noise does not end a bar; a bar must be that dark in every frame.
+    """
+    rows = columns = row_mean = column_mean = None
+    for frame in frames:
+        value = frame.max(axis=2)  # (H, W) the brightest channel
+        r, c = np.percentile(value, 99.5, axis=1), np.percentile(value, 99.5, axis=0)
+        rm, cm = value.mean(axis=1), value.mean(axis=0)
+        if rows is None:
+            rows, columns, row_mean, column_mean = r, c, rm, cm
+        else:
+            rows, columns = np.maximum(rows, r), np.maximum(columns, c)
+            row_mean, column_mean = np.maximum(row_mean, rm), np.maximum(column_mean, cm)
+    if rows is None:
+        return None
+    top, left = _bars(rows, row_mean), _bars(columns, column_mean)
+    if not (top or left):
+        return None
+    height, width = len(rows), len(columns)
+    return PictureArea(left, top, width - 2 * left, height - 2 * top)
+
+
+def shot_areas(source: io.FrameSource, shots: Sequence[Shot], settings: Settings) -> dict[int, PictureArea | None]:
+    """Each shot's picture area (by shot index): found from :data:`SAMPLES` frames spread over
+    it where its ``picture_area`` setting is "auto", None (the whole frame) where it is "full"
+    or no bars are found. One pass over the frames, whatever the number of shots."""
+    picked: dict[int, list[int]] = {}  # frame index -> the shots it is a sample of
+    for shot in shots:
+        if settings.for_shot(shot.index).picture_area == "auto":
+            for i in np.unique(np.linspace(shot.start, shot.end, SAMPLES).round().astype(int)):
+                picked.setdefault(int(i), []).append(shot.index)
+    samples: dict[int, list[np.ndarray]] = {shot.index: [] for shot in shots}
+    if picked:  # a video is decoded in order anyway; of a folder only the samples are read
+        frames = (io.iter_frames(source, min(picked), max(picked) + 1) if source.kind == "video"
+                  else ((i, io.read_frame(source, i)) for i in sorted(picked)))
+        for index, frame in frames:
+            for shot in picked.get(index, ()):
+                samples[shot].append(to_display(frame, source.linear))
+    return {shot: find_area(frames) for shot, frames in samples.items()}

