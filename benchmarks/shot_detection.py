@@ -41,7 +41,8 @@ from common import ROOT, target_line
 
 sys.path.insert(0, str(ROOT / "tests"))  # the evaluation edits live beside the tests that use them
 
-from footage_edits import BBB, BIKES, BIKES_CUTS, PHONE, Edit, Flash, Take, Tally, evaluation_edits, score  # noqa: E402
+from footage_edits import BBB, BIKES, BIKES_CUTS, PHONE, Edit, Flash, Take, Tally, boxed, evaluation_edits, score  # noqa: E402
+from framestyle.area import CLIP_SAMPLES, find_area  # noqa: E402
 from framestyle.shots.clip import detect_frames  # noqa: E402
 from framestyle.shots.detect import detect_shots, frame_signature  # noqa: E402
 
@@ -142,6 +143,27 @@ def beside_cuts(size: tuple[int, int]) -> None:
     print(target_line("edits without exactly their cut / edits", len(wrong) / edits, 0.02))
 
 
+def in_bars(size: tuple[int, int]) -> None:
+    """The evaluation edits letterboxed (2.39:1) and pillarboxed (4:3) in their frame: every
+    cut and transition should be found, no false boundary, as without bars. ``detect_clip``
+    first finds the bars the whole clip has (:func:`framestyle.area.clip_area`: ``CLIP_SAMPLES``
+    frames spread over it) and takes the signatures inside them; here the same on the edit's
+    frames, beside the whole frames."""
+    edits = evaluation_edits()
+    for shape in ("scope", "pillar"):
+        whole, inside = Tally(), Tally()
+        for edit in edits:
+            frames = [boxed(frame, shape) for frame in edit.frames(size)]
+            spread = np.unique(np.linspace(0, len(frames) - 1, CLIP_SAMPLES).round().astype(int))
+            area = find_area([frames[i].astype(np.float32) / 255 for i in spread])
+            whole.add(score(edit, framestyle_detector(frames)[0]))
+            cropped = frames if area is None else [np.ascontiguousarray(area.crop(f)) for f in frames]
+            inside.add(score(edit, framestyle_detector(cropped)[0]))
+        print(f"\nIn {'2.39:1 letterbox' if shape == 'scope' else '4:3 pillarbox'} bars: boundaries missed / false "
+              f"on the whole frames {whole.missed} / {whole.false}, inside the bars {inside.missed} / {inside.false}")
+        print(target_line(f"missed and false boundaries in {shape} bars / edits", (inside.missed + inside.false) / len(edits), 0))
+
+
 def scenedetect_detector(make: Callable[[], object]) -> Detector:
     """A PySceneDetect detector fed frame by frame; times ``process_frame``/``post_process``."""
     from scenedetect import FrameTimecode
@@ -236,6 +258,7 @@ def main() -> None:
     print(target_line(f"{TARGET_FPS:.0f} frames/s / measured frames/s", TARGET_FPS / fps, 1))
     clip_ends(size)
     beside_cuts(size)
+    in_bars(size)
 
 
 if __name__ == "__main__":

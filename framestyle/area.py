@@ -5,7 +5,7 @@ clip in a 16:9 timeline). Those bars are not picture: an editor expects them to 
 after the look is applied, and the style's Gram statistics (Gatys et al. 2016) should be
 those of the picture, not of the picture and two black bands. A shot's bars are found from
 frames spread over it and the solver works on the picture inside them; the bars are
-delivered as the footage has them.
+delivered as the footage has them. Shot detection looks inside the bars the whole clip has.
 """
 
 from __future__ import annotations
@@ -47,6 +47,9 @@ edges."""
 
 SAMPLES = 12
 """Frames looked at across a shot to find its bars."""
+
+CLIP_SAMPLES = 48
+"""Frames looked at across a whole clip to find the bars all its shots have."""
 
 
 @dataclass(frozen=True)
@@ -102,6 +105,14 @@ def _bars(bright: np.ndarray, mean: np.ndarray) -> int:
     return bar if inside - max(mean[0], mean[-1]) >= EDGE_STEP else 0
 
 
+def _near_max(value: np.ndarray, axis: int) -> np.ndarray:
+    """The 99.5th percentile of ``value`` (H, W) along ``axis`` (the nearest sample: a
+    partial sort, three times quicker than :func:`numpy.percentile` at 1280×720)."""
+    n = value.shape[axis]
+    k = n - 1 - int(0.005 * n)
+    return np.take(np.partition(value, k, axis=axis), k, axis=axis)
+
+
 def find_area(frames: Iterable[np.ndarray]) -> PictureArea | None:
     """The picture area inside black bars common to all ``frames``, or None where there are none.
 
@@ -115,13 +126,13 @@ def find_area(frames: Iterable[np.ndarray]) -> PictureArea | None:
     PictureArea, or None if no side has a bar (see :data:`BAR_LEVEL`, :data:`BAR_MIN`,
     :data:`PICTURE_MIN`, :data:`EDGE_STEP`)
 
-    A row's brightness is its 99.5th percentile of the channels' maximum, so one noisy pixel
-    of coding noise does not end a bar; a bar must be that dark in every frame.
+    A row's brightness is the 99.5th percentile of its channels' maximum, so a few pixels of
+    coding noise do not end a bar; a bar must be that dark in every frame.
     """
     rows = columns = row_mean = column_mean = None
     for frame in frames:
-        value = frame.max(axis=2)  # (H, W) the brightest channel
-        r, c = np.percentile(value, 99.5, axis=1), np.percentile(value, 99.5, axis=0)
+        value = np.maximum(np.maximum(frame[..., 0], frame[..., 1]), frame[..., 2])  # (H, W) the brightest channel
+        r, c = _near_max(value, 1), _near_max(value, 0)
         rm, cm = value.mean(axis=1), value.mean(axis=0)
         if rows is None:
             rows, columns, row_mean, column_mean = r, c, rm, cm
@@ -137,20 +148,34 @@ def find_area(frames: Iterable[np.ndarray]) -> PictureArea | None:
     return PictureArea(left, top, width - 2 * left, height - 2 * top)
 
 
-def shot_areas(source: io.FrameSource, shots: Sequence[Shot], settings: Settings) -> dict[int, PictureArea | None]:
-    """Each shot's picture area (by shot index): found from :data:`SAMPLES` frames spread over
-    it where its ``picture_area`` setting is "auto", None (the whole frame) where it is "full"
-    or no bars are found. One pass over the frames, whatever the number of shots."""
-    picked: dict[int, list[int]] = {}  # frame index -> the shots it is a sample of
-    for shot in shots:
-        if settings.for_shot(shot.index).picture_area == "auto":
-            for i in np.unique(np.linspace(shot.start, shot.end, SAMPLES).round().astype(int)):
-                picked.setdefault(int(i), []).append(shot.index)
-    samples: dict[int, list[np.ndarray]] = {shot.index: [] for shot in shots}
+def _spread(source: io.FrameSource, spans: dict[int, tuple[int, int]], count: int) -> dict[int, list[np.ndarray]]:
+    """Up to ``count`` display-referred frames spread evenly over each span ``(first, last)``
+    (0-based, inclusive), by key; one pass over the frames, whatever the number of spans."""
+    picked: dict[int, list[int]] = {}  # frame index -> the spans it is a sample of
+    for key, (first, last) in spans.items():
+        for i in np.unique(np.linspace(first, last, count).round().astype(int)):
+            picked.setdefault(int(i), []).append(key)
+    samples: dict[int, list[np.ndarray]] = {key: [] for key in spans}
     if picked:  # a video is decoded in order anyway; of a folder only the samples are read
         frames = (io.iter_frames(source, min(picked), max(picked) + 1) if source.kind == "video"
                   else ((i, io.read_frame(source, i)) for i in sorted(picked)))
         for index, frame in frames:
-            for shot in picked.get(index, ()):
-                samples[shot].append(to_display(frame, source.linear))
-    return {shot: find_area(frames) for shot, frames in samples.items()}
+            for key in picked.get(index, ()):
+                samples[key].append(to_display(frame, source.linear))
+    return samples
+
+
+def shot_areas(source: io.FrameSource, shots: Sequence[Shot], settings: Settings) -> dict[int, PictureArea | None]:
+    """Each shot's picture area (by shot index): found from :data:`SAMPLES` frames spread over
+    it where its ``picture_area`` setting is "auto", None (the whole frame) where it is "full"
+    or no bars are found."""
+    spans = {shot.index: (shot.start, shot.end) for shot in shots
+             if settings.for_shot(shot.index).picture_area == "auto"}
+    found = {key: find_area(frames) for key, frames in _spread(source, spans, SAMPLES).items()}
+    return {shot.index: found.get(shot.index) for shot in shots}
+
+
+def clip_area(source: io.FrameSource) -> PictureArea | None:
+    """The picture inside bars the whole clip has (:data:`CLIP_SAMPLES` frames spread over it),
+    or None: shot detection compares the pictures, not their bars."""
+    return find_area(_spread(source, {0: (0, source.count - 1)}, CLIP_SAMPLES)[0])

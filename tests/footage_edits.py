@@ -283,6 +283,19 @@ def _apply(effect: Flash | Sweep, frames: list[np.ndarray]) -> None:
 BBB, BIKES, PHONE = "bigbuckbunny.mp4", "bikes.mp4", "carphone_pristine.mp4"
 
 
+def boxed(frame: np.ndarray, shape: str) -> np.ndarray:
+    """``frame`` scaled into a 2.39:1 letterbox or a 4:3 pillarbox of its own size, on black."""
+    height, width = frame.shape[:2]
+    canvas = np.zeros_like(frame)
+    if shape == "scope":  # 2.39:1 in 16:9 (common practice)
+        inner = round(width / 2.39) // 2 * 2
+        canvas[(height - inner) // 2:(height + inner) // 2] = cv2.resize(frame, (width, inner), interpolation=cv2.INTER_AREA)
+    else:  # 4:3 in 16:9
+        inner = round(height * 4 / 3) // 2 * 2
+        canvas[:, (width - inner) // 2:(width + inner) // 2] = cv2.resize(frame, (inner, height), interpolation=cv2.INTER_AREA)
+    return canvas
+
+
 def evaluation_edits() -> list[Edit]:
     """The evaluation set: every kind of boundary and of no-cut disturbance, over all three
     clips, several crop scales and positions, and transitions of several lengths.

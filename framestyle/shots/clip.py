@@ -11,6 +11,11 @@ and none with this confirmation; 88 of 88 cuts 1-4 frames from an end are kept
 (``benchmarks/shot_detection.py``). There a boundary is kept only where the flow finds no
 correspondence across it (Ruder, Dosovitskiy & Brox 2016's forward–backward check, as
 :mod:`framestyle.shots.continuity` tells a missed cut).
+
+The signatures are taken inside the black bars the whole clip has (a letterboxed or
+pillarboxed clip, :func:`framestyle.area.clip_area`): the bars' black was a quarter to a third
+of every signature and diluted a dissolve's change (3 of the 14 transitions of the 50 edits
+missed letterboxed at 640×360, 4 pillarboxed; none inside the bars).
 """
 
 from __future__ import annotations
@@ -20,6 +25,7 @@ from typing import Iterable
 import numpy as np
 
 from framestyle import io
+from framestyle.area import clip_area
 from framestyle.finish.compose import to_display
 from framestyle.imaging import resize
 from framestyle.shots.continuity import matches
@@ -33,9 +39,11 @@ reliable fractions were measured at)."""
 
 
 def detect_clip(source: io.FrameSource, cut_threshold: float = 0.015, gradual_threshold: float = 0.2) -> list[Shot]:
-    """The shots of ``source``, read once (:func:`detect_frames`)."""
-    return detect_frames((frame for _, frame in io.iter_frames(source)), source.count, source.linear,
-                         cut_threshold, gradual_threshold)
+    """The shots of ``source`` (:func:`detect_frames`), inside the black bars the whole clip has
+    (:func:`framestyle.area.clip_area`, a few frames read first)."""
+    area = clip_area(source)
+    return detect_frames((frame if area is None else area.crop(frame) for _, frame in io.iter_frames(source)),
+                         source.count, source.linear, cut_threshold, gradual_threshold)
 
 
 def detect_frames(frames: Iterable[np.ndarray], count: int, linear: bool = False, cut_threshold: float = 0.015,
