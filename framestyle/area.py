@@ -113,6 +113,44 @@ def _near_max(value: np.ndarray, axis: int) -> np.ndarray:
     return np.take(np.partition(value, k, axis=axis), k, axis=axis)
 
 
+@dataclass(frozen=True)
+class _Profile:
+    """The brightness of each row and column of some frames, the brightest frame's each:
+    ``rows`` (H,) and ``columns`` (W,) the 99.5th percentile of the channels' maximum along
+    them (a few pixels of coding noise do not count), ``row_mean`` and ``column_mean`` their means."""
+
+    rows: np.ndarray
+    columns: np.ndarray
+    row_mean: np.ndarray
+    column_mean: np.ndarray
+
+    @classmethod
+    def of(cls, frame: np.ndarray) -> "_Profile":
+        """The profile of one display-referred RGB frame ``(H, W, 3)``."""
+        value = np.maximum(np.maximum(frame[..., 0], frame[..., 1]), frame[..., 2])  # (H, W) the brightest channel
+        return cls(_near_max(value, 1), _near_max(value, 0), value.mean(axis=1), value.mean(axis=0))
+
+    def merge(self, other: "_Profile | None") -> "_Profile":
+        """The profile of both sets of frames."""
+        if other is None:
+            return self
+        return _Profile(np.maximum(self.rows, other.rows), np.maximum(self.columns, other.columns),
+                        np.maximum(self.row_mean, other.row_mean), np.maximum(self.column_mean, other.column_mean))
+
+    def area(self) -> PictureArea | None:
+        """The picture inside this profile's bars, or None (no side has one)."""
+        top, left = _bars(self.rows, self.row_mean), _bars(self.columns, self.column_mean)
+        if not (top or left):
+            return None
+        height, width = len(self.rows), len(self.columns)
+        return PictureArea(left, top, width - 2 * left, height - 2 * top)
+
+    def dark_outside(self, area: PictureArea) -> bool:
+        """Whether ``area``'s bars are as dark as bars in these frames (its edge need not show)."""
+        return all(_dark_run(profile) >= bar and _dark_run(profile[::-1]) >= bar
+                   for profile, bar in ((self.rows, area.y), (self.columns, area.x)))
+
+
 def find_area(frames: Iterable[np.ndarray]) -> PictureArea | None:
     """The picture area inside black bars common to all ``frames``, or None where there are none.
 
@@ -123,59 +161,59 @@ def find_area(frames: Iterable[np.ndarray]) -> PictureArea | None:
 
     Returns
     -------
-    PictureArea, or None if no side has a bar (see :data:`BAR_LEVEL`, :data:`BAR_MIN`,
-    :data:`PICTURE_MIN`, :data:`EDGE_STEP`)
-
-    A row's brightness is the 99.5th percentile of its channels' maximum, so a few pixels of
-    coding noise do not end a bar; a bar must be that dark in every frame.
+    PictureArea, or None if no side has a bar (see :data:`BAR_LEVEL`, :data:`RINGING`,
+    :data:`BAR_MIN`, :data:`PICTURE_MIN`, :data:`EDGE_STEP`)
     """
-    rows = columns = row_mean = column_mean = None
+    profile = None
     for frame in frames:
-        value = np.maximum(np.maximum(frame[..., 0], frame[..., 1]), frame[..., 2])  # (H, W) the brightest channel
-        r, c = _near_max(value, 1), _near_max(value, 0)
-        rm, cm = value.mean(axis=1), value.mean(axis=0)
-        if rows is None:
-            rows, columns, row_mean, column_mean = r, c, rm, cm
-        else:
-            rows, columns = np.maximum(rows, r), np.maximum(columns, c)
-            row_mean, column_mean = np.maximum(row_mean, rm), np.maximum(column_mean, cm)
-    if rows is None:
-        return None
-    top, left = _bars(rows, row_mean), _bars(columns, column_mean)
-    if not (top or left):
-        return None
-    height, width = len(rows), len(columns)
-    return PictureArea(left, top, width - 2 * left, height - 2 * top)
+        profile = _Profile.of(frame).merge(profile)
+    return None if profile is None else profile.area()
 
 
-def _spread(source: io.FrameSource, spans: dict[int, tuple[int, int]], count: int) -> dict[int, list[np.ndarray]]:
-    """Up to ``count`` display-referred frames spread evenly over each span ``(first, last)``
-    (0-based, inclusive), by key; one pass over the frames, whatever the number of spans."""
+_CLIP = 0  # the whole clip's key among the spans of _profiles (shots count from 1)
+
+
+def _profiles(source: io.FrameSource, spans: dict[int, tuple[tuple[int, int], int]]) -> dict[int, _Profile]:
+    """The profile of frames spread evenly over spans, by key: ``spans[key]`` is
+    ``((first, last), count)``, 0-based and inclusive, up to ``count`` frames. One pass over
+    the frames, each frame's profile taken once and no frame kept."""
     picked: dict[int, list[int]] = {}  # frame index -> the spans it is a sample of
-    for key, (first, last) in spans.items():
+    for key, ((first, last), count) in spans.items():
         for i in np.unique(np.linspace(first, last, count).round().astype(int)):
             picked.setdefault(int(i), []).append(key)
-    samples: dict[int, list[np.ndarray]] = {key: [] for key in spans}
-    if picked:  # a video is decoded in order anyway; of a folder only the samples are read
-        frames = (io.iter_frames(source, min(picked), max(picked) + 1) if source.kind == "video"
-                  else ((i, io.read_frame(source, i)) for i in sorted(picked)))
-        for index, frame in frames:
-            for key in picked.get(index, ()):
-                samples[key].append(to_display(frame, source.linear))
-    return samples
+    profiles: dict[int, _Profile] = {}
+    # a video is decoded in order anyway; of a folder only the samples are read
+    frames = (io.iter_frames(source, min(picked), max(picked) + 1) if source.kind == "video"
+              else ((i, io.read_frame(source, i)) for i in sorted(picked)))
+    for index, frame in frames:
+        if index in picked:
+            profile = _Profile.of(to_display(frame, source.linear))
+            for key in picked[index]:
+                profiles[key] = profile.merge(profiles.get(key))
+    return profiles
 
 
 def shot_areas(source: io.FrameSource, shots: Sequence[Shot], settings: Settings) -> dict[int, PictureArea | None]:
-    """Each shot's picture area (by shot index): found from :data:`SAMPLES` frames spread over
-    it where its ``picture_area`` setting is "auto", None (the whole frame) where it is "full"
-    or no bars are found."""
+    """Each shot's picture area (by shot index) where its ``picture_area`` setting is "auto",
+    None (the whole frame) where it is "full" or no bars are found. A shot's bars are found
+    from :data:`SAMPLES` frames spread over it; where that finds none, the bars the whole
+    clip has (:func:`clip_area`) are taken if they are dark in the shot's frames too: a dark
+    scene of a letterboxed film shows no hard edge of its own. One pass over the frames."""
     spans = {shot.index: (shot.start, shot.end) for shot in shots
              if settings.for_shot(shot.index).picture_area == "auto"}
-    found = {key: find_area(frames) for key, frames in _spread(source, spans, SAMPLES).items()}
-    return {shot.index: found.get(shot.index) for shot in shots}
+    if not spans:
+        return {shot.index: None for shot in shots}
+    profiles = _profiles(source, {**{key: (span, SAMPLES) for key, span in spans.items()},
+                                  _CLIP: ((0, source.count - 1), CLIP_SAMPLES)})
+    clip = profiles.pop(_CLIP).area()
+    areas = {}
+    for key, profile in profiles.items():
+        own = profile.area()
+        areas[key] = own if own is not None or clip is None or not profile.dark_outside(clip) else clip
+    return {shot.index: areas.get(shot.index) for shot in shots}
 
 
 def clip_area(source: io.FrameSource) -> PictureArea | None:
     """The picture inside bars the whole clip has (:data:`CLIP_SAMPLES` frames spread over it),
     or None: shot detection compares the pictures, not their bars."""
-    return find_area(_spread(source, {0: (0, source.count - 1)}, CLIP_SAMPLES)[0])
+    return _profiles(source, {_CLIP: ((0, source.count - 1), CLIP_SAMPLES)})[_CLIP].area()

