@@ -17,6 +17,7 @@ import typer
 from framestyle.errors import FramestyleError
 from framestyle.motion import FLOW_PRESETS
 from framestyle.settings import Settings
+from framestyle.shots.lists import shot_selection
 
 app = typer.Typer(
     add_completion=False, no_args_is_help=True,
@@ -214,6 +215,7 @@ class _Bars:
             self.progress.console.print(
                 f"{info['frames']} frames in {info['shots']} shot(s), working size {w}×{h}"
                 + (f", {info['done']} already finished" if info["done"] else "")
+                + (f"; shot(s) {shot_selection(info['boxed'])}: black bars kept" if info.get("boxed") else "")
             )
         elif self.progress is None:
             return

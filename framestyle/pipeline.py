@@ -253,7 +253,8 @@ def plan_render(
     names = plan.names
     done = sum(1 for s in chosen for i in s.frames if names[i] in finished)
     size = working_size(source.width, source.height, settings.width, net.min_side, source.pixel_aspect)
-    progress("start", frames=sum(s.length for s in chosen), shots=len(chosen), done=done, size=size)
+    progress("start", frames=sum(s.length for s in chosen), shots=len(chosen), done=done, size=size,
+             boxed=[s.index for s in chosen if plan.areas[s.index] is not None])
     refresh_report(plan.out, plan.source, plan.settings, plan.timecode)
     return plan
 

@@ -5,11 +5,13 @@ from pathlib import Path
 import cv2
 import numpy as np
 import pytest
+from typer.testing import CliRunner
 
-from conftest import fast_settings
+from conftest import STYLE, fast_settings
 from footage_edits import BIKES, load_clip
 from framestyle import io
 from framestyle.area import PictureArea, find_area, shot_areas
+from framestyle.cli import app
 from framestyle.pipeline import render
 from framestyle.settings import Settings
 from framestyle.shots import Shot
@@ -150,3 +152,11 @@ def test_a_dark_shot_of_a_letterboxed_clip_takes_the_clips_bars(tmp_path):
     assert shot_areas(io.open_source(folder), shots, Settings()) == {1: truth, 2: truth}
     full = Settings(shot_looks={"2": {"picture_area": "full"}})
     assert shot_areas(io.open_source(folder), shots, full) == {1: truth, 2: None}
+
+
+def test_the_command_line_says_which_shots_keep_their_bars(small_clip, tmp_path):
+    _letterboxed_clip(small_clip, tmp_path / "boxed")
+    result = CliRunner().invoke(app, ["stylise", str(tmp_path / "boxed"), "--style", str(STYLE), "--out",
+                                      str(tmp_path / "o"), "--iterations", "2", "--shots", "2"])
+    assert result.exit_code == 0, result.stderr
+    assert "shot(s) 2: black bars kept" in " ".join(result.stdout.split())

@@ -15,7 +15,7 @@ from framestyle.shots.detect import (
     frame_signature,
     signature_distance,
 )
-from framestyle.shots.lists import apply_overrides, format_shot_table, parse_shot_file, parse_shot_selection
+from framestyle.shots.lists import apply_overrides, format_shot_table, parse_shot_file, parse_shot_selection, shot_selection
 from framestyle.shots.lists import shot_entries
 from framestyle.timecode import ClipTimecode
 
@@ -416,3 +416,9 @@ def test_a_shot_selection_reads_lists_ranges_and_open_ranges_and_refuses_the_res
                         ("7-", "no shot 7")]:
         with pytest.raises(FramestyleError, match=words):
             parse_shot_selection(text, 6)
+
+
+def test_shot_numbers_are_written_as_a_selection_reads_them():
+    assert shot_selection([6, 2, 4, 5]) == "2,4-6" and shot_selection([1]) == "1"
+    for numbers in ([1, 2, 3], [1, 3, 7, 8], [5]):
+        assert parse_shot_selection(shot_selection(numbers), 9) == numbers

@@ -288,6 +288,17 @@ def format_shot_table(shots: Sequence[Shot], numbers: Sequence[int], timecode: C
     )
 
 
+def shot_selection(numbers: Sequence[int]) -> str:
+    """Shot numbers as ``--shots`` takes them, runs joined: [2, 4, 5, 6] → ``2,4-6``."""
+    runs: list[list[int]] = []
+    for n in sorted(set(numbers)):
+        if runs and n == runs[-1][1] + 1:
+            runs[-1][1] = n
+        else:
+            runs.append([n, n])
+    return ",".join(f"{a}" if a == b else f"{a}-{b}" for a, b in runs)
+
+
 def parse_shot_selection(text: str, n_shots: int) -> list[int]:
     """Parse a selection like ``2,4-5`` (``7-``: shot 7 to the last) into sorted shot
     numbers, checking they exist and that a range runs upward."""
