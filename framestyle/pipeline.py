@@ -581,7 +581,8 @@ class _ShotRender:
         first_pass, begin = self._resume_point(todo[0])
         look = shot_look(self.net, self.source, settings, shot, self.area)
         mattes = Mattes(self.source, settings.matte)
-        if self.area is not None:
+        if self.area is not None:  # the record (written with the next frame) tells the report
+            self.work.record["area"] = self.area.label()
             self.work.store.log(f"shot {shot.index}: black bars around the picture; the picture "
                                 f"{self.area.label()} is stylised, the bars delivered as they are")
         progress("shot_start", shot=shot.index, frames=shot.length, done=shot.length - len(todo))

@@ -128,6 +128,9 @@ def test_a_render_of_letterboxed_footage_stylises_the_picture_and_keeps_the_bars
     render(tmp_path / "boxed", painted, fast_settings(iterations=3, picture_area="full"))
     log = (kept / "render.log").read_text()
     assert log.count(f"the picture {area.label()} is stylised") == 2  # both shots
+    page = (kept / "report.html").read_text()
+    assert page.count(f"the picture {area.label()} is stylised") == 2
+    assert "Black bars kept" not in (painted / "report.html").read_text()
     for source in sorted((tmp_path / "boxed").glob("*.png")):
         original = cv2.imread(str(source)).astype(int)
         bars = area.mask(96, 128) == 0

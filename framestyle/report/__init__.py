@@ -79,7 +79,7 @@ def refresh_report(out: Path, source: io.FrameSource | None = None, settings: Se
         records = store.records()
         shots = list(recorded_shots(manifest))
         views = tuple(_shot_view(store, files, source, settings, timecode, shot,
-                                 records.get(shot.index, {"frames": {}})["frames"], redraw, every) for shot in shots)
+                                 records.get(shot.index, {"frames": {}}), redraw, every) for shot in shots)
         data = dataclasses.replace(
             data, status=render_status(manifest, records), shots=views, settings=manifest["settings"],
             styles=tuple(_styles(files, settings, redraw)), source=_source_facts(source, timecode, manifest),
@@ -92,8 +92,9 @@ def refresh_report(out: Path, source: io.FrameSource | None = None, settings: Se
 # --- one shot ---------------------------------------------------------------------------------
 
 def _shot_view(store: Store, files: ReportStore, source: io.FrameSource, settings: Settings, timecode: ClipTimecode,
-               shot: Shot, frames: dict[str, dict], redraw: bool, every: int | None) -> ShotView:
+               shot: Shot, record: dict, redraw: bool, every: int | None) -> ShotView:
     """A shot's view: its figures, and its pictures, redrawn if its record changed since."""
+    frames = record["frames"]
     shot_settings = settings.for_shot(shot.index)
     names = output_names(source)
     stem = f"shot_{shot.index:03d}"
@@ -103,7 +104,7 @@ def _shot_view(store: Store, files: ReportStore, source: io.FrameSource, setting
                     timecode=f"{timecode.label(shot.start)} – {timecode.label(shot.end)}", length=shot.length,
                     series=None, look=look,
                     render_label="render" if shot_settings.temporal else "render (delivered frames)",
-                    flashes=_flash_checks(store, shot.index))
+                    flashes=_flash_checks(store, shot.index), picture=record.get("area", ""))
     if not frames:
         return view
     measured = _measured(store, files, source, shot_settings, shot, frames, names, stem)

@@ -34,6 +34,7 @@ class ShotView:
     plot: str | None = None  # relative URL of the plot
     render_label: str = "render"  # what the render's warping error was measured on
     flashes: dict = field(default_factory=dict)  # the shot's flash check: "render"/"source" → report
+    picture: str = ""  # "WxH+X+Y": the picture inside black bars that was stylised ("" the whole frame)
 
 
 @dataclass(frozen=True)
@@ -187,6 +188,8 @@ def _shot_section(view: ShotView) -> str:
     head = (f'<section class="shot" id="shot{view.index}"><h2>Shot {view.index} · frames {_e(view.frames)} '
             f'<span class="muted">· {_e(view.timecode)}</span> {_state(view)}</h2>')
     look = f'<p>Own look: {_e(view.look)}</p>' if view.look else ""
+    if view.picture:
+        look += f"<p>Black bars kept as the footage has them; the picture {_e(view.picture)} is stylised.</p>"
     if view.flashes:
         look += ("<p>Flash check of this shot: " + " · ".join(f"{_e(kind)} {_verdict(report)}"
                                                              for kind, report in view.flashes.items()) + "</p>")
