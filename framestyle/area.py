@@ -182,14 +182,10 @@ def _profiles(source: io.FrameSource, spans: dict[int, tuple[tuple[int, int], in
         for i in np.unique(np.linspace(first, last, count).round().astype(int)):
             picked.setdefault(int(i), []).append(key)
     profiles: dict[int, _Profile] = {}
-    # a video is decoded in order anyway; of a folder only the samples are read
-    frames = (io.iter_frames(source, min(picked), max(picked) + 1) if source.kind == "video"
-              else ((i, io.read_frame(source, i)) for i in sorted(picked)))
-    for index, frame in frames:
-        if index in picked:
-            profile = _Profile.of(to_display(frame, source.linear))
-            for key in picked[index]:
-                profiles[key] = profile.merge(profiles.get(key))
+    for index, frame in io.pick_frames(source, picked):
+        profile = _Profile.of(to_display(frame, source.linear))
+        for key in picked[index]:
+            profiles[key] = profile.merge(profiles.get(key))
     return profiles
 
 

@@ -912,9 +912,7 @@ def _stylised_alone(source: io.FrameSource, net: FeatureNet, settings: Settings,
     in frame order."""
     looks: dict[int, tuple[Settings, PictureArea | None, tuple[int, int], Look, Mattes]] = {}
     areas = shot_areas(source, list({shot.index: shot for shot in chosen.values()}.values()), settings)
-    for index, raw in io.iter_frames(source, min(chosen, default=0), max(chosen, default=-1) + 1):
-        if index not in chosen:
-            continue
+    for index, raw in io.pick_frames(source, chosen):
         t0 = time.perf_counter()
         shot = chosen[index]
         if shot.index not in looks:

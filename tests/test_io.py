@@ -26,6 +26,7 @@ from framestyle.io import (
     fingerprint,
     frame_name,
     iter_frames,
+    pick_frames,
     open_source,
     read_alpha,
     read_frame,
@@ -422,6 +423,19 @@ def test_video_frames_match_a_sequential_read_from_any_start(clip):
     np.testing.assert_array_equal(read_frame(source, 23), sequential[23])
     # Every frame differs from every other, so matching the right index means something.
     assert all(not np.array_equal(a, b) for i, a in enumerate(sequential) for b in sequential[:i])
+
+
+def test_picked_frames_are_the_frames_read_one_by_one_in_order(clip, tmp_path):
+    for number in range(1, 7):
+        write_uint(tmp_path / f"frame_{number}.png", np.full((6, 5, 3), 10 * number, np.uint8))
+    for source in (open_source(clip), open_source(tmp_path)):
+        picked = list(pick_frames(source, [5, 1, 5, 3]))
+        assert [i for i, _ in picked] == [1, 3, 5]
+        for index, frame in picked:
+            np.testing.assert_array_equal(frame, read_frame(source, index))
+        assert list(pick_frames(source, [])) == []
+        with pytest.raises(IndexError):
+            list(pick_frames(source, [2, 99]))
 
 
 def test_variable_frame_rate_video_is_read_one_frame_per_decoded_frame(tmp_path):

@@ -16,7 +16,7 @@ import hashlib
 from dataclasses import dataclass, field
 from fractions import Fraction
 from pathlib import Path
-from typing import Iterator, Literal
+from typing import Iterable, Iterator, Literal
 
 import numpy as np
 
@@ -184,6 +184,20 @@ def iter_frames(source: FrameSource, start: int = 0, stop: int | None = None) ->
     if source.kind == "video":
         return ((i, to_rgb(raw)) for i, raw in iter_video(source.path, source.video, start, stop))
     return ((i, to_rgb(_read_raw(source, i))) for i in range(start, stop))
+
+
+def pick_frames(source: FrameSource, indices: Iterable[int]) -> Iterator[tuple[int, np.ndarray]]:
+    """Yield ``(index, frame)`` for each of ``indices``, in increasing order, as
+    :func:`read_frame` gives: of a folder only those files are read; a video is decoded in
+    one sequential pass from the first to the last of them, and only they are converted."""
+    wanted = sorted(set(indices))
+    for index in wanted[:1] + wanted[-1:]:
+        _check_index(source, index)
+    if source.kind == "video" and wanted:
+        keep = set(wanted)
+        return ((i, to_rgb(raw)) for i, raw in iter_video(source.path, source.video, wanted[0], wanted[-1] + 1)
+                if i in keep)
+    return ((i, to_rgb(_read_raw(source, i))) for i in wanted)
 
 
 def read_image(path: str | Path) -> np.ndarray:

@@ -169,10 +169,7 @@ def _strip(store: Store, source: io.FrameSource, shot: Shot, names: list[str], f
            ) -> np.ndarray:
     """The shot's thumbnail strip: source above render, the render's frames that are finished."""
     wanted = strip_frames(shot.start, shot.end, every)
-    if source.kind == "video":  # decoded in one pass; a folder's frames are read one by one
-        raws = {i: raw for i, raw in io.iter_frames(source, wanted[0], wanted[-1] + 1) if i in wanted}
-    else:
-        raws = {i: io.read_frame(source, i) for i in wanted}
+    raws = dict(io.pick_frames(source, wanted))
     tiles = []
     for i in wanted:
         rendered = None
