@@ -211,11 +211,15 @@ class _Bars:
             )
             self.progress.start()
             self.total = self.progress.add_task("all frames", total=info["frames"], completed=info["done"])
-            w, h = info["size"]
+            whole = [(size, shots) for size, bars, shots in info["sizes"] if not bars]
+            boxed = [(size, shots) for size, bars, shots in info["sizes"] if bars]
             self.progress.console.print(
-                f"{info['frames']} frames in {info['shots']} shot(s), working size {w}×{h}"
+                f"{info['frames']} frames in {info['shots']} shot(s)"
+                + "".join(f", working size {w}×{h}" if k == 0 else f" (shot(s) {shot_selection(shots)}: {w}×{h})"
+                          for k, ((w, h), shots) in enumerate(whole))
                 + (f", {info['done']} already finished" if info["done"] else "")
-                + (f"; shot(s) {shot_selection(info['boxed'])}: black bars kept" if info.get("boxed") else "")
+                + "".join(f"; shot(s) {shot_selection(shots)}: black bars kept, the picture worked at {w}×{h}"
+                          for (w, h), shots in boxed)
             )
         elif self.progress is None:
             return

@@ -146,7 +146,7 @@ def render(
     restart : discard a previous render in ``out`` instead of resuming it
     keep_shot_list : resume with the shot list the render was started with (``framestyle resume``)
     progress : called as ``progress(event, **info)`` with events ``"start"`` (frames, shots,
-        done, size), ``"warning"`` (message), ``"shot_start"`` (shot, frames, done),
+        done, sizes: :func:`working_sizes`), ``"warning"`` (message), ``"shot_start"`` (shot, frames, done),
         ``"frame"`` (index, shot, iterations, seconds: a finished frame), ``"pass"`` (shot,
         pass_, passes, done: a pass of a multi-pass shot begins), ``"pass_frame"`` (index,
         shot, pass_, iterations, seconds: a frame's pass before delivery), ``"waiting"``
@@ -252,9 +252,8 @@ def plan_render(
     chosen = [s for s in shot_list_ if s.index in wanted]
     names = plan.names
     done = sum(1 for s in chosen for i in s.frames if names[i] in finished)
-    size = working_size(source.width, source.height, settings.width, net.min_side, source.pixel_aspect)
-    progress("start", frames=sum(s.length for s in chosen), shots=len(chosen), done=done, size=size,
-             boxed=[s.index for s in chosen if plan.areas[s.index] is not None])
+    progress("start", frames=sum(s.length for s in chosen), shots=len(chosen), done=done,
+             sizes=working_sizes(source, chosen, plan.areas, settings, net.min_side))
     refresh_report(plan.out, plan.source, plan.settings, plan.timecode)
     return plan
 
@@ -477,6 +476,17 @@ def framing(source: io.FrameSource, area: PictureArea | None, settings: Settings
         except FramestyleError:
             pass
     return None, working_size(source.width, source.height, settings.width, min_side, source.pixel_aspect)
+
+
+def working_sizes(source: io.FrameSource, shots: Sequence[Shot], areas: dict[int, PictureArea | None],
+                  settings: Settings, min_side: int) -> list[tuple[tuple[int, int], bool, list[int]]]:
+    """The sizes ``shots`` are worked at (:func:`framing`, each with its own look's settings),
+    as ``((width, height), inside black bars, shot indices)``, the size most shots share first."""
+    groups: dict[tuple[tuple[int, int], bool], list[int]] = {}
+    for shot in shots:
+        area, size = framing(source, areas[shot.index], settings.for_shot(shot.index), min_side)
+        groups.setdefault((size, area is not None), []).append(shot.index)
+    return [(size, bars, indices) for (size, bars), indices in sorted(groups.items(), key=lambda g: -len(g[1]))]
 
 
 def shot_look(net: FeatureNet, source: io.FrameSource, settings: Settings, shot: Shot,
@@ -905,13 +915,14 @@ def stylise(
 # --- frames stylised on their own: previews, the reference of the detail measure ---------------
 
 def _stylised_alone(source: io.FrameSource, net: FeatureNet, settings: Settings, chosen: dict[int, Shot],
+                    areas: dict[int, PictureArea | None],
                     linear: bool) -> Iterator[tuple[int, Shot, Frame, np.ndarray, SolveStats, float]]:
-    """Each chosen frame (index → its shot) stylised on its own with its shot's look — a shot's
-    first-frame treatment, no temporal chain — and delivered (in the source's encoding if
+    """Each chosen frame (index → its shot) stylised on its own with its shot's look and picture
+    area (``areas``, :func:`framestyle.area.shot_areas`) — a shot's first-frame treatment, no
+    temporal chain — and delivered (in the source's encoding if
     ``linear``, else display-referred). Yields (index, shot, frame, delivered, stats, seconds)
     in frame order."""
     looks: dict[int, tuple[Settings, PictureArea | None, tuple[int, int], Look, Mattes]] = {}
-    areas = shot_areas(source, list({shot.index: shot for shot in chosen.values()}.values()), settings)
     for index, raw in io.pick_frames(source, chosen):
         t0 = time.perf_counter()
         shot = chosen[index]
@@ -945,7 +956,8 @@ def frames_alone(out: Path, source_path: Path, indices: Sequence[int]) -> Iterat
     chosen = {i: next(s for s in shots if s.start <= i <= s.end) for i in indices}
     levels = 2 ** _output_depth(source) - 1
     net = network(settings)
-    for index, _, _, delivered, _, _ in _stylised_alone(source, net, settings, chosen, source.linear):
+    areas = shot_areas(source, list({shot.index: shot for shot in chosen.values()}.values()), settings)
+    for index, _, _, delivered, _, _ in _stylised_alone(source, net, settings, chosen, areas, source.linear):
         yield index, delivered if source.linear else np.round(delivered * levels) / levels
 
 
@@ -1001,11 +1013,13 @@ def preview(input_path: Path, out: Path, settings: Settings, every: int, *, widt
     _unmatched_looks(settings, len(shot_list), progress)
     wanted = parse_shot_selection(shots, len(shot_list)) if shots else [s.index for s in shot_list]
     chosen = {i: shot for shot in shot_list if shot.index in wanted for i in sample_frames(shot.start, shot.end, every)}
-    size = working_size(source.width, source.height, settings.width, net.min_side, source.pixel_aspect)
-    progress("start", frames=len(chosen), shots=len(wanted), done=0, size=size)
+    shots_wanted = [shot for shot in shot_list if shot.index in wanted]
+    areas = shot_areas(source, shots_wanted, settings)
+    progress("start", frames=len(chosen), shots=len(wanted), done=0,
+             sizes=working_sizes(source, shots_wanted, areas, settings, net.min_side))
     tiles: dict[int, list] = {n: [] for n in wanted}
     with Store(out).preview() as folder:
-        for index, shot, frame, delivered, stats, seconds in _stylised_alone(source, net, settings, chosen, False):
+        for index, shot, frame, delivered, stats, seconds in _stylised_alone(source, net, settings, chosen, areas, False):
             folder.write(io.frame_name(source, index), delivered)
             tiles[shot.index].append((source.names[index], frame.display, delivered))
             progress("frame", index=index, shot=shot.index, iterations=stats.iterations, seconds=seconds, skipped=False)

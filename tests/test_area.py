@@ -12,7 +12,7 @@ from footage_edits import BIKES, load_clip
 from framestyle import io
 from framestyle.area import PictureArea, find_area, shot_areas
 from framestyle.cli import app
-from framestyle.pipeline import render
+from framestyle.pipeline import render, working_sizes
 from framestyle.settings import Settings
 from framestyle.shots import Shot
 from framestyle.working import Frame, deliver
@@ -162,4 +162,15 @@ def test_the_command_line_says_which_shots_keep_their_bars(small_clip, tmp_path)
     result = CliRunner().invoke(app, ["stylise", str(tmp_path / "boxed"), "--style", str(STYLE), "--out",
                                       str(tmp_path / "o"), "--iterations", "2", "--shots", "2"])
     assert result.exit_code == 0, result.stderr
-    assert "shot(s) 2: black bars kept" in " ".join(result.stdout.split())
+    said = " ".join(result.stdout.split())
+    assert "1 shot(s); shot(s) 2: black bars kept, the picture worked at 128×72" in said  # not the frame's 128×96
+    assert "working size" not in said  # no shot is worked whole
+
+
+def test_the_working_sizes_group_the_shots_by_size_and_by_bars(small_clip):
+    source = io.open_source(small_clip)  # 128×72
+    shots = [Shot(1, 0, 4), Shot(2, 5, 9), Shot(3, 10, 14), Shot(4, 15, 19)]
+    areas = {1: None, 2: None, 3: PictureArea(0, 9, 128, 54), 4: None}
+    settings = Settings(shot_looks={"2": {"width": 64}})
+    sizes = working_sizes(source, shots, areas, settings, min_side=16)
+    assert sizes == [((128, 72), False, [1, 4]), ((64, 36), False, [2]), ((128, 54), True, [3])]
