@@ -99,21 +99,24 @@ def test_a_shot_of_a_few_frames_in_moving_footage_gets_both_its_cuts(parts):
     assert len(found) == 2 and all(abs(f - cut) <= CUT_TOLERANCE for f, cut in zip(found, edit.cuts)), (found, edit.cuts)
 
 
-@pytest.mark.parametrize("parts, effects", [
+@pytest.mark.parametrize("parts, effects, cut", [
     # two white frames four frames before a cut between angles of one street (a music video)
-    ((Take(BIKES, 100, 20), Take(BIKES, 140, 20, 1.4, (0.4, 0.5))), (Flash(15), Flash(16))),
+    ((Take(BIKES, 100, 20), Take(BIKES, 140, 20, 1.4, (0.4, 0.5))), (Flash(15), Flash(16)), 20),
     # a 2-frame cutaway to another clip, the angle coming back 3 frames before a cut to another
-    ((Take(BIKES, 80, 14), Take(BBB, 60, 2), Take(BIKES, 96, 4), Take(PHONE, 10, 20)), ()),
+    ((Take(BIKES, 80, 14), Take(BBB, 60, 2), Take(BIKES, 96, 4), Take(PHONE, 10, 20)), (), 20),
     # a photo flash 3 frames after a cut between two framings of the talking head
-    ((Take(PHONE, 0, 30), Take(PHONE, 30, 30, 1.5, (0.3, 0.3))), (Flash(33, 2.2, 0.25),)),
+    ((Take(PHONE, 0, 30), Take(PHONE, 30, 30, 1.5, (0.3, 0.3))), (Flash(33, 2.2, 0.25),), 30),
+    # a 2-frame cutaway 4 frames after a cut between angles of the street: the street moves
+    # fast there, so the frames around the cutaway differ 1.96 times as much as the motion and
+    # the cutaway looked like an insert, which it is not, since its steps do not stand out
+    ((Take(BIKES, 100, 20), Take(BIKES, 140, 4), Take(PHONE, 60, 2), Take(BIKES, 146, 16)), (), 20),
 ])
-def test_a_flash_or_a_short_cutaway_next_to_a_cut_does_not_hide_it(parts, effects):
+def test_a_flash_or_a_short_cutaway_next_to_a_cut_does_not_hide_it(parts, effects, cut):
     # The steps into and out of a picture that comes back stood in the cut's window, larger
     # than it, so the cut did not stand out; the render's own check caught it, but the shot
     # list (the report, an EDL) had one shot over both angles.
     edit = Edit("a flash next to a cut", "cut", parts, effects)
-    cuts = [c for c in edit.cuts if c not in (14, 16)]  # the cutaway's, which the picture comes back from
-    assert boundaries(edit) == cuts
+    assert boundaries(edit) == [cut]  # not the cutaway's, which the picture comes back from
 
 
 def clip_boundaries(edit: Edit, tmp_path) -> tuple[list[int], list[int]]:

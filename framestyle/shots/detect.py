@@ -267,11 +267,12 @@ def _short_runs(sigs: np.ndarray, steps: np.ndarray, threshold: float, ratio: fl
     and whose outer frames ``i`` and ``j + 1`` differ by ``ratio`` times as much as frames
     as far apart do by motion alone (the mean of that distance measured just before ``i``
     and just after ``j + 1``), returns the first frames after both (``i + 1``, ``j + 1``).
-    Second, it returns the steps ``i .. j`` of runs the picture comes back from: outer
-    frames under ``ratio`` times as far apart as motion makes them and ``ratio`` times nearer
-    than either jump, the jumps standing out from every step around but one (a cut may stand
-    beside a flash, larger than its jumps); :func:`_cut_mask` makes no cut of them and does
-    not measure a cut against them.
+    Second, it returns the steps ``i .. j`` of the other runs the picture comes back from:
+    outer frames ``ratio`` times nearer than either jump, the jumps standing out from every
+    step around but one (a cut may stand beside a flash, larger than its jumps); where the
+    footage moves fast its outer frames may differ ``ratio`` times as much as the motion
+    (1.96 times around a 2-frame cutaway 4 frames after a cut between angles of the street).
+    :func:`_cut_mask` makes no cut of them and does not measure a cut against them.
     On real footage the outer frames of 3-frame inserts between angles of a moving scene
     differed 2.1-19 times as much as the motion, around white frames and camera flashes
     0.7-1.2 times (``tests/footage_edits.py``)."""
@@ -291,9 +292,8 @@ def _short_runs(sigs: np.ndarray, steps: np.ndarray, threshold: float, ratio: fl
             moved = float(np.mean(motion)) if motion else others * span
             change = float(signature_distance(sigs[i], sigs[j + 1]))
             jumps = min(steps[i], steps[j])
-            if change >= max(threshold, ratio * moved):  # another picture after: an insert
-                if jumps >= max(threshold, ratio * others):
-                    found += [i + 1, j + 1]
+            if change >= max(threshold, ratio * moved) and jumps >= max(threshold, ratio * others):
+                found += [i + 1, j + 1]  # another picture after, both steps standing out: an insert
             elif ratio * change <= jumps and jumps >= max(threshold, ratio * others_but_one):
                 back += range(i, j + 1)  # the picture comes back, nearer to the one before than either jump
     return np.asarray(found, np.intp), np.asarray(back, np.intp)
