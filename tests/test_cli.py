@@ -177,7 +177,7 @@ def test_a_preview_goes_beside_a_render_of_its_footage_never_of_other_footage(sm
     _one_line_error(code, err, f"{other}: not the footage the render in {out} was made from")
     assert not (out / "preview").exists()
     # the same footage given by hand to the commands that read a render and its source
-    code, out_, err = _run("stability", out, "--source", other, "--detail-frames", "0")
+    code, _, err = _run("stability", out, "--source", other, "--detail-frames", "0")
     _one_line_error(code, err, f"{other}: not the footage the render in {out} was made from")
     _one_line_error(*_run("report", out, "--source", other)[::2], "not the footage")
     _one_line_error(*_run("flashes", out, "--source", other)[::2], "not the footage")

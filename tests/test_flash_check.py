@@ -72,7 +72,7 @@ def _write_folder(folder: Path, frames) -> Path:
     return folder
 
 
-RED, BLACK, WHITE = np.float32([1, 0, 0]), np.float32([0, 0, 0]), np.float32([1, 1, 1])
+RED = np.float32([1, 0, 0])
 # name -> (frames, expected exit code: 0 passes, 1 fails), each with its source.
 CASES = {
     # WCAG 2.1 SC 2.3.1: more than three general flashes in any one second over more than 25 %

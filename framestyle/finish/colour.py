@@ -136,7 +136,7 @@ def luminance_transfer(
 def _match_channel(source: np.ndarray, reference: np.ndarray) -> np.ndarray:
     # Map each source value to the reference value at the same cumulative quantile,
     # interpolating linearly between the reference's distinct values.
-    src_values, src_index, src_counts = np.unique(
+    _, src_index, src_counts = np.unique(
         source.ravel(), return_inverse=True, return_counts=True
     )
     ref_values, ref_counts = np.unique(reference.ravel(), return_counts=True)

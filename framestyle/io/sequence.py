@@ -72,7 +72,7 @@ def scan_folder(path: Path) -> Sequence:
             raise FramestyleError(f"{path / second}: has the same frame number {number} as {first}")
     files = tuple(name for _, name in frames)
     (prefix, ext), numbers = ranked[0][0], {number for number, _ in frames}
-    for (other_prefix, other_ext), others in ranked[1:]:
+    for (other_prefix, _), others in ranked[1:]:
         strays = [name for number, name in sorted(others) if other_prefix == prefix and frames[0][0] < number
                   < frames[-1][0] and number not in numbers]
         if strays:  # a frame of the run saved in another format: it would silently become a gap

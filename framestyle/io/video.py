@@ -350,19 +350,10 @@ def _encode(frames_paths: Sequence[Path], fps: float, out_path: Path, video_filt
             raise FramestyleError(f"{out_path}: video encoding failed ({last_line(errors.read())})")
 
 
-def run_ffmpeg(args: list[str], file: Path, problem: str, stdin: bytes | None = None) -> bytes:
-    """Run the bundled ffmpeg; on failure raise '<file>: <problem> (<ffmpeg's last line>)'."""
-    result = _ffmpeg(args, stdin)
-    if result.returncode != 0:
-        raise FramestyleError(f"{file}: {problem} ({last_line(result.stderr)})")
-    return result.stdout
-
-
-def _ffmpeg(args: list[str], stdin: bytes | None = None) -> subprocess.CompletedProcess:
+def _ffmpeg(args: list[str]) -> subprocess.CompletedProcess:
     """Run the bundled ffmpeg, reporting errors only; its output and messages captured."""
     cmd = [imageio_ffmpeg.get_ffmpeg_exe(), "-hide_banner", "-loglevel", "error", *args]
-    return subprocess.run(cmd, input=stdin, stdin=None if stdin is not None else subprocess.DEVNULL,
-                          capture_output=True)
+    return subprocess.run(cmd, stdin=subprocess.DEVNULL, capture_output=True)
 
 
 def last_line(stderr: bytes, default: str = "ffmpeg gave no reason") -> str:
