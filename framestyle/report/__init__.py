@@ -123,8 +123,10 @@ def _measured(store: Store, files: ReportStore, source: io.FrameSource, settings
     """Warping errors (Lai et al. 2018) the render did not record, measured here; None if none is missing.
 
     A render records, for each frame after the first of its chain, its warping error and the
-    source's along the same flows. Where a finished frame has none (a render without temporal
-    consistency; the source's in a render from before it was recorded), the source's is
+    source's along the same flows; a frame it solved apart (``odd``: a flash, a short cutaway)
+    has none and none is measured, as ``framestyle stability`` leaves it out (its change is
+    the footage's, not the paint's). Where another finished frame has none (a render without
+    temporal consistency; the source's in a render from before it was recorded), the source's is
     measured on the working frames the render solved, and the render's on its delivered
     frames at the same size, both as :func:`~framestyle.qc.stability.pair_warping_error`
     does. What is measured is kept in ``report/<stem>.json`` (frames never change once
@@ -132,7 +134,8 @@ def _measured(store: Store, files: ReportStore, source: io.FrameSource, settings
     """
     entries = [frames.get(names[i]) for i in shot.frames]
     needs = {key: {k for k in range(1, shot.length)
-                   if entries[k] is not None and entries[k].get(recorded) is None and not entries[k].get("fresh")
+                   if entries[k] is not None and entries[k].get(recorded) is None
+                   and not (entries[k].get("fresh") or entries[k].get("odd"))
                    and (key == "source_error" or entries[k - 1] is not None)}
              for key, recorded in (("source_error", "source_warp_error"), ("render_error", "warp_error"))}
     if not any(needs.values()):
