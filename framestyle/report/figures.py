@@ -87,7 +87,10 @@ def shot_plot(series: ShotSeries, render_label: str = "render") -> Figure:
         axis.tick_params(labelsize=7)
     error_axis.set_ylabel("warping error\n(Lai et al. 2018)", fontsize=8)
     error_axis.set_ylim(bottom=0)
-    error_axis.legend(fontsize=7.5, loc="lower left", bbox_to_anchor=(0, 1), ncol=3, frameon=False)  # above
+    # ticks as 1.5 with ×10⁻⁴ above, not 0.00015: the fixed left margin has room for those
+    error_axis.ticklabel_format(axis="y", style="sci", scilimits=(-2, 3), useMathText=True)
+    error_axis.yaxis.get_offset_text().set_fontsize(7)
+    error_axis.legend(fontsize=7.5, loc="lower right", bbox_to_anchor=(1, 1), ncol=3, frameon=False)  # above, clear of ×10⁻⁴
     iteration_axis.set_ylabel("iterations", fontsize=8)
     seconds_axis.set_ylabel("seconds", fontsize=8)
     seconds_axis.set_xlabel("source frame", fontsize=8)
