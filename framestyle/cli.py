@@ -66,7 +66,7 @@ def _check_path(path: Path, what: str) -> Path:
 def _settings_options(
     style: Annotated[Optional[list[Path]], typer.Option("--style", "-s", readable=False, help="Style image; repeat to mix several.")] = None,
     look: Annotated[Optional[Path], typer.Option(readable=False, help="TOML look file with settings (and per-shot looks); options given here override it.")] = None,
-    width: Annotated[Optional[int], typer.Option(help="Working width in pixels, never above the source's (default 480; 1280 for sources wider than 1280).")] = None,
+    width: Annotated[Optional[int], typer.Option(help="Working width in pixels, never above the source's (default: the longer side 480; 1280 for sources longer than 1280, landscape or portrait).")] = None,
     iterations: Annotated[Optional[int], typer.Option(help=f"Most solver iterations per frame (default {Settings.iterations}).")] = None,
     style_weight: Annotated[Optional[float], typer.Option(help=f"Weight of the Gram style loss: higher, more paint (default {Settings.style_weight}).")] = None,
     content_weight: Annotated[Optional[float], typer.Option(help=f"Weight of the content loss: higher, more footage (default {Settings.content_weight}).")] = None,
@@ -77,7 +77,7 @@ def _settings_options(
     matte: Annotated[Optional[str], typer.Option(help="Folder of matte frames (white = stylise), or 'alpha' for the input's alpha.")] = None,
     matte_softness: Annotated[Optional[float], typer.Option(help=f"Soft matte edge, Gaussian sigma in pixels (default {Settings.matte_softness}).")] = None,
     picture_area: Annotated[Optional[str], typer.Option(help="auto: black letterbox or pillarbox bars found in a shot stay as the footage has them and the picture inside is stylised; full: the whole frame (default auto).")] = None,
-    levels: Annotated[Optional[int], typer.Option(help="Coarse-to-fine levels for a shot's first frame: solve at 1/2, 1/4 ... of the size first (default: 1 up to 640 pixels wide, above that enough for the first level to be at most 480 wide).")] = None,
+    levels: Annotated[Optional[int], typer.Option(help="Coarse-to-fine levels for a shot's first frame: solve at 1/2, 1/4 ... of the size first (default: 1 up to 640 pixels on the longer side, above that enough for the first level's to be at most 480).")] = None,
     warm_levels: Annotated[Optional[int], typer.Option(help=f"Coarse-to-fine levels for frames that start from the previous stylised frame (default {Settings.warm_levels}).")] = None,
     image_scales: Annotated[Optional[int], typer.Option(help=f"Scales a frame solved on its own (a shot's first) is optimised over at each level, from its pixels to 1/2, 1/4 ... of the size: broad areas settle in fewer iterations; 1: its pixels alone (default {Settings.image_scales}).")] = None,
     network: Annotated[Optional[str], typer.Option(help=f"Perceptual network: efficientnet-lite0 or vgg19 (default {Settings.network}).")] = None,
@@ -360,7 +360,7 @@ def preview(
 ) -> None:
     """Quick look: stylise every Nth frame of each shot on its own and lay out contact sheets.
 
-    The working width defaults to the render's, at most 240 pixels.
+    The working width defaults to the render's, at most the width that makes the longer side 240 pixels.
     """
     from framestyle.pipeline import preview as run_preview
 

@@ -58,10 +58,10 @@ from framestyle.style.network import FeatureNet, load_network
 from framestyle.style.solver import SolverParams, SolveStats, level_sizes, solve, solve_coarse_to_fine
 from framestyle.timecode import ClipTimecode
 from framestyle.temporal import fresh_problem, pass_problem, start_noise, steered_tv, temporal_problem
-from framestyle.working import Frame, deliver, prepare_frame, working_size
+from framestyle.working import Frame, deliver, prepare_frame, side_width, working_size
 
 Progress = Callable[..., None]  # progress(event: str, **info); events listed in render()
-PREVIEW_WIDTH = 240  # default preview working width: a quick look, a few seconds a frame
+PREVIEW_SIDE = 240  # default preview working size's longer side: a quick look, a few seconds a frame
 
 
 def no_progress(event: str, **info) -> None:
@@ -469,10 +469,14 @@ def framing(source: io.FrameSource, area: PictureArea | None, settings: Settings
             min_side: int) -> tuple[PictureArea | None, tuple[int, int]]:
     """What of a shot's frames is stylised and at what working size: the picture inside its
     bars (``area``), or the whole frame where there are none or where the picture would be
-    worked under the network's ``min_side`` at this width (the frame was checked to have room)."""
+    worked under the network's ``min_side`` at this width (the frame was checked to have room).
+    A width asked for is the picture's; by default the picture is worked at the scale the
+    whole frame would be (a 4:3 picture in a 1920×1080 frame at 960×720, as the frame at 1280×720)."""
     if area is not None:
         try:
-            return area, working_size(area.width, area.height, settings.width, min_side, source.pixel_aspect)
+            width = settings.width or max(1, round(area.width / source.width * working_size(
+                source.width, source.height, None, min_side, source.pixel_aspect)[0]))
+            return area, working_size(area.width, area.height, width, min_side, source.pixel_aspect)
         except FramestyleError:
             pass
     return None, working_size(source.width, source.height, settings.width, min_side, source.pixel_aspect)
@@ -987,8 +991,8 @@ def preview(input_path: Path, out: Path, settings: Settings, every: int, *, widt
 
     Parameters
     ----------
-    width : preview working width for every shot (default: the render's width, at most
-        :data:`PREVIEW_WIDTH` and the source's)
+    width : preview working width for every shot (default: the render's width, at most the
+        source's and the width that makes the longer side :data:`PREVIEW_SIDE`)
 
     Returns
     -------
@@ -1002,7 +1006,9 @@ def preview(input_path: Path, out: Path, settings: Settings, every: int, *, widt
         if value is not None and value < 1:
             raise FramestyleError(f"{option} {value}: must be 1 or more")
     if width is None:  # not asked for: nothing to warn about where the source is narrower
-        width = min(settings.width or PREVIEW_WIDTH, PREVIEW_WIDTH, io.open_source(input_path).width)
+        source = io.open_source(input_path)
+        quick = side_width(source.width, source.height, PREVIEW_SIDE, source.pixel_aspect)
+        width = min(settings.width or quick, quick, source.width)
     settings = dataclasses.replace(settings, width=width, shot_looks={
         n: {**look, "width": width} for n, look in settings.shot_looks.items()})
     source, net = open_render(input_path, out, settings, progress, preview=True)

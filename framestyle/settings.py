@@ -66,7 +66,7 @@ class Settings:
     picture_area: Literal["auto", "full"] = "auto"  # auto: black letterbox or pillarbox bars found in
     #                                 a shot are delivered as they are, the picture inside them stylised
     levels: Annotated[int, Field(ge=1, le=6)] | None = None  # coarse-to-fine levels: first solve at
-    #                                 1/2**(levels-1); None: by working width (style.solver.coarse_levels)
+    #                                 1/2**(levels-1); None: by the working size's longer side (style.solver.coarse_levels)
     warm_levels: Annotated[int, Field(ge=1, le=6)] = 1  # the same for frames that start from the previous one
     image_scales: Annotated[int, Field(ge=1, le=6)] = 3  # scales a frame solved on its own is optimised
     #                                 over at each level (Mordvintsev et al. 2018); 1: its pixels
@@ -79,7 +79,7 @@ class Settings:
     style_layers: Annotated[tuple[str, ...], _List] = ()  # empty: the network's default style layers
     content_layer: str = ""  # empty: the network's default content layer
     width: Annotated[int, Field(ge=1)] | None = None  # working width in pixels (never above the source
-    #                                 width); None: 480, or 1280 for sources wider than 1280 (working.py)
+    #                                 width); None: the longer side 480, or 1280 for sources longer than 1280 (working.py)
     iterations: Annotated[int, Field(ge=1)] = 300  # most L-BFGS iterations for one frame
     warm_iterations: Annotated[int, Field(ge=1)] | None = None  # the same for a frame started from its
     #                                 warped predecessor (None: iterations)

@@ -14,11 +14,20 @@ from framestyle.imaging import resize
 from framestyle.settings import Settings
 
 
-WIDTH = 480
-"""The default working width: quick, and the look holds up on a laptop screen."""
-HD_WIDTH = 1280
-"""The default working width of a source wider than this (1080p and up): delivered at 1.5×
-at most, strokes keep their detail in a 1:1 crop (see the README's "HD sources")."""
+SIDE = 480
+"""The default working size's longer side: quick, and the look holds up on a laptop screen."""
+HD_SIDE = 1280
+"""The default working size's longer side for a source longer than this as shown (1080p and
+up, landscape or portrait): delivered at 1.5× at most, strokes keep their detail in a 1:1
+crop (see the README's "HD sources")."""
+
+
+def side_width(width: int, height: int, side: int, pixel_aspect: float = 1.0) -> int:
+    """The working width that makes the longer side of a ``width × height`` source as shown
+    (its pixels ``pixel_aspect`` wide for 1 high) ``side`` pixels: ``side`` for a landscape
+    frame, less for a portrait one (a phone's 1080×1920 gets what its landscape twin gets)."""
+    shown = width * pixel_aspect
+    return side if shown >= height else max(1, round(side * shown / height))
 
 
 def working_size(width: int, height: int, settings_width: int | None, min_side: int,
@@ -26,13 +35,15 @@ def working_size(width: int, height: int, settings_width: int | None, min_side: 
     """Working (w, h) in square pixels: ``settings_width`` wide (never wider than the source),
     the picture's shape as shown.
 
-    ``settings_width`` None is the default: :data:`WIDTH`, or :data:`HD_WIDTH` for a source
-    wider than :data:`HD_WIDTH`. ``pixel_aspect`` is the width over height of a source pixel
-    (an anamorphic video's SAR): the network then sees round shapes round and paints round
-    strokes, which come back squeezed into the source's pixels.
+    ``settings_width`` None is the default: the longer side :data:`SIDE`, or :data:`HD_SIDE`
+    for a source longer than :data:`HD_SIDE` as shown (:func:`side_width`). ``pixel_aspect``
+    is the width over height of a source pixel (an anamorphic video's SAR): the network then
+    sees round shapes round and paints round strokes, which come back squeezed into the
+    source's pixels.
     """
     if settings_width is None:
-        settings_width = HD_WIDTH if width > HD_WIDTH else WIDTH
+        side = HD_SIDE if max(width * pixel_aspect, height) > HD_SIDE else SIDE
+        settings_width = side_width(width, height, side, pixel_aspect)
     w = min(settings_width, width)
     h = max(1, round(height * w / (width * pixel_aspect)))
     if min(w, h) < min_side:

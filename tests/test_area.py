@@ -1,6 +1,7 @@
 """The picture area: letterbox and pillarbox bars found on real footage and kept black in a render."""
 
 from pathlib import Path
+from types import SimpleNamespace
 
 import cv2
 import numpy as np
@@ -12,7 +13,7 @@ from footage_edits import BIKES, load_clip
 from framestyle import io
 from framestyle.area import PictureArea, find_area, shot_areas
 from framestyle.cli import app
-from framestyle.pipeline import render, working_sizes
+from framestyle.pipeline import framing, render, working_sizes
 from framestyle.settings import Settings
 from framestyle.shots import Shot
 from framestyle.working import Frame, deliver
@@ -165,6 +166,23 @@ def test_the_command_line_says_which_shots_keep_their_bars(small_clip, tmp_path)
     said = " ".join(result.stdout.split())
     assert "1 shot(s); shot(s) 2: black bars kept, the picture worked at 128×72" in said  # not the frame's 128×96
     assert "working size" not in said  # no shot is worked whole
+
+
+def test_the_picture_inside_bars_is_worked_at_the_scale_of_the_whole_frame():
+    # A 1080p frame works at 1280×720 by default: the picture inside its bars at the same
+    # scale, so it is delivered as sharp as the frame would be (a 4:3 picture was worked at
+    # 1280×960, by its own width, and a 9:16 one at 480×853 as if it were a small clip).
+    hd = SimpleNamespace(width=1920, height=1080, pixel_aspect=1.0)
+    frame = framing(hd, None, Settings(), 64)
+    assert frame == (None, (1280, 720))
+    four_three, phone = PictureArea(240, 0, 1440, 1080), PictureArea(656, 0, 608, 1080)
+    scope = PictureArea(0, 138, 1920, 804)
+    assert framing(hd, four_three, Settings(), 64) == (four_three, (960, 720))
+    assert framing(hd, phone, Settings(), 64) == (phone, (405, 719))
+    assert framing(hd, scope, Settings(), 64) == (scope, (1280, 536))
+    assert framing(hd, four_three, Settings(width=480), 64) == (four_three, (480, 360))  # a width asked for is the picture's
+    # a picture worked under the network's 64 pixels a side: the whole frame instead
+    assert framing(hd, scope, Settings(width=120), 64) == (None, (120, 68))
 
 
 def test_the_working_sizes_group_the_shots_by_size_and_by_bars(small_clip):

@@ -132,7 +132,16 @@ def test_hd_sources_work_at_1280_by_default_and_solve_their_first_frames_coarse_
     assert working_size(1920, 1080, None, 64) == (1280, 720)
     assert working_size(1280, 720, None, 64) == (480, 270)
     assert working_size(1920, 1080, 1920, 64) == (1920, 1080)
-    assert [solver.coarse_levels(w) for w in (480, 640, 960, 1280, 1920)] == [1, 1, 2, 3, 3]
+    assert [solver.coarse_levels((w, w * 9 // 16)) for w in (480, 640, 960, 1280, 1920)] == [1, 1, 2, 3, 3]
+    # A portrait source gets what its landscape twin gets: the longer side sets the size (a
+    # phone's 1080×1920 was worked 480 wide, 480×853, and delivered 2.25× up).
+    assert working_size(1080, 1920, None, 64) == (720, 1280)
+    assert working_size(720, 1280, None, 64) == (270, 480)
+    assert working_size(1080, 1920, 600, 64) == (600, 1067)  # a width asked for is a width
+    assert solver.coarse_levels((720, 1280)) == 3  # was 2, by its width
+    # so does an anamorphic one, by its shape as shown: DVCPRO HD's 1280×1080 at 3:2 pixels
+    # (1920×1080 as shown; SMPTE 370M, from memory) works at 1280×720, not 480×270
+    assert working_size(1280, 1080, None, 64, 1.5) == (1280, 720)
     # halvings rounded; a level under the network's 64 pixels a side is skipped (60×34 here)
     assert solver.level_sizes((480, 270), 4, 64) == [(120, 68), (240, 135), (480, 270)]
     assert solver.level_sizes((1280, 720), 3, 64) == [(320, 180), (640, 360), (1280, 720)]

@@ -255,7 +255,7 @@ def solve_coarse_to_fine(
     image, stats (iterations summed over the levels)
     """
     h, w = problem.content.shape[-2:]
-    levels = params.warm_levels if problem.temporal else params.levels or coarse_levels(w)
+    levels = params.warm_levels if problem.temporal else params.levels or coarse_levels((w, h))
     sizes = level_sizes((w, h), levels, net.min_side)
     image, used = None, 0
     cap = (problem.temporal and params.warm_iterations) or params.iterations
@@ -276,14 +276,16 @@ def level_sizes(size: tuple[int, int], levels: int, min_side: int) -> list[tuple
     return [s for s in sizes[:-1] if min(s) >= min_side] + [(w, h)]
 
 
-def coarse_levels(width: int) -> int:
-    """Default levels for a frame ``width`` wide: 1 up to 640 pixels, else enough that the
-    coarsest level is at most 480 wide (960 → 2, 1280 → 3, 1920 → 3).
+def coarse_levels(size: tuple[int, int]) -> int:
+    """Default levels for a frame of ``size`` (w, h), by its longer side: 1 up to 640 pixels,
+    else enough that the coarsest level's is at most 480 (960 → 2, 1280 → 3, 1920 → 3), so a
+    portrait frame gets the levels of its landscape twin.
 
     Measured on a 1280×720 first frame (benchmarks/coarse_to_fine.py): three levels 96 s,
     one level 281 s; the warm-started frames that follow refine it at full size.
     """
-    return 1 if width <= 640 else 1 + math.ceil(math.log2(width / 480))
+    side = max(size)
+    return 1 if side <= 640 else 1 + math.ceil(math.log2(side / 480))
 
 
 def _at_size(problem: Problem, size: tuple[int, int], coarser: torch.Tensor | None) -> Problem:
