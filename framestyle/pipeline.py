@@ -50,7 +50,7 @@ from framestyle.shots import Shot, shots_from_boundaries
 from framestyle.shots.clip import detect_clip
 from framestyle.shots.continuity import ODD_RUN, continuity, matches
 from framestyle.shots.cutlists import clip_timecode
-from framestyle.shots.lists import frame_range, parse_shot_file, parse_shot_selection
+from framestyle.shots.lists import frame_range, parse_shot_file, parse_shot_selection, shot_selection
 from framestyle.store import (FLASH_KINDS, HAND_OFF, MANIFEST, Store, check_footage, check_resume, environment_changes,
                               input_fingerprints, output_names, recorded_shots, shot_list_fingerprint)
 from framestyle.style.look import Look, build_look
@@ -253,7 +253,7 @@ def plan_render(
     names = plan.names
     done = sum(1 for s in chosen for i in s.frames if names[i] in finished)
     progress("start", frames=sum(s.length for s in chosen), shots=len(chosen), done=done,
-             sizes=working_sizes(source, chosen, plan.areas, settings, net.min_side))
+             sizes=_sizes_said(source, chosen, plan.areas, settings, net.min_side, progress))
     refresh_report(plan.out, plan.source, plan.settings, plan.timecode)
     return plan
 
@@ -493,6 +493,20 @@ def working_sizes(source: io.FrameSource, shots: Sequence[Shot], areas: dict[int
     return [(size, bars, indices) for (size, bars), indices in sorted(groups.items(), key=lambda g: -len(g[1]))]
 
 
+def _sizes_said(source: io.FrameSource, shots: Sequence[Shot], areas: dict[int, PictureArea | None],
+                settings: Settings, min_side: int, progress: Progress) -> list[tuple[tuple[int, int], bool, list[int]]]:
+    """:func:`working_sizes`, saying which shots' bars are painted all the same: their picture
+    would be worked under the network's ``min_side`` at the width asked for."""
+    sizes = working_sizes(source, shots, areas, settings, min_side)
+    boxed = {index for _, bars, indices in sizes if bars for index in indices}
+    painted = [shot.index for shot in shots if areas[shot.index] is not None and shot.index not in boxed]
+    if painted:
+        progress("warning", message=f"shot(s) {shot_selection(painted)}: the picture inside the black bars would be "
+                                    f"worked under the network's {min_side} pixels a side at this width, so the whole "
+                                    f"frame is stylised, bars and all; a larger --width keeps the bars")
+    return sizes
+
+
 def shot_look(net: FeatureNet, source: io.FrameSource, settings: Settings, shot: Shot,
               area: PictureArea | None) -> Look:
     """A shot's look; with ``colour="match"`` the style is recoloured to the shot's first frame
@@ -599,6 +613,10 @@ class _ShotRender:
             self.work.record["area"] = self.area.label()
             self.work.store.log(f"shot {shot.index}: black bars around the picture; the picture "
                                 f"{self.area.label()} is stylised, the bars delivered as they are")
+        elif self.plan.areas[shot.index] is not None:
+            self.work.store.log(f"shot {shot.index}: black bars around the picture {self.plan.areas[shot.index].label()}, "
+                                f"which would be worked under the network's {self.net.min_side} pixels a side at "
+                                f"width {settings.width}: the whole frame is stylised, bars and all")
         progress("shot_start", shot=shot.index, frames=shot.length, done=shot.length - len(todo))
         if first_pass == 1:
             self._first_pass(begin, look, mattes, progress)
@@ -1022,7 +1040,7 @@ def preview(input_path: Path, out: Path, settings: Settings, every: int, *, widt
     shots_wanted = [shot for shot in shot_list if shot.index in wanted]
     areas = shot_areas(source, shots_wanted, settings)
     progress("start", frames=len(chosen), shots=len(wanted), done=0,
-             sizes=working_sizes(source, shots_wanted, areas, settings, net.min_side))
+             sizes=_sizes_said(source, shots_wanted, areas, settings, net.min_side, progress))
     tiles: dict[int, list] = {n: [] for n in wanted}
     with Store(out).preview() as folder:
         for index, shot, frame, delivered, stats, seconds in _stylised_alone(source, net, settings, chosen, areas, False):

@@ -185,6 +185,19 @@ def test_the_picture_inside_bars_is_worked_at_the_scale_of_the_whole_frame():
     assert framing(hd, scope, Settings(width=120), 64) == (None, (120, 68))
 
 
+def test_bars_painted_because_the_picture_would_be_worked_too_small_are_said(small_clip, tmp_path):
+    # At 85 pixels wide the 128×96 frame works at 85×64 but its 128×72 picture at 85×48, under
+    # the network's 64: the whole frame is stylised, which the render did without a word.
+    _letterboxed_clip(small_clip, tmp_path / "boxed")
+    out = tmp_path / "o"
+    result = CliRunner().invoke(app, ["stylise", str(tmp_path / "boxed"), "--style", str(STYLE), "--out", str(out),
+                                      "--iterations", "2", "--shots", "2", "--width", "85"])
+    assert result.exit_code == 0, result.stderr
+    said = " ".join(result.stderr.split())
+    assert "shot(s) 2: the picture inside the black bars would be worked under the network's 64 pixels" in said
+    assert "shot 2: black bars around the picture 128x72+0+12, which would be worked under" in (out / "render.log").read_text()
+
+
 def test_the_working_sizes_group_the_shots_by_size_and_by_bars(small_clip):
     source = io.open_source(small_clip)  # 128×72
     shots = [Shot(1, 0, 4), Shot(2, 5, 9), Shot(3, 10, 14), Shot(4, 15, 19)]
