@@ -616,7 +616,7 @@ class _ShotRender:
         elif self.plan.areas[shot.index] is not None:
             self.work.store.log(f"shot {shot.index}: black bars around the picture {self.plan.areas[shot.index].label()}, "
                                 f"which would be worked under the network's {self.net.min_side} pixels a side at "
-                                f"width {settings.width}: the whole frame is stylised, bars and all")
+                                f"this width: the whole frame is stylised, bars and all")
         progress("shot_start", shot=shot.index, frames=shot.length, done=shot.length - len(todo))
         if first_pass == 1:
             self._first_pass(begin, look, mattes, progress)
