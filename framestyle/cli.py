@@ -20,7 +20,7 @@ from framestyle.settings import Settings
 from framestyle.shots.lists import shot_selection
 
 app = typer.Typer(
-    add_completion=False, no_args_is_help=True,
+    add_completion=False, no_args_is_help=True, rich_markup_mode="markdown",
     help="Repaint a shot or clip in the look of a style image, without flicker, on a CPU.",
 )
 
@@ -295,7 +295,7 @@ def _drop_closed_outputs() -> None:
 @app.command()
 @_with_settings_options
 def stylise(
-    input: Annotated[Path, typer.Argument(readable=False, help="Folder of numbered frames, or a video file.")],
+    input: Annotated[Path, typer.Argument(metavar="INPUT", readable=False, help="Folder of numbered frames, or a video file.")],
     out: Annotated[Path, typer.Option("--out", "-o", readable=False, help="Output folder for the stylised frames.")],
     options: dict,
     shots: Annotated[Optional[str], typer.Option(help="Render only these shots, e.g. 2,4-5 (7-: shot 7 to the last).")] = None,
@@ -350,7 +350,7 @@ def _render(input: Path, out: Path, settings: Settings, *, workers: int, schedul
 @app.command()
 @_with_settings_options
 def preview(
-    input: Annotated[Path, typer.Argument(readable=False, help="Folder of numbered frames, or a video file.")],
+    input: Annotated[Path, typer.Argument(metavar="INPUT", readable=False, help="Folder of numbered frames, or a video file.")],
     out: Annotated[Path, typer.Option("--out", "-o", readable=False, help="Output folder; previews go to its preview/ folder.")],
     options: dict,
     every: Annotated[int, typer.Option(help="Stylise every Nth frame of each shot, from its first.")] = 10,
@@ -382,7 +382,7 @@ def preview(
 
 @app.command()
 def resume(
-    out: Annotated[Path, typer.Argument(readable=False, help="Output folder of a render started with `stylise`.")],
+    out: Annotated[Path, typer.Argument(metavar="OUT", readable=False, help="Output folder of a render started with `stylise`.")],
     shots: Annotated[Optional[str], typer.Option(help="Render only these shots, e.g. 2,4-5 (7-: shot 7 to the last).")] = None,
     workers: Annotated[int, typer.Option(help="Render shots in this many local worker processes (Dask); 1 = this process only.")] = 1,
     scheduler: Annotated[Optional[str], typer.Option(help="Send the shots to a running Dask scheduler whose workers see the same paths.")] = None,
@@ -464,7 +464,7 @@ def _summary_table(shots) -> str:
 
 @app.command("shots")
 def shots_command(
-    input: Annotated[Path, typer.Argument(readable=False, help="Folder of numbered frames, or a video file.")],
+    input: Annotated[Path, typer.Argument(metavar="INPUT", readable=False, help="Folder of numbered frames, or a video file.")],
     json_out: Annotated[bool, typer.Option("--json", help="Print the shot list as JSON.")] = False,
     fps: Annotated[Optional[float], typer.Option(help="Frame rate for timecode (default: the video's; 24 for folders).")] = None,
     start_timecode: Annotated[Optional[str], typer.Option(help="Timecode of the first frame, HH:MM:SS:FF or HH:MM:SS;FF for drop-frame (default: the video's timecode, else 00:00:00:00).")] = None,
@@ -513,7 +513,7 @@ def shots_command(
 
 @app.command("report")
 def report_command(
-    out: Annotated[Path, typer.Argument(readable=False, help="A render's output folder (finished, running or interrupted), or a preview's.")],
+    out: Annotated[Path, typer.Argument(metavar="OUT", readable=False, help="A render's output folder (finished, running or interrupted), or a preview's.")],
     source: Annotated[Optional[Path], typer.Option("--source", readable=False, help="The footage, if it moved since the render started (default: where the render read it).")] = None,
     every: Annotated[Optional[int], typer.Option(help="Thumbnails of every Nth frame of a shot (default: at most 6 a shot).")] = None,
 ) -> None:
@@ -544,14 +544,16 @@ def report_command(
 
 @app.command("stability")
 def stability_command(
-    out: Annotated[Path, typer.Argument(readable=False, help="Folder of stylised frames (a render's --out).")],
+    out: Annotated[Path, typer.Argument(metavar="OUT", readable=False, help="Folder of stylised frames (a render's --out).")],
     source: Annotated[Optional[Path], typer.Option("--source", readable=False, help="The footage the render was made from (default: where the render read it).")] = None,
     json_out: Annotated[bool, typer.Option("--json", help="Print the figures as JSON.")] = False,
     flow_preset: Annotated[str, typer.Option(help="Optical flow preset for the measurement.")] = "medium",
     detail_frames: Annotated[int, typer.Option(help="Frames per shot rendered again on their own to measure the stroke detail the render keeps; 0 = none.")] = 3,
 ) -> None:
-    """Print the warping error (Lai et al. 2018) of a render per shot and overall, lower is
-    steadier, and the stroke detail it keeps, 1 is as crisp as frames rendered on their own."""
+    """Print a render's warping error (Lai et al. 2018) and the stroke detail it keeps, per shot.
+
+    The warping error is lower for a steadier render; the stroke detail is 1 where the frames are
+    as crisp as frames rendered on their own."""
     from framestyle import store
     from framestyle.qc.stability import overall, stability
 
@@ -596,7 +598,7 @@ def stability_command(
 
 @app.command("flashes")
 def flashes_command(
-    path: Annotated[Path, typer.Argument(readable=False, help="Folder of numbered frames, a video file, or a render's output folder (its frames and their source).")],
+    path: Annotated[Path, typer.Argument(metavar="PATH", readable=False, help="Folder of numbered frames, a video file, or a render's output folder (its frames and their source).")],
     fps: Annotated[Optional[float], typer.Option(help="Frame rate of the 1-second windows and timecode (default: the video's or the render's; 24 for a folder).")] = None,
     json_out: Annotated[bool, typer.Option("--json", help="Print the check as JSON.")] = False,
     plot: Annotated[Optional[Path], typer.Option(readable=False, help="Write the timeline plot PNG here (default for an output folder: OUT/flashes.png).")] = None,

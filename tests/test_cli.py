@@ -36,6 +36,20 @@ def _one_line_error(code, stderr, name):
     assert "Traceback" not in stderr and name in lines[0]
 
 
+@pytest.mark.parametrize("command", ["stylise", "preview", "resume", "shots", "report", "stability", "flashes"])
+def test_help_text_wraps_as_paragraphs(command):
+    # the docstrings' own line breaks came through into the help, leaving lines like "0-based"
+    # under a full one; a paragraph is re-wrapped to the terminal's width
+    result = CliRunner().invoke(app, [command, "--help"], terminal_width=100, env={"COLUMNS": "100"})
+    assert result.exit_code == 0
+    prose = result.stdout.split("\u256d")[0].splitlines()  # what comes before the first panel
+    for line, after in zip(prose, prose[1:]):
+        if line.strip() and after.strip():  # a line followed by more of its paragraph is full
+            assert len(line.rstrip()) > 60, f"{line!r} then {after!r}"
+    assert "{" + ("OUT" if command in ("resume", "report", "stability") else "PATH" if command == "flashes"
+                  else "INPUT") + "}" in result.stdout  # the argument as the description names it
+
+
 def test_stylise_writes_frames_and_says_where(small_clip, tmp_path):
     code, out, _ = _run("stylise", small_clip, "--style", STYLE, "--out", tmp_path / "o", "-q", *FAST, "--shots", "2")
     assert code == 0
