@@ -17,6 +17,7 @@ from typing import Sequence
 import numpy as np
 import torch
 
+from framestyle.finish.colour import match_histograms
 from framestyle.imaging import to_tensor
 from framestyle.motion import FlowPair, inside_mask, long_term_masks, warp
 from framestyle.style.solver import Problem
@@ -59,7 +60,13 @@ def temporal_problem(
     The frame starts from the previous stylised frame warped into it along the backward flow
     (Ruder et al. 2016, Sec. 3.1), except the picture that has entered across the frame's
     edges since (the flow leads outside the previous frame: :func:`inside_mask`), which
-    starts from the content frame plus noise instead of from smeared border pixels. The
+    starts from the content frame plus noise instead of from smeared border pixels, the
+    content's colours histogram-matched to the warped frame's (:func:`match_histograms`):
+    the few iterations a following frame gets leave it closer to the footage than the paint
+    beside it, and the temporal loss then carries it inward (bikes.mp4 at 480×204, 30 frames
+    from 40 and from 80, the camera panning: the following frames' style loss 10 % and 21 %
+    lower, content +0 % and +3 %, warping error −2 % and −1 %; from 190 and bigbuckbunny.mp4,
+    little or no picture entering, the same). The
     other pixels the forward-backward check marks unreliable (disocclusions, motion
     boundaries) keep the warped start, as in the paper: the temporal loss does not hold them
     (weight 0), so the style loss repaints them, and from a start close to the paint around
@@ -71,9 +78,10 @@ def temporal_problem(
     warped = [_warped(stylised, flows, interpolation) for flows, stylised in earlier]
     masks = [flows.current_mask() for flows, _ in earlier]
     weights = long_term_masks(masks)
-    fresh = to_tensor(content) + noise
-    inside = torch.from_numpy(inside_mask(earlier[0][0].backward))[None, None]
-    init = inside * to_tensor(warped[0]) + (1 - inside) * fresh
+    inside = inside_mask(earlier[0][0].backward)
+    painted = content if inside.all() or not inside.any() else match_histograms(content, warped[0][inside > 0][None])
+    inside = torch.from_numpy(inside)[None, None]
+    init = inside * to_tensor(warped[0]) + (1 - inside) * (to_tensor(painted) + noise)
     pairs = [(to_tensor(w), torch.from_numpy(c)[None, None]) for w, c in zip(warped, weights)]
     return Problem(to_tensor(content), init, pairs)
 
