@@ -210,7 +210,8 @@ class _Bars:
                 console=_display_console(),
             )
             self.progress.start()
-            self.total = self.progress.add_task("all frames", total=info["frames"], completed=info["done"])
+            self.frames = info["frames"]
+            self.total = self.progress.add_task("all frames", total=self.frames, completed=info["done"])
             whole = [(size, shots) for size, bars, shots in info["sizes"] if not bars]
             boxed = [(size, shots) for size, bars, shots in info["sizes"] if bars]
             self.progress.console.print(
@@ -241,8 +242,8 @@ class _Bars:
                 self.progress.advance(self.shot_task)
         elif event == "farm":  # frames done across workers, and the shots being rendered
             busy = ", ".join(f"shot {n}" for n in info["shots"])
-            self.progress.update(self.total, completed=info["done"],
-                                 description=f"all frames ({busy or 'idle'})")
+            state = f" ({busy})" if busy else " (waiting for a worker)" if info["done"] < self.frames else ""
+            self.progress.update(self.total, completed=info["done"], description=f"all frames{state}")
         elif event == "waiting":
             self.progress.console.print(f"waiting: {info['holder']}")
         elif event == "shot":

@@ -50,6 +50,24 @@ def test_help_text_wraps_as_paragraphs(command):
                   else "INPUT") + "}" in result.stdout  # the argument as the description names it
 
 
+def test_the_farm_bar_says_what_the_workers_do_and_nothing_once_all_is_done():
+    # it said "all frames (idle)" under a full bar at the end of every farm render
+    from framestyle.cli import _Bars
+
+    bars = _Bars(quiet=False)
+    bars("start", frames=10, done=0, shots=2, sizes=[((128, 72), None, [1, 2])])
+    try:
+        described = lambda: bars.progress.tasks[0].description
+        bars("farm", done=3, shots=[1, 2])
+        assert described() == "all frames (shot 1, shot 2)"
+        bars("farm", done=5, shots=[])
+        assert described() == "all frames (waiting for a worker)"
+        bars("farm", done=10, shots=[])
+        assert described() == "all frames"
+    finally:
+        bars.stop()
+
+
 def test_stylise_writes_frames_and_says_where(small_clip, tmp_path):
     code, out, _ = _run("stylise", small_clip, "--style", STYLE, "--out", tmp_path / "o", "-q", *FAST, "--shots", "2")
     assert code == 0
