@@ -150,8 +150,9 @@ def match_histograms(source: np.ndarray, reference: np.ndarray) -> np.ndarray:
     """Per-channel histogram matching: give ``source`` the colour distribution of ``reference``.
 
     Used for colour preservation by matching the style image's colours to the content frame
-    before style transfer (pass the style image as ``source``, the frame as ``reference``).
-    The images may differ in size.
+    before style transfer (pass the style image as ``source``, the frame as ``reference``),
+    and to give picture entering a warm-started frame across its edge the stylised frame's
+    colours (:func:`framestyle.temporal.temporal_problem`). The images may differ in size.
 
     Parameters
     ----------
