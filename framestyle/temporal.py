@@ -80,9 +80,10 @@ def temporal_problem(
     weights = long_term_masks(masks)
     inside = inside_mask(earlier[0][0].backward)
     painted = content if inside.all() or not inside.any() else match_histograms(content, warped[0][inside > 0][None])
-    inside = torch.from_numpy(inside)[None, None]
-    init = inside * to_tensor(warped[0]) + (1 - inside) * (to_tensor(painted) + noise)
-    pairs = [(to_tensor(w), torch.from_numpy(c)[None, None]) for w, c in zip(warped, weights)]
+    targets = [to_tensor(w) for w in warped]
+    kept = torch.from_numpy(inside)[None, None]
+    init = kept * targets[0] + (1 - kept) * (to_tensor(painted) + noise)
+    pairs = [(target, torch.from_numpy(c)[None, None]) for target, c in zip(targets, weights)]
     return Problem(to_tensor(content), init, pairs)
 
 
