@@ -12,6 +12,7 @@ from framestyle.errors import FramestyleError
 from framestyle.finish.compose import associated, from_display, luma_image, mix, paint, to_display, with_alpha
 from framestyle.imaging import resize
 from framestyle.settings import Settings
+from framestyle.shots.fades import lifted
 
 
 SIDE = 480
@@ -62,25 +63,29 @@ class Frame:
     display : (H, W, 3) display-referred source frame at source size (sRGB-encoded if the
         source is linear light, clipped to [0, 1])
     content : (h, w, 3) what the solver sees at working size (luma only in "luma" mode): the
-        picture inside ``area``
+        picture inside ``area``, lifted out of its fade
+        (:func:`~framestyle.shots.fades.lifted`)
     area : the picture inside letterbox or pillarbox bars, or None for the whole frame
+    gain : the fade the picture is in (:mod:`framestyle.shots.fades`), 1 outside fades; the
+        stylised picture is delivered times it
     """
 
     source: np.ndarray
     display: np.ndarray
     content: np.ndarray
     area: PictureArea | None = None
+    gain: float = 1.0
 
 
 def prepare_frame(frame: np.ndarray, size: tuple[int, int], settings: Settings, linear: bool,
-                  area: PictureArea | None = None) -> Frame:
+                  area: PictureArea | None = None, gain: float = 1.0) -> Frame:
     """Source frame → display-referred frame and the solver's working-size content (of the
-    picture inside ``area`` where there is one)."""
+    picture inside ``area`` where there is one, out of the fade ``gain``)."""
     display = to_display(frame, linear)
-    content = resize(display if area is None else area.crop(display), size)
+    content = lifted(resize(display if area is None else area.crop(display), size), gain)
     if settings.colour == "luma":
         content = luma_image(content, settings.luma_standard)
-    return Frame(frame, display, content, area)
+    return Frame(frame, display, content, area, gain)
 
 
 def deliver(result: np.ndarray, frame: Frame, settings: Settings, matte: np.ndarray | None,
@@ -110,8 +115,10 @@ def deliver(result: np.ndarray, frame: Frame, settings: Settings, matte: np.ndar
     h, w = frame.display.shape[:2]
     area = frame.area
     inside = frame.display if area is None else area.crop(frame.display)
-    picture = paint(resize(result, (inside.shape[1], inside.shape[0])), inside, colour=settings.colour,
-                    standard=settings.luma_standard)
+    picture = paint(resize(result, (inside.shape[1], inside.shape[0])), lifted(inside, frame.gain),
+                    colour=settings.colour, standard=settings.luma_standard)
+    if frame.gain != 1.0:  # the stylised picture fades as the footage did
+        picture = np.float32(frame.gain) * picture
     if area is not None:  # the bars are the footage's own samples, as where a matte is black
         whole = frame.display.copy()
         area.crop(whole)[...] = picture

@@ -185,6 +185,18 @@ class Edit:
         """``(first, last)`` frames of each gradual transition, inclusive."""
         return [span for span, kind in self._joins() if kind != "cut"]
 
+    def gains(self) -> np.ndarray:
+        """``(length,)`` each frame's fade gain as :class:`Fade` applies it, 1 outside fades."""
+        gains = np.ones(self.length)
+        fades = iter(p for p in self.parts if isinstance(p, Fade))
+        for (first, _), kind in self._joins():
+            if kind == "fade":
+                fade = next(fades)
+                ramp = np.r_[1 - np.arange(1, fade.out + 1) / (fade.out + 1), np.zeros(fade.hold),
+                             np.arange(1, fade.in_ + 1) / (fade.in_ + 1)]
+                gains[first:first + len(ramp)] = ramp
+        return gains
+
     def _joins(self) -> list[tuple]:
         """``(where, kind)`` of each join: the cut's frame, or a transition's frame span."""
         joins, position, previous = [], 0, None
