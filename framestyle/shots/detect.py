@@ -34,8 +34,14 @@ out from the changes around it:
   Weymouth (1995): every frame inside is a mix of the two ends (a dissolve), or of an end
   and the blank frames between (a fade through black), the mix moving steadily from one
   end to the other. A pan's or a zoom's middle frame is no such mix. The boundary goes to
-  the middle of a fade's blank frames, or to a dissolve's frame least like either end; a
-  fade in at the clip's start or out at its end has no shot on its far side, and none.
+  the middle of a fade's blank frames, or to a dissolve's frame least like either end.
+* **The clip's own fades.** A fade in from black at the clip's start or out to it at its
+  end has no shot on its far side, and no boundary. Its frames are found as
+  :mod:`framestyle.shots.fades` finds a shot's (from the layouts) and left out of the
+  search for transitions, where, all changing together, they passed for parts of one (a
+  dissolve beside them was lost, a fade through black got its boundary moved off its
+  black frames); and a step into a frame under half the fade's level is no cut, as its
+  colours cross the histogram's bins all at once.
 
 References
 ----------
@@ -56,6 +62,7 @@ from typing import Sequence
 import cv2
 import numpy as np
 
+from framestyle.shots.fades import DARK, fade_gains
 from framestyle.shots.shot import Shot, shots_from_boundaries
 
 SIGNATURE_WIDTH = 160
@@ -213,18 +220,26 @@ def detect_shots(
     steps = signature_distance(sigs[1:], sigs[:-1])
     inserts, returns = _short_runs(sigs, steps, cut_threshold, peak_ratio, peak_window)
     cuts = np.flatnonzero(_cut_mask(steps, returns, cut_threshold, peak_ratio, peak_window)) + 1
+    # the clip's own fade in from black and out to it (fades.py) have no shot on their far side;
+    # their frames, all changing together, would pass for parts of transitions, and their dark
+    # frames' colours, crossing the histogram's bins at once, for cuts
+    gains = fade_gains(sigs[:, _COLOURS:].reshape(n_frames, LAYOUT_SIZE[1], LAYOUT_SIZE[0]))
+    held = np.flatnonzero(gains == 1)
+    opening, closing = (held[0], held[-1]) if held.size else (n_frames, -1)
     cuts = np.union1d(cuts, inserts).astype(np.intp)
+    cuts = cuts[gains[cuts] >= DARK]
     boundaries = [(int(c), float(steps[c - 1])) for c in cuts]
     blank = sigs[:, :_COLOURS].max(axis=1) >= _BLANK_SHARE
     up_to, from_ = _ends(sigs, cuts)
     for first, last in zip([0, *cuts.tolist()], [*(cuts - 1).tolist(), n_frames - 1]):
+        first, last = max(first, opening), min(last, closing)
+        if last - first < 2:
+            continue
         for start, end, strength in _transitions(
             sigs, steps, up_to, from_, blank, first, last,
             gradual_threshold, peak_ratio, max_transition_length, blend_tolerance,
         ):
-            frame = _transition_frame(sigs, up_to[start], from_[end], start, end, blank)
-            if not (blank[:frame].all() or blank[frame:].all()):  # a fade in from (out to) black at the clip's
-                boundaries.append((frame, strength))               # start (end) opens (closes) its shot
+            boundaries.append((_transition_frame(sigs, up_to[start], from_[end], start, end, blank), strength))
     pairs = {frozenset(pair) for pair in inserts.reshape(-1, 2).tolist()}
     return shots_from_boundaries(_space_boundaries(boundaries, min_shot_length, pairs), n_frames)
 

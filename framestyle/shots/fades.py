@@ -17,7 +17,8 @@ mean levels. A fade in is a run of steps at the shot's start that each brighten 
 picture by more than :data:`RISE` (or frames still black), from a first frame at most
 :data:`DARK` of the level the run reaches; its gains are the step ratios multiplied back from
 the run's end, where the gain is 1. A fade out is the same backward from the shot's end. A
-shot that starts and ends at its own level has none; a shot all black (a slug) is faded all
+shot that starts and ends at its own level has none. Across a cut within a fade the pixels'
+ratios disagree and say nothing of the fade: that step is taken to fade as the one beside it; a shot all black (a slug) is faded all
 the way. A fade so slow that its last steps brighten by less than :data:`RISE` (about 100
 frames and longer, linear) is taken to end where its steps get that small, a little early.
 
@@ -54,6 +55,8 @@ far, as their 8-bit levels would come apart into bands; they are delivered so da
 the solver made of them hardly shows."""
 _LIT = 0.05  # pixels under this level are too dark for a ratio (noise, quantisation)
 _LIT_SHARE = 0.25  # a step ratio needs this share of the pixels lit in both frames
+_SPREAD = 0.4  # most interquartile range of the pixels' log ratios in one step of a fade: measured on
+#                the real clips, at most 0.15 in steps of fades over them, 0.62-1.23 across cuts
 
 
 def thumbnail(image: np.ndarray) -> np.ndarray:
@@ -64,11 +67,14 @@ def thumbnail(image: np.ndarray) -> np.ndarray:
 
 def step_ratio(before: np.ndarray, after: np.ndarray) -> float:
     """How much brighter ``after`` is than ``before`` (thumbnails, same shape): the median of
-    the ratios of their pixels lit in both; with too few lit, the ratio of their mean levels
-    (``inf`` from black to anything, 1 from black to black)."""
+    the ratios of their pixels lit in both, NaN where those disagree (another picture: a cut);
+    with too few lit, the ratio of their mean levels (``inf`` from black to anything, 1 from
+    black to black)."""
     lit = (before > _LIT) & (after > _LIT)
     if lit.mean() >= _LIT_SHARE:
-        return float(np.median(after[lit] / before[lit]))
+        logs = np.log(after[lit] / before[lit])
+        low, middle, high = np.percentile(logs, [25, 50, 75])
+        return float(np.exp(middle)) if high - low <= _SPREAD else float("nan")
     a, b = float(before.mean()), float(after.mean())
     return b / a if a > 0 else (np.inf if b > 0 else 1.0)
 
@@ -98,8 +104,11 @@ def _fade_in(thumbnails: np.ndarray) -> np.ndarray:
     levels = thumbnails.mean(axis=(1, 2))
     ramp, ratios = 0, []
     while ramp < n - 1:
-        ratios.append(step_ratio(thumbnails[ramp], thumbnails[ramp + 1]))
-        if not (levels[ramp] < BLACK or ratios[-1] > 1 + RISE):
+        ratio = step_ratio(thumbnails[ramp], thumbnails[ramp + 1])
+        if np.isnan(ratio):  # a cut within the fade: its ramp goes on as in the step beside it
+            ratio = ratios[-1] if ratios else step_ratio(*thumbnails[1:3]) if n > 2 else ratio
+        ratios.append(ratio)
+        if not (levels[ramp] < BLACK or ratio > 1 + RISE):
             break
         ramp += 1
     if ramp == 0 or levels[0] > DARK * levels[ramp]:  # no run, or it starts bright
