@@ -1,8 +1,8 @@
 """Fades through black at a shot's ends: how far down each frame's picture is faded.
 
 An editor's fade in from black (or out to it) scales the picture by a gain that ramps from 0
-to 1: the "chromatic scaling" of the production model of Hampapur, Jain & Weymouth (1995),
-``S(x, t) = F(x, t) · g(t)``. The style losses (Gatys et al. 2016) do not see that gain: a
+to 1: the production model of Hampapur, Jain & Weymouth (1995) has it as a scaling of the
+picture's values, ``S(x, t) = F(x, t) · g(t)`` (their notation from memory). The style losses (Gatys et al. 2016) do not see that gain: a
 Gram matrix carries the painting's brightness into a dark frame, so a faded frame comes out
 as bright as any other (a black frame as pure paint) and the fade is lost. So a shot's faded
 frames are stylised as the picture they fade, ``S / g`` (:func:`lifted`), and the stylised
@@ -17,10 +17,11 @@ mean levels. A fade in is a run of steps at the shot's start that each brighten 
 picture by more than :data:`RISE` (or frames still black), from a first frame at most
 :data:`DARK` of the level the run reaches; its gains are the step ratios multiplied back from
 the run's end, where the gain is 1. A fade out is the same backward from the shot's end. A
-shot that starts and ends at its own level has none. Across a cut within a fade the pixels'
-ratios disagree and say nothing of the fade: that step is taken to fade as the one beside it; a shot all black (a slug) is faded all
-the way. A fade so slow that its last steps brighten by less than :data:`RISE` (about 100
-frames and longer, linear) is taken to end where its steps get that small, a little early.
+shot that starts and ends at its own level has none; a shot all black (a slug) is faded all
+the way. Across a cut within a fade the pixels' ratios disagree and say nothing of the fade:
+that step is taken to fade as the one beside it. A fade so slow that its last steps brighten
+by less than :data:`RISE` (about 100 frames and longer, linear) is taken to end where its
+steps get that small, a little early.
 
 References
 ----------
