@@ -233,8 +233,6 @@ def detect_shots(
     up_to, from_ = _ends(sigs, cuts)
     for first, last in zip([0, *cuts.tolist()], [*(cuts - 1).tolist(), n_frames - 1]):
         first, last = max(first, opening), min(last, closing)
-        if last - first < 2:
-            continue
         for start, end, strength in _transitions(
             sigs, steps, up_to, from_, blank, first, last,
             gradual_threshold, peak_ratio, max_transition_length, blend_tolerance,

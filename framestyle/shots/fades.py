@@ -107,8 +107,10 @@ def _fade_in(thumbnails: np.ndarray) -> np.ndarray:
     ramp, ratios = 0, []
     while ramp < n - 1:
         ratio = step_ratio(thumbnails[ramp], thumbnails[ramp + 1])
-        if np.isnan(ratio):  # a cut within the fade: its ramp goes on as in the step beside it
-            ratio = ratios[-1] if ratios else step_ratio(*thumbnails[1:3]) if n > 2 else ratio
+        if np.isnan(ratio) and ratios:  # a cut within the fade: its ramp goes on as in the step beside it
+            ratio = ratios[-1]
+        elif np.isnan(ratio) and n > 2:  # a cut at the first step: as in the next
+            ratio = step_ratio(thumbnails[1], thumbnails[2])
         ratios.append(ratio)
         if not (levels[ramp] < BLACK or ratio > 1 + RISE):
             break
