@@ -728,7 +728,9 @@ class _ShotRender:
 
     def _first_pass(self, begin: int, look: Look, mattes: Mattes, progress: Progress) -> None:
         shot, settings = self.shot, self.settings
-        self.chain_start = max([shot.start] + [i for i in range(shot.start, begin) if self._entry(i).get("fresh")])
+        # a chain starts at a fresh frame, or after a held one (a fade's black or white hold)
+        self.chain_start = max([shot.start] + [i + bool(self._entry(i).get("held")) for i in range(shot.start, begin)
+                                               if self._entry(i).get("fresh")])
         if self.passes > 1:
             progress("pass", shot=shot.index, pass_=1, passes=self.passes, done=begin - shot.start)
         # (index, working frame in 8 bits): the flows to frames up to ``reach`` back need them, and
@@ -752,6 +754,9 @@ class _ShotRender:
         """Solve frame ``index`` of the first pass; ``ahead(n)`` yields the working frames of up
         to ``n`` frames after it, each read only when the continuity check asks for it."""
         t0 = time.perf_counter()
+        if frame.held:
+            self._hold(index, frame, mattes, progress, t0)
+            return
         settings, name, preset = self.settings, self.names[index], self.settings.flow_preset
         last = self._last(index)
         verdict, earlier, linked = "same", [], None  # linked: the frame this one continues
@@ -775,7 +780,7 @@ class _ShotRender:
                 to_odd = FlowPair.between(frame.content, sources[index - 1], preset)
                 if matches(frame.content, sources[index - 1], to_odd):
                     earlier, linked = [(to_odd, self.work.load_state(index - 1))], index - 1
-        fresh = verdict == "cut"
+        fresh = index == self.chain_start != self.shot.start  # after a missed cut or a held frame
         steering = verdict == "same" and bool(earlier) and self.probe > 0
         tv, reference = self._steer(index, frame.content, look) if steering else (self.base_tv, None)
         params = dataclasses.replace(self.params, warm_tv_weight=tv) if steering else self.params
@@ -801,6 +806,23 @@ class _ShotRender:
         self._deliver(index, frame, result, entry, mattes, time.perf_counter() - t0, progress, stats.temporal)
         self.work.prune_state(index + 1 - self.reach)  # what the next frames need stays
 
+    def _hold(self, index: int, frame: Frame, mattes: Mattes, progress: Progress, t0: float) -> None:
+        """Frame ``index`` of the first pass, held at a fade's black or white
+        (:attr:`~framestyle.working.Frame.held`): delivered as that level without solving; no
+        chain goes through it (the footage has no picture there), the next frame starts one."""
+        self.chain_start = index + 1
+        result = frame.held_result()
+        self.work.save_state(index, result)
+        if self.passes > 1:
+            self.work.save_state(index, frame.content, "content")
+        entry = {"iterations": 0, "style": None, "content": None, "warp_error": None, "source_warp_error": None,
+                 "fresh": True, "odd": False, "held": True}
+        if self.passes > 1:
+            self._note(index, 1, entry, time.perf_counter() - t0, progress)
+        else:
+            self._deliver(index, frame, result, entry, mattes, time.perf_counter() - t0, progress)
+            self.work.prune_state(index + 1 - self.reach)
+
     def _later_pass(self, pass_: int, begin: int | None, look: Look, progress: Progress) -> None:
         """Pass ``pass_`` ≥ 2 over the shot (from ``begin`` when resuming inside it)."""
         shot, settings = self.shot, self.settings
@@ -816,6 +838,12 @@ class _ShotRender:
             solved = (neighbour, self.work.load_state(neighbour, "content"), self.work.load_state(neighbour, layer))
         for index in order:
             t0 = time.perf_counter()
+            if self._entry(index).get("held"):  # as in the first pass: no chain goes through it
+                self.work.save_state(index, self.work.load_state(index, before), layer)
+                self._note(index, pass_, {}, time.perf_counter() - t0, progress, 0)
+                self.work.drop_state(index, before)
+                solved = None
+                continue
             content, neighbour = self.work.load_state(index, "content"), self._neighbour(index, pass_, starts)
             pair = FlowPair.between(content, solved[1], settings.flow_preset) if neighbour is not None else None
             problem = pass_problem(content, self.work.load_state(index, before), pair and (pair, solved[2]),
@@ -901,9 +929,13 @@ class _ShotRender:
         image = deliver(result, frame, settings, matte, self.source.linear, alpha)
         self.work.write_frame(name, image, _output_depth(self.source))
         self.work.finish_frame(name, {**entry, "seconds": round(seconds, 3), "finished": round(time.time(), 3)})
-        self.work.store.log(f"frame {name} shot {self.shot.index}: {entry['iterations']} iterations, "
-                            f"{seconds:.1f} s, style {entry['style']:.4f} content {entry['content']:.4f}"
-                            + (f" temporal {temporal:.5f}" if temporal is not None else ""))
+        if entry.get("held"):
+            self.work.store.log(f"frame {name} shot {self.shot.index}: {'white' if frame.toward else 'black'} "
+                                f"in a fade, delivered so without solving")
+        else:
+            self.work.store.log(f"frame {name} shot {self.shot.index}: {entry['iterations']} iterations, "
+                                f"{seconds:.1f} s, style {entry['style']:.4f} content {entry['content']:.4f}"
+                                + (f" temporal {temporal:.5f}" if temporal is not None else ""))
         progress("frame", index=index, shot=self.shot.index, iterations=entry["iterations"], seconds=seconds)
 
 
@@ -983,8 +1015,11 @@ def _stylised_alone(source: io.FrameSource, net: FeatureNet, settings: Settings,
                                  shot_look(net, source, shot_settings, shot, area, fades), Mattes(source, shot_settings.matte))
         shot_settings, area, size, fades, look, mattes = looks[shot.index]
         frame = prepare_frame(raw, size, shot_settings, source.linear, area, *fades[index - shot.start])
-        result, stats = stylise(look, frame.content, index, [], solver_params(shot_settings), shot_settings.seed,
-                                temporal=False)
+        if frame.held:  # delivered as the fade's level whatever is solved
+            result, stats = frame.held_result(), SolveStats(0, 0.0, 0.0, 0.0)
+        else:
+            result, stats = stylise(look, frame.content, index, [], solver_params(shot_settings), shot_settings.seed,
+                                    temporal=False)
         delivered = deliver(result, frame, shot_settings, mattes(index, shot_settings.matte_softness), linear)
         yield index, shot, frame, delivered, stats, time.perf_counter() - t0
 

