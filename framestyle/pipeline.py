@@ -514,8 +514,8 @@ def shot_look(net: FeatureNet, source: io.FrameSource, settings: Settings, shot:
     out of a fade (``fades``, :func:`fades_of_shot`; the picture inside ``area``, the bars left out)."""
     reference = None
     if settings.colour == "match":
-        held = fades is not None and (fades[:, 0] == 1).any()
-        first = int(np.argmax(fades[:, 0] == 1)) if held else 0
+        unfaded = fades is not None and (fades[:, 0] == 1).any()
+        first = int(np.argmax(fades[:, 0] == 1)) if unfaded else 0
         reference = to_display(io.read_frame(source, shot.start + first), source.linear)
         reference = reference if area is None else area.crop(reference)
     return build_look(net, settings, reference)
@@ -780,7 +780,7 @@ class _ShotRender:
                 to_odd = FlowPair.between(frame.content, sources[index - 1], preset)
                 if matches(frame.content, sources[index - 1], to_odd):
                     earlier, linked = [(to_odd, self.work.load_state(index - 1))], index - 1
-        fresh = index == self.chain_start != self.shot.start  # after a missed cut or a held frame
+        fresh = index == self.chain_start and index != self.shot.start  # after a missed cut or a held frame
         steering = verdict == "same" and bool(earlier) and self.probe > 0
         tv, reference = self._steer(index, frame.content, look) if steering else (self.base_tv, None)
         params = dataclasses.replace(self.params, warm_tv_weight=tv) if steering else self.params
@@ -813,11 +813,10 @@ class _ShotRender:
         self.chain_start = index + 1
         result = frame.held_result()
         self.work.save_state(index, result)
-        if self.passes > 1:
-            self.work.save_state(index, frame.content, "content")
         entry = {"iterations": 0, "style": None, "content": None, "warp_error": None, "source_warp_error": None,
                  "fresh": True, "odd": False, "held": True}
         if self.passes > 1:
+            self.work.save_state(index, frame.content, "content")
             self._note(index, 1, entry, time.perf_counter() - t0, progress)
         else:
             self._deliver(index, frame, result, entry, mattes, time.perf_counter() - t0, progress)

@@ -130,6 +130,12 @@ class Fade:
     hold: int
     in_: int
 
+    @property
+    def ramp(self) -> np.ndarray:
+        """The gains of its ``out + hold + in_`` frames, in order."""
+        return np.r_[1 - np.arange(1, self.out + 1) / (self.out + 1), np.zeros(self.hold),
+                     np.arange(1, self.in_ + 1) / (self.in_ + 1)]
+
 
 @dataclass(frozen=True)
 class Flash:
@@ -191,9 +197,7 @@ class Edit:
         fades = iter(p for p in self.parts if isinstance(p, Fade))
         for (first, _), kind in self._joins():
             if kind == "fade":
-                fade = next(fades)
-                ramp = np.r_[1 - np.arange(1, fade.out + 1) / (fade.out + 1), np.zeros(fade.hold),
-                             np.arange(1, fade.in_ + 1) / (fade.in_ + 1)]
+                ramp = next(fades).ramp
                 gains[first:first + len(ramp)] = ramp
         return gains
 
@@ -237,9 +241,8 @@ class Edit:
             elif isinstance(pending, Fade):
                 tail = out[-pending.out:] if pending.out else []
                 del out[len(out) - len(tail):]
-                out += [_gain(a, 1 - (k + 1) / (pending.out + 1)) for k, a in enumerate(tail)]
-                out += [np.zeros_like(take[0])] * pending.hold
-                out += [_gain(b, (k + 1) / (pending.in_ + 1)) for k, b in enumerate(take[: pending.in_])]
+                faded = [*tail, *[np.zeros_like(take[0])] * pending.hold, *take[: pending.in_]]
+                out += [_gain(a, gain) for a, gain in zip(faded, pending.ramp)]
                 take = take[pending.in_:]
             out += take
             pending = None

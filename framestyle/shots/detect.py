@@ -224,8 +224,8 @@ def detect_shots(
     # their frames, all changing together, would pass for parts of transitions, and their dark
     # frames' colours, crossing the histogram's bins at once, for cuts
     gains = fade_gains(sigs[:, _COLOURS:].reshape(n_frames, LAYOUT_SIZE[1], LAYOUT_SIZE[0]))
-    held = np.flatnonzero(gains == 1)
-    opening, closing = (held[0], held[-1]) if held.size else (n_frames, -1)
+    unfaded = np.flatnonzero(gains == 1)
+    opening, closing = (unfaded[0], unfaded[-1]) if unfaded.size else (n_frames, -1)
     cuts = np.union1d(cuts, inserts).astype(np.intp)
     cuts = cuts[gains[cuts] >= DARK]
     boundaries = [(int(c), float(steps[c - 1])) for c in cuts]
